@@ -1,0 +1,350 @@
+"""The solar frame: where the Sun sits in the Galaxy and how it moves.
+
+A :class:`SolarFrame` fixes the Sun's distance from the Galactic centre ``R0`` (kpc), its height above
+the mid-plane ``z_sun`` (pc) and its velocity ``v_sun`` (km/s) in Galactocentric Cartesian axes. It is
+the same parameter set as :class:`astropy.coordinates.Galactocentric` and converts to and from it
+exactly, so Galactocentric positions and velocities computed with it agree with astropy to round-off.
+
+Conventions
+-----------
+* ``R0`` is the Sun--centre distance (astropy's ``galcen_distance``), which includes the small tilt
+  from ``z_sun``; it is not the in-plane distance.
+* ``v_sun = (vx, vy, vz)`` in astropy's Galactocentric axes: x from the Sun toward the centre,
+  y in the direction of Galactic rotation at the Sun, z toward the north Galactic pole.
+* The common statement "circular velocity vc plus the solar motion (U, V, W) relative to the local
+  standard of rest" maps to ``v_sun = (U, vc + V, W)`` (:meth:`SolarFrame.from_lsr`). The tilt of
+  the Galactic plane by ``z_sun / R0`` (about 0.15 deg) is neglected in that mapping, as is usual.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .galactic import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC, radec_to_lb, tangent_basis
+from .units import KMS, to_value
+
+__all__ = ["SolarFrame", "Preset", "ReflexProperMotion", "FrameError"]
+
+#: astropy's default ICRS position of the Galactic centre, (l, b) = (0, 0) (astropy source).
+_GALCEN_RA_DEG = 266.4051
+_GALCEN_DEC_DEG = -28.936175
+#: Extra roll that aligns the Galactocentric z axis with the Galactic pole (astropy, Galactocentric._ROLL0).
+_ROLL0_DEG = 58.5986320306
+
+
+class FrameError(ValueError):
+    """Raised for solar-frame parameters that make no physical sense."""
+
+
+@dataclass(frozen=True)
+class Preset:
+    """A named, published solar-frame parameter set."""
+
+    name: str
+    description: str
+    citation: str
+    params: dict
+
+
+@dataclass(frozen=True)
+class ReflexProperMotion:
+    """Apparent proper motion of the Galactic centre caused by the Sun's motion, in Galactic coordinates.
+
+    Attributes are in mas/yr; ``mu_l_star`` is mu_l cos b.
+    """
+
+    mu_l_star: float
+    mu_b: float
+
+    @property
+    def total(self):
+        """Size of the proper-motion vector, mas/yr."""
+        return math.hypot(self.mu_l_star, self.mu_b)
+
+
+def _rot(angle_rad, axis):
+    c, s = math.cos(angle_rad), math.sin(angle_rad)
+    if axis == "x":
+        return np.array([[1.0, 0.0, 0.0], [0.0, c, s], [0.0, -s, c]])
+    if axis == "y":
+        return np.array([[c, 0.0, -s], [0.0, 1.0, 0.0], [s, 0.0, c]])
+    return np.array([[c, s, 0.0], [-s, c, 0.0], [0.0, 0.0, 1.0]])
+
+
+@dataclass(frozen=True)
+class SolarFrame:
+    """The Sun's position and velocity in the Galaxy. Immutable; use :meth:`replace` for variants.
+
+    Parameters
+    ----------
+    R0 : float or Quantity
+        Distance of the Sun from the Galactic centre, kpc (astropy's ``galcen_distance``).
+    z_sun : float or Quantity
+        Height of the Sun above the Galactic mid-plane, pc.
+    v_sun : 3-sequence of float or Quantity
+        Solar velocity in Galactocentric Cartesian axes, km/s (astropy's ``galcen_v_sun``).
+    roll : float or Quantity, optional
+        Extra rotation about the Sun--centre line, deg (astropy's ``roll``; 0 normally).
+    galcen_ra, galcen_dec : float or Quantity, optional
+        ICRS direction of the Galactic centre, deg (astropy's default ``galcen_coord``).
+    label : str, optional
+        Name of the preset this frame came from, or "" once edited. Not part of equality.
+
+    Raises
+    ------
+    FrameError
+        If R0 is not positive, z_sun is not smaller than R0, or a value is not finite.
+
+    Examples
+    --------
+    >>> frame = SolarFrame(R0=8.122, z_sun=20.8, v_sun=(12.9, 245.6, 7.78))
+    >>> frame.replace(R0=8.2).R0
+    8.2
+    """
+
+    R0: float = 8.122
+    z_sun: float = 20.8
+    v_sun: tuple = (12.9, 245.6, 7.78)
+    roll: float = 0.0
+    galcen_ra: float = _GALCEN_RA_DEG
+    galcen_dec: float = _GALCEN_DEC_DEG
+    label: str = field(default="", compare=False)
+
+    def __post_init__(self):
+        R0 = to_value(self.R0, "kpc", "R0")
+        z_sun = to_value(self.z_sun, "pc", "z_sun")
+        v_sun = to_value(self.v_sun, KMS, "v_sun")
+        v_sun = tuple(float(v) for v in np.atleast_1d(v_sun))
+        roll = to_value(self.roll, "deg", "roll")
+        ra = to_value(self.galcen_ra, "deg", "galcen_ra")
+        dec = to_value(self.galcen_dec, "deg", "galcen_dec")
+        if len(v_sun) != 3:
+            raise FrameError(f"v_sun must have three components (vx, vy, vz) in km/s, got {len(v_sun)}")
+        values = {"R0 [kpc]": R0, "z_sun [pc]": z_sun, "roll [deg]": roll, "galcen_ra [deg]": ra,
+                  "galcen_dec [deg]": dec, "v_sun [km/s]": v_sun}
+        for name, value in values.items():
+            if not np.all(np.isfinite(value)):
+                raise FrameError(f"{name} must be finite, got {value}")
+        if not R0 > 0:
+            raise FrameError(f"R0 must be positive, got {R0} kpc")
+        if abs(z_sun) >= 1000.0 * R0:
+            raise FrameError(f"|z_sun| = {abs(z_sun)} pc must be smaller than R0 = {R0} kpc")
+        if not -90.0 <= dec <= 90.0:
+            raise FrameError(f"galcen_dec must lie in [-90, 90] deg, got {dec} deg")
+        for name, value in (("R0", R0), ("z_sun", z_sun), ("v_sun", v_sun), ("roll", roll),
+                            ("galcen_ra", ra), ("galcen_dec", dec)):
+            object.__setattr__(self, name, value)
+
+    # ----------------------------------------------------------------- construction
+    @classmethod
+    def from_lsr(cls, R0, z_sun, vc, U, V, W, **kwargs):
+        """Build a frame from the circular velocity at the Sun and the solar motion relative to the LSR.
+
+        Parameters
+        ----------
+        R0 : float or Quantity
+            Sun--centre distance, kpc.
+        z_sun : float or Quantity
+            Height above the mid-plane, pc.
+        vc : float or Quantity
+            Circular velocity of the local standard of rest, km/s.
+        U, V, W : float or Quantity
+            Solar motion relative to the LSR, km/s: U toward the centre, V in the direction of
+            rotation, W toward the north Galactic pole.
+        **kwargs
+            Passed to the constructor (``roll``, ``label``...).
+
+        Returns
+        -------
+        SolarFrame
+            With ``v_sun = (U, vc + V, W)``.
+        """
+        vc = to_value(vc, KMS, "vc")
+        U, V, W = (to_value(x, KMS, n) for x, n in ((U, "U"), (V, "V"), (W, "W")))
+        return cls(R0=R0, z_sun=z_sun, v_sun=(U, vc + V, W), **kwargs)
+
+    def lsr_motion(self, vc):
+        """Solar motion (U, V, W) relative to an LSR of circular velocity ``vc`` (km/s); inverse of from_lsr."""
+        vc = to_value(vc, KMS, "vc")
+        vx, vy, vz = self.v_sun
+        return (vx, vy - vc, vz)
+
+    @classmethod
+    def preset(cls, name):
+        """Return the frame of a published parameter set; :meth:`presets` lists the names.
+
+        Raises
+        ------
+        KeyError
+            With the list of known names, if ``name`` is not one of them.
+        """
+        try:
+            entry = _PRESETS[name]
+        except KeyError:
+            raise KeyError(f"unknown solar-frame preset {name!r}; known: {', '.join(_PRESETS)}") from None
+        return cls(**entry.params, label=entry.name)
+
+    @staticmethod
+    def presets():
+        """Dictionary of preset name -> :class:`Preset` (description, citation, parameters)."""
+        return dict(_PRESETS)
+
+    def replace(self, **changes):
+        """A new frame with some parameters changed (the preset label is cleared unless given)."""
+        changes.setdefault("label", "")
+        return dataclasses.replace(self, **changes)
+
+    # ----------------------------------------------------------------- astropy
+    def to_astropy(self):
+        """The equivalent :class:`astropy.coordinates.Galactocentric` frame."""
+        import astropy.units as u
+        from astropy.coordinates import ICRS, CartesianDifferential, Galactocentric
+
+        return Galactocentric(
+            galcen_coord=ICRS(ra=self.galcen_ra * u.deg, dec=self.galcen_dec * u.deg),
+            galcen_distance=self.R0 * u.kpc,
+            galcen_v_sun=CartesianDifferential(list(self.v_sun) * KMS),
+            z_sun=self.z_sun * u.pc,
+            roll=self.roll * u.deg,
+        )
+
+    @classmethod
+    def from_astropy(cls, galactocentric):
+        """Build a frame from an :class:`astropy.coordinates.Galactocentric` frame instance."""
+        g = galactocentric
+        v_sun = g.galcen_v_sun
+        v = (v_sun.d_xyz if hasattr(v_sun, "d_xyz") else v_sun.xyz).to_value(KMS)
+        coord = g.galcen_coord.transform_to("icrs") if g.galcen_coord.name != "icrs" else g.galcen_coord
+        return cls(
+            R0=g.galcen_distance, z_sun=g.z_sun, v_sun=tuple(v), roll=g.roll,
+            galcen_ra=coord.ra, galcen_dec=coord.dec,
+        )
+
+    # ----------------------------------------------------------------- serialisation
+    def to_dict(self):
+        """JSON-able dictionary of the parameters, with units in the keys."""
+        return {
+            "R0_kpc": self.R0,
+            "z_sun_pc": self.z_sun,
+            "v_sun_kms": list(self.v_sun),
+            "roll_deg": self.roll,
+            "galcen_ra_deg": self.galcen_ra,
+            "galcen_dec_deg": self.galcen_dec,
+            "label": self.label,
+        }
+
+    @classmethod
+    def from_dict(cls, data):
+        """Inverse of :meth:`to_dict`; unknown keys are an error (they are usually typos)."""
+        keys = {"R0_kpc": "R0", "z_sun_pc": "z_sun", "v_sun_kms": "v_sun", "roll_deg": "roll",
+                "galcen_ra_deg": "galcen_ra", "galcen_dec_deg": "galcen_dec", "label": "label"}
+        unknown = set(data) - set(keys)
+        if unknown:
+            raise FrameError(f"unknown solar-frame keys {sorted(unknown)}; expected {sorted(keys)}")
+        kwargs = {keys[k]: v for k, v in data.items()}
+        if "v_sun" in kwargs:
+            kwargs["v_sun"] = tuple(kwargs["v_sun"])
+        return cls(**kwargs)
+
+    # ----------------------------------------------------------------- geometry
+    def galactocentric_transform(self):
+        """Matrix and offset taking ICRS Cartesian positions (kpc) to Galactocentric ones.
+
+        Returns
+        -------
+        matrix : numpy.ndarray, shape (3, 3)
+            ``x_gc = matrix @ x_icrs + offset`` and ``v_gc = matrix @ v_icrs + v_sun``.
+        offset : numpy.ndarray, shape (3,)
+            The Sun's Galactocentric position, kpc.
+
+        Notes
+        -----
+        The same construction as :class:`astropy.coordinates.Galactocentric`: align x with the
+        direction of the centre, roll the z axis onto the Galactic pole, then tilt about y by
+        arcsin(z_sun / R0) and shift by R0.
+        """
+        ra, dec = math.radians(self.galcen_ra), math.radians(self.galcen_dec)
+        rotation = _rot(math.radians(_ROLL0_DEG - self.roll), "x") @ _rot(-dec, "y") @ _rot(ra, "z")
+        tilt = _rot(-math.asin(self.z_sun / (1000.0 * self.R0)), "y")
+        matrix = tilt @ rotation
+        offset = -tilt @ np.array([self.R0, 0.0, 0.0])
+        return matrix, offset
+
+    @property
+    def sun_position(self):
+        """The Sun's Galactocentric Cartesian position (x, y, z), kpc."""
+        return tuple(self.galactocentric_transform()[1])
+
+    def reflex_proper_motion(self):
+        """Proper motion of the Galactic centre implied by this frame, for comparison with Sgr A*.
+
+        Returns
+        -------
+        ReflexProperMotion
+            mu_l* and mu_b in mas/yr of a source at rest at the Galactocentric origin, seen from the Sun.
+
+        Notes
+        -----
+        Compare with the measured proper motion of Sgr A*: mu_l = -6.411 +/- 0.008, mu_b = -0.219 +/- 0.007
+        mas/yr (Reid & Brunthaler 2020, ApJ 892, 39).
+        """
+        matrix, offset = self.galactocentric_transform()
+        # The centre relative to the Sun, in ICRS then Galactic axes.
+        pos_icrs = matrix.T @ (-offset)
+        vel_icrs = matrix.T @ (-np.asarray(self.v_sun))
+        pos_gal = ICRS_TO_GALACTIC @ pos_icrs
+        vel_gal = ICRS_TO_GALACTIC @ vel_icrs
+        distance = float(np.linalg.norm(pos_gal))
+        lon = math.atan2(pos_gal[1], pos_gal[0])
+        lat = math.asin(pos_gal[2] / distance)
+        _, e_l, e_b = tangent_basis(np.array([lon]), np.array([lat]))
+        scale = K_KMS_PER_MASYR_KPC * distance
+        return ReflexProperMotion(
+            mu_l_star=float(e_l[:, 0] @ vel_gal) / scale, mu_b=float(e_b[:, 0] @ vel_gal) / scale
+        )
+
+    def describe(self):
+        """One-line human-readable summary, used in provenance lines."""
+        name = f"{self.label}: " if self.label else ""
+        vx, vy, vz = self.v_sun
+        return (f"{name}R0={self.R0:g} kpc, z_sun={self.z_sun:g} pc, "
+                f"v_sun=({vx:g}, {vy:g}, {vz:g}) km/s")
+
+
+def _sgr_a_star_azimuthal_velocity(R0_kpc):
+    """Solar azimuthal velocity implied by Sgr A*'s mu_l = -6.411 mas/yr (Reid & Brunthaler 2020)."""
+    return 6.411 * K_KMS_PER_MASYR_KPC * R0_kpc
+
+
+_PRESETS = {
+    p.name: p
+    for p in [
+        Preset(
+            name="astropy v4.0",
+            description="astropy's Galactocentric defaults since v4.0",
+            citation=("R0: GRAVITY Collaboration 2018, A&A 615, L15; v_sun: Drimmel & Poggio 2018, "
+                      "RNAAS 2, 210; z_sun: Bennett & Bovy 2019, MNRAS 482, 1417"),
+            params=dict(R0=8.122, z_sun=20.8, v_sun=(12.9, 245.6, 7.78)),
+        ),
+        Preset(
+            name="Schoenrich 2010 + GRAVITY 2019",
+            description=("solar motion (U, W) relative to the LSR from Schoenrich et al., R0 from GRAVITY 2019, "
+                         "azimuthal velocity from the Sgr A* proper motion"),
+            citation=("U, W: Schoenrich, Binney & Dehnen 2010, MNRAS 403, 1829; R0 = 8.178 kpc: GRAVITY "
+                      "Collaboration 2019, A&A 625, L10; v_y = k R0 |mu_l(Sgr A*)| with mu_l = -6.411 mas/yr: "
+                      "Reid & Brunthaler 2020, ApJ 892, 39; z_sun: Bennett & Bovy 2019, MNRAS 482, 1417"),
+            params=dict(R0=8.178, z_sun=20.8, v_sun=(11.1, _sgr_a_star_azimuthal_velocity(8.178), 7.25)),
+        ),
+        Preset(
+            name="astropy pre-v4.0",
+            description="astropy's Galactocentric defaults before v4.0",
+            citation=("R0: Gillessen et al. 2009, ApJ 692, 1075; v_sun: Schoenrich, Binney & Dehnen 2010 "
+                      "with vc = 220 km/s (Bovy et al. 2012, ApJ 759, 131); z_sun: Chen et al. 2001, ApJ 553, 184"),
+            params=dict(R0=8.3, z_sun=27.0, v_sun=(11.1, 232.24, 7.25)),
+        ),
+    ]
+}
