@@ -1,0 +1,698 @@
+"""Read and check star catalogues.
+
+:func:`read_catalog` takes a file (CSV, ECSV, FITS, VOTable, Parquet), an astropy ``Table``/``QTable``
+or a pandas ``DataFrame`` and returns a ``QTable`` with standard column names and units, checked for
+values that cannot be right. Everything downstream in mwkin (kinematics, orbits, the Oort fit) reads
+only these standard columns.
+
+Standard columns
+----------------
+The standard names are those of the Gaia archive (``gaia_source``). Columns without a unit are taken
+to be in the default unit listed here; columns with a unit are converted to it.
+
+=========================  ==========  ===========================================================
+name                       unit        meaning
+=========================  ==========  ===========================================================
+``source_id``              --          identifier, optional, kept as it is
+``ra``, ``dec``            deg         ICRS position
+``parallax``               mas         trigonometric parallax (may be zero or negative)
+``pmra``                   mas/yr      mu_alpha* = mu_alpha cos(dec), as in Gaia
+``pmdec``                  mas/yr      mu_delta
+``radial_velocity``        km/s        heliocentric line-of-sight velocity, optional
+``distance``               kpc         heliocentric distance, instead of or besides ``parallax``
+``ra_error``               mas         uncertainty of ra cos(dec) (Gaia convention)
+``dec_error``              mas
+``parallax_error``         mas
+``pmra_error``             mas/yr
+``pmdec_error``            mas/yr
+``radial_velocity_error``  km/s
+``distance_error``         kpc
+``<a>_<b>_corr``           --          the ten Gaia correlation coefficients, see CORRELATION_COLUMNS
+=========================  ==========  ===========================================================
+
+Other spellings
+---------------
+Column names are matched case-insensitively (and ignoring surrounding blanks) against the standard
+names and against :data:`COLUMN_ALIASES`, listed below. ``read_catalog(..., aliases={"my_plx":
+"parallax"})`` adds spellings of your own. A few spellings state a unit in the name (for example
+``distance_pc``); see :data:`ALIAS_UNITS`.
+"""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Mapping
+
+import numpy as np
+import astropy.units as u
+from astropy.table import QTable, Table
+from astropy.utils.masked import Masked
+
+__all__ = [
+    "CatalogError",
+    "read_catalog",
+    "STANDARD_UNITS",
+    "CORRELATION_COLUMNS",
+    "ERROR_COLUMNS",
+    "VALUE_COLUMNS",
+    "REQUIRED_COLUMNS",
+    "COLUMN_ALIASES",
+    "ALIAS_UNITS",
+]
+
+
+class CatalogError(ValueError):
+    """A star table that cannot be used as it is.
+
+    Raised by :func:`read_catalog` for every problem it finds: a file it cannot read, missing or
+    doubly given columns, units that do not fit, and values out of range. The message names the
+    column, the rows and the unit at fault.
+    """
+
+
+VALUE_COLUMNS = ("ra", "dec", "parallax", "pmra", "pmdec", "radial_velocity", "distance")
+"""The measured quantities, in the order used throughout mwkin."""
+
+ERROR_COLUMNS = tuple(f"{name}_error" for name in VALUE_COLUMNS)
+"""Uncertainty (one standard deviation) of each of :data:`VALUE_COLUMNS`, in the same order."""
+
+CORRELATION_COLUMNS = (
+    "ra_dec_corr",
+    "ra_parallax_corr",
+    "ra_pmra_corr",
+    "ra_pmdec_corr",
+    "dec_parallax_corr",
+    "dec_pmra_corr",
+    "dec_pmdec_corr",
+    "parallax_pmra_corr",
+    "parallax_pmdec_corr",
+    "pmra_pmdec_corr",
+)
+"""The ten correlation coefficients of the five-parameter astrometric solution, in Gaia order."""
+
+REQUIRED_COLUMNS = ("ra", "dec", "pmra", "pmdec")
+"""Columns every catalogue needs; it also needs ``parallax`` or ``distance``."""
+
+_KMS = u.km / u.s
+_MASYR = u.mas / u.yr
+
+STANDARD_UNITS = {
+    "ra": u.deg,
+    "dec": u.deg,
+    "parallax": u.mas,
+    "pmra": _MASYR,
+    "pmdec": _MASYR,
+    "radial_velocity": _KMS,
+    "distance": u.kpc,
+    "ra_error": u.mas,
+    "dec_error": u.mas,
+    "parallax_error": u.mas,
+    "pmra_error": _MASYR,
+    "pmdec_error": _MASYR,
+    "radial_velocity_error": _KMS,
+    "distance_error": u.kpc,
+    **{name: u.dimensionless_unscaled for name in CORRELATION_COLUMNS},
+}
+"""Standard numeric column name -> the unit :func:`read_catalog` returns it in (and assumes for
+columns that carry no unit)."""
+
+_STANDARD_NAMES = ("source_id",) + tuple(STANDARD_UNITS)
+
+# Other spellings -> standard name. Matching is case-insensitive, so "PLX" and "plx" are both covered
+# by the entry "Plx"; entries differing only in case are listed once. Spellings that include a unit
+# different from the default are in ALIAS_UNITS as well.
+COLUMN_ALIASES = {
+    # identifier
+    "Source": "source_id",
+    "sourceid": "source_id",
+    "gaia_source_id": "source_id",
+    # position
+    "RAdeg": "ra",
+    "ra_deg": "ra",
+    "RA_ICRS": "ra",
+    "alpha": "ra",
+    "right_ascension": "ra",
+    "DE": "dec",
+    "DEdeg": "dec",
+    "dec_deg": "dec",
+    "DE_ICRS": "dec",
+    "delta": "dec",
+    "declination": "dec",
+    # parallax and distance
+    "Plx": "parallax",
+    "parallax_mas": "parallax",
+    "varpi": "parallax",
+    "dist": "distance",
+    "d": "distance",
+    "distance_kpc": "distance",
+    "dist_kpc": "distance",
+    "d_kpc": "distance",
+    "distance_pc": "distance",
+    "dist_pc": "distance",
+    "d_pc": "distance",
+    # proper motions (mu_alpha* = mu_alpha cos dec in every case)
+    "pmRA": "pmra",
+    "pm_ra": "pmra",
+    "pmra_cosdec": "pmra",
+    "pm_ra_cosdec": "pmra",
+    "mu_alpha_star": "pmra",
+    "mu_ra": "pmra",
+    "pmDE": "pmdec",
+    "pm_dec": "pmdec",
+    "mu_delta": "pmdec",
+    "mu_dec": "pmdec",
+    # radial velocity
+    "RV": "radial_velocity",
+    "vrad": "radial_velocity",
+    "v_rad": "radial_velocity",
+    "v_r": "radial_velocity",
+    "vr": "radial_velocity",
+    "HRV": "radial_velocity",
+    "vlos": "radial_velocity",
+    "v_los": "radial_velocity",
+    "radial_velocity_kms": "radial_velocity",
+    "rv_kms": "radial_velocity",
+    # uncertainties
+    "e_RA_ICRS": "ra_error",
+    "e_ra": "ra_error",
+    "ra_err": "ra_error",
+    "e_DE_ICRS": "dec_error",
+    "e_de": "dec_error",
+    "e_dec": "dec_error",
+    "dec_err": "dec_error",
+    "e_Plx": "parallax_error",
+    "plx_error": "parallax_error",
+    "plx_err": "parallax_error",
+    "parallax_err": "parallax_error",
+    "e_parallax": "parallax_error",
+    "sigma_parallax": "parallax_error",
+    "e_pmRA": "pmra_error",
+    "pmra_err": "pmra_error",
+    "e_pm_ra": "pmra_error",
+    "pm_ra_error": "pmra_error",
+    "e_pmDE": "pmdec_error",
+    "pmdec_err": "pmdec_error",
+    "e_pm_dec": "pmdec_error",
+    "pm_dec_error": "pmdec_error",
+    "e_RV": "radial_velocity_error",
+    "rv_error": "radial_velocity_error",
+    "rv_err": "radial_velocity_error",
+    "e_vrad": "radial_velocity_error",
+    "vrad_error": "radial_velocity_error",
+    "e_HRV": "radial_velocity_error",
+    "radial_velocity_err": "radial_velocity_error",
+    "e_dist": "distance_error",
+    "e_distance": "distance_error",
+    "dist_error": "distance_error",
+    "dist_err": "distance_error",
+    "distance_err": "distance_error",
+    "distance_error_kpc": "distance_error",
+    "dist_error_kpc": "distance_error",
+    "distance_error_pc": "distance_error",
+    "dist_error_pc": "distance_error",
+    # correlations, as abbreviated in some catalogue services
+    "RADEcor": "ra_dec_corr",
+    "RAPlxcor": "ra_parallax_corr",
+    "RApmRAcor": "ra_pmra_corr",
+    "RApmDEcor": "ra_pmdec_corr",
+    "DEPlxcor": "dec_parallax_corr",
+    "DEpmRAcor": "dec_pmra_corr",
+    "DEpmDEcor": "dec_pmdec_corr",
+    "PlxpmRAcor": "parallax_pmra_corr",
+    "PlxpmDEcor": "parallax_pmdec_corr",
+    "pmRApmDEcor": "pmra_pmdec_corr",
+}
+"""Other spelling -> standard column name (matched case-insensitively)."""
+
+ALIAS_UNITS = {
+    "distance_pc": u.pc,
+    "dist_pc": u.pc,
+    "d_pc": u.pc,
+    "distance_error_pc": u.pc,
+    "dist_error_pc": u.pc,
+}
+"""Spellings whose name states a unit other than the default; a column with such a name and no unit
+of its own is read in this unit."""
+
+# Short format names accepted by ``format=`` and the file suffixes that imply them.
+_FORMATS = {
+    "csv": "ascii.csv",
+    "ecsv": "ascii.ecsv",
+    "fits": "fits",
+    "votable": "votable",
+    "parquet": "parquet",
+}
+_SUFFIXES = {
+    ".csv": "csv",
+    ".ecsv": "ecsv",
+    ".fits": "fits",
+    ".fit": "fits",
+    ".fts": "fits",
+    ".vot": "votable",
+    ".votable": "votable",
+    ".xml": "votable",
+    ".parquet": "parquet",
+    ".pq": "parquet",
+}
+_COMPRESSION_SUFFIXES = (".gz", ".bz2", ".xz")
+
+_N_SHOWN = 5  # offending rows quoted in an error message
+
+
+def _alias_lookup(aliases):
+    """Lower-cased spelling -> standard name (or None for "leave this column alone")."""
+    lookup = {name: name for name in _STANDARD_NAMES}
+    lookup.update({alias.lower(): std for alias, std in COLUMN_ALIASES.items()})
+    for alias, std in (aliases or {}).items():
+        if std is not None and std not in _STANDARD_NAMES:
+            raise CatalogError(
+                f"aliases: {alias!r} is mapped to {std!r}, which is not a standard column name; "
+                f"standard names are: {', '.join(_STANDARD_NAMES)}"
+            )
+        lookup[str(alias).strip().lower()] = std
+    return lookup
+
+
+def _spellings(std):
+    """Known spellings of a standard column, for hints in error messages."""
+    return [std] + [alias for alias, target in COLUMN_ALIASES.items() if target == std]
+
+
+def _describe_rows(rows, values, unit):
+    """'rows 3, 7 (values 91 deg, -95 deg)', with the first few rows and the total count."""
+    shown = rows[:_N_SHOWN]
+    unit_text = unit.to_string()
+    vals = ", ".join(f"{values[i]:.10g}{' ' + unit_text if unit_text else ''}" for i in shown)
+    text = f"row{'s' if len(rows) > 1 else ''} {', '.join(str(i) for i in shown)}"
+    if len(rows) > _N_SHOWN:
+        text += f", ... ({len(rows)} rows in all)"
+    return f"{text} (values {vals}{', ...' if len(rows) > _N_SHOWN else ''})"
+
+
+def _column_label(std, original):
+    return f"column {std!r}" if original == std else f"column {std!r} (input column {original!r})"
+
+
+def _text_rows(data):
+    """Row numbers of entries that do not read as numbers; only used to build an error message."""
+    bad = []
+    for i, value in enumerate(data.tolist()):
+        try:
+            float(value)
+        except (TypeError, ValueError):
+            bad.append(i)
+    return bad
+
+
+def _as_float(col, label, owned):
+    """Return (float64 values we may modify, unit or None), or (None, problem text).
+
+    Masked entries become NaN. The values are a fresh copy unless ``owned`` (the table was read from
+    a file by us) and the column already is unmasked float64.
+    """
+    unit = getattr(col, "unit", None)
+    mask = None
+    if isinstance(col, Masked):
+        mask = np.asarray(col.mask)
+        col = col.unmasked
+    elif isinstance(col, np.ma.MaskedArray):
+        mask = np.ma.getmaskarray(col)
+    data = np.asarray(col.value if isinstance(col, u.Quantity) else np.ma.getdata(col))
+    if mask is not None and not mask.any():
+        mask = None
+
+    if data.ndim != 1:
+        return None, f"{label} must hold one number per row, found shape {data.shape}"
+    kind = data.dtype.kind
+    if kind not in "iufOUS":
+        return None, f"{label} is not numeric: it has data type {data.dtype}"
+    values = None
+    if kind in "iufO":
+        try:
+            # One copy for in-memory input, so that editing the result never edits the input.
+            values = np.array(data, dtype=np.float64, copy=True if not owned else None)
+        except (TypeError, ValueError):
+            pass
+    if values is None:  # text, or objects that are not all numbers
+        rows = [i for i in _text_rows(data) if mask is None or not mask[i]]
+        if rows:
+            shown = ", ".join(f"{i} ({data[i]!r})" for i in rows[:_N_SHOWN])
+            more = f", ... ({len(rows)} rows in all)" if len(rows) > _N_SHOWN else ""
+            return None, f"{label} is not numeric: rows {shown}{more} are not numbers"
+        return None, f"{label} is not numeric: it holds text ({data.dtype}); convert it to numbers first"
+    if mask is not None:
+        values[mask] = np.nan
+    return values, unit
+
+
+def _resolve_unit(std, original, unit, stated, label):
+    """Unit the column's numbers are in: its own, else the one stated by the user, the name, or default."""
+    if isinstance(unit, u.UnrecognizedUnit):
+        return None, f"{label} has unit {unit.to_string()!r}, which astropy does not recognise"
+    if unit is not None and unit == u.dimensionless_unscaled:
+        unit = None  # an empty unit string means "not stated"
+    if unit is None:
+        return stated or ALIAS_UNITS.get(original.strip().lower()) or STANDARD_UNITS[std], None
+    if stated is not None and not (unit.is_equivalent(stated) and unit.to(stated) == 1.0):
+        return None, (
+            f"{label} carries the unit {unit.to_string()!r} but units= says {stated.to_string()!r}; "
+            f"units= is only for columns without a unit"
+        )
+    return unit, None
+
+
+def _range_problems(std, values, label, unit):
+    """Checks of the values themselves (NaN always passes)."""
+    checks = [(np.isinf(values), "infinite values at")]
+    if std == "dec":
+        checks.append(((values < -90.0) | (values > 90.0), "values outside [-90, 90] deg at"))
+    elif std in ERROR_COLUMNS:
+        checks.append((values < 0.0, "negative uncertainties at"))
+    elif std in CORRELATION_COLUMNS:
+        checks.append(((values < -1.0) | (values > 1.0), "correlations outside [-1, 1] at"))
+    elif std == "distance":
+        checks.append((values <= 0.0, "distances that are not positive at"))
+    problems = []
+    for bad, what in checks:
+        if bad.any():
+            rows = np.flatnonzero(bad)
+            problems.append(f"{label}: {what} {_describe_rows(rows, values, unit)}")
+    return problems
+
+
+def _wrap_ra(values):
+    """Wrap right ascension into [0, 360) deg in place; return how many values moved."""
+    out = (values < 0.0) | (values >= 360.0)
+    n = int(np.count_nonzero(out))
+    if n:
+        wrapped = np.mod(values[out], 360.0)
+        wrapped[wrapped == 360.0] = 0.0  # np.mod(-1e-20, 360) rounds to 360
+        values[out] = wrapped
+    return n
+
+
+def _load(source, format):
+    """Return (table, description, owned, format used or None)."""
+    if isinstance(source, Table):
+        return source, "astropy Table", False, None
+    if type(source).__module__.split(".")[0] == "pandas" and hasattr(source, "columns"):
+        index = getattr(source.index, "name", None) is not None and source.index.name not in source.columns
+        try:
+            table = Table.from_pandas(source, index=index)
+        except Exception as exc:
+            raise CatalogError(f"could not convert the pandas DataFrame to a table: {exc}") from exc
+        return table, "pandas DataFrame", False, None
+    if isinstance(source, (str, os.PathLike)):
+        path = os.fspath(source)
+        if not os.path.exists(path):
+            raise CatalogError(f"file not found: {path}")
+        fmt = format or _format_from_suffix(path)
+        astropy_format = _FORMATS.get(fmt, fmt)
+        if astropy_format == "ascii.csv" and _looks_like_ecsv(path):
+            astropy_format = "ascii.ecsv"
+        return _read_file(path, astropy_format, path), path, True, astropy_format
+    if hasattr(source, "read"):
+        if format is None:
+            raise CatalogError("a file object needs format= (one of: " + ", ".join(_FORMATS) + ")")
+        return _read_file(source, _FORMATS.get(format, format), "file object"), "file object", True, format
+    raise CatalogError(
+        f"cannot read a catalogue from a {type(source).__name__}; give a file path, an astropy Table "
+        f"or QTable, or a pandas DataFrame"
+    )
+
+
+def _read_file(source, astropy_format, description):
+    try:
+        return Table.read(source, format=astropy_format)
+    except Exception as exc:
+        raise CatalogError(f"could not read {description} as {astropy_format}: {exc}") from exc
+
+
+def _format_from_suffix(path):
+    name = path.lower()
+    for suffix in _COMPRESSION_SUFFIXES:
+        if name.endswith(suffix):
+            name = name[: -len(suffix)]
+    ext = os.path.splitext(name)[1]
+    if ext not in _SUFFIXES:
+        raise CatalogError(
+            f"cannot tell the format of {path!r} from its suffix {ext!r}; known suffixes: "
+            f"{', '.join(_SUFFIXES)}; or pass format= (one of {', '.join(_FORMATS)}, or any astropy format)"
+        )
+    return _SUFFIXES[ext]
+
+
+def _looks_like_ecsv(path):
+    """Gaia archive 'CSV' downloads may really be ECSV, which keeps the units."""
+    from astropy.utils.data import get_readable_fileobj
+
+    try:
+        with get_readable_fileobj(path, encoding="utf-8") as fh:
+            return fh.readline().startswith("# %ECSV")
+    except (OSError, UnicodeDecodeError):
+        return False
+
+
+def read_catalog(source, *, format=None, aliases=None, units=None):
+    """Read a star catalogue into a table with standard columns, units and checks.
+
+    Parameters
+    ----------
+    source : str, path-like, `~astropy.table.Table`, `~astropy.table.QTable` or pandas.DataFrame
+        A file (CSV, ECSV, FITS, VOTable or Parquet, told apart by the suffix; ``.gz``, ``.bz2`` and
+        ``.xz`` compression is allowed where astropy reads it) or a table in memory. An open file
+        object needs ``format``.
+    format : str, optional
+        Overrides the suffix: ``"csv"``, ``"ecsv"``, ``"fits"``, ``"votable"``, ``"parquet"``, or any
+        format name `astropy.table.Table.read` understands.
+    aliases : dict, optional
+        ``{your_column_name: standard_name}`` spellings added to :data:`COLUMN_ALIASES` (and taking
+        precedence over it). Map a column to ``None`` to keep it out of the standard columns, e.g.
+        when a table has two right ascension columns.
+    units : dict, optional
+        ``{column: unit}`` (standard or input name; unit as a string or astropy unit) for columns that
+        carry no unit, e.g. ``{"parallax": "arcsec"}``.
+
+    Returns
+    -------
+    `~astropy.table.QTable`
+        Same rows in the same order as the input. Standard columns are renamed, converted to float64
+        and :data:`STANDARD_UNITS` (correlations as dimensionless Quantities); other columns are
+        passed through unchanged. Added: ``radial_velocity`` (all NaN) if the input had none, and a
+        boolean ``has_nan`` column. ``meta`` keeps the input's metadata plus
+
+        - ``mwkin_source``: the path, ``"astropy Table"``, ``"pandas DataFrame"`` or ``"file object"``;
+        - ``renamed``: ``{input name: standard name}`` for every column that was renamed;
+        - ``nan_counts``: ``{standard column: number of NaN values}``;
+        - ``nan_flag_columns``: the columns ``has_nan`` looks at;
+        - ``distance_column``: ``"distance"`` if the input has one, else ``"parallax"``;
+        - ``filled_with_nan``: the columns added filled with NaN (``["radial_velocity"]`` or ``[]``);
+        - ``ra_wrapped``: how many right ascensions were wrapped into [0, 360) deg.
+
+    Raises
+    ------
+    CatalogError
+        If the file cannot be read; a required column is missing; two input columns give the same
+        standard column; a column is not numeric; a unit is unknown or cannot be converted to the
+        standard unit; or any value is out of range: ``dec`` outside [-90, 90] deg, an uncertainty
+        below zero, a correlation outside [-1, 1], a ``distance`` of zero or less, or an infinite
+        value. Problems with values are collected and reported together, each with the column, the
+        first few offending rows (0-based positions), their count and the values in standard units.
+
+    Notes
+    -----
+    - Required: ``ra``, ``dec``, ``pmra``, ``pmdec`` and ``parallax`` or ``distance``. Optional
+      uncertainty and correlation columns are kept when present and never made up.
+    - ``pmra`` is always mu_alpha* = mu_alpha cos(dec) (Gaia convention), whatever its input name; a
+      column of mu_alpha without the cos(dec) factor must be converted first. ``ra_error`` is the
+      uncertainty of ra cos(dec), in mas.
+    - Units: a column that carries a unit (ECSV, FITS, VOTable, Parquet written by astropy, a
+      ``QTable`` Quantity) is converted to the standard unit; an empty unit counts as none. A column
+      without one is taken in the unit given by ``units``, else the unit its name states
+      (:data:`ALIAS_UNITS`, e.g. ``distance_pc``), else the standard unit. CSV files and DataFrames
+      carry no units.
+    - Any finite ``ra`` is accepted and wrapped into [0, 360) deg. Parallaxes may be zero or negative
+      (as measured); distances may not.
+    - NaN (and masked or empty entries, which become NaN) are allowed and never dropped. ``has_nan``
+      is True where any of ``ra``, ``dec``, ``pmra``, ``pmdec``, the distance column (``distance``
+      when present, else ``parallax``) or -- only if the input had one -- ``radial_velocity`` is NaN.
+      An input ``has_nan`` column is replaced.
+    - Standard columns are copied once (so editing the result never changes the input); the other
+      columns of an in-memory input share its data.
+
+    Examples
+    --------
+    >>> from astropy.table import Table
+    >>> t = Table({"RA_ICRS": [10.0, -30.0], "DE_ICRS": [5.0, -60.0], "Plx": [2.0, 0.5],
+    ...            "pmRA": [1.0, -3.0], "pmDE": [0.5, 2.0]})
+    >>> stars = read_catalog(t)
+    >>> stars["ra"]
+    <Quantity [ 10., 330.] deg>
+    >>> stars.meta["renamed"]["Plx"], stars["parallax"].unit
+    ('parallax', Unit("mas"))
+    >>> stars.meta["filled_with_nan"], bool(stars["has_nan"].any())
+    (['radial_velocity'], False)
+    """
+    table, description, owned, used_format = _load(source, format)
+    lookup = _alias_lookup(aliases)
+
+    # Which input column is which standard column.
+    lowered = {name.strip().lower(): name for name in table.colnames}
+    for alias in aliases or {}:
+        if str(alias).strip().lower() not in lowered:
+            raise CatalogError(
+                f"aliases: there is no column {alias!r}; columns found: {', '.join(table.colnames)}"
+            )
+    found = {}
+    for name in table.colnames:
+        std = lookup.get(name.strip().lower())
+        if std is not None:
+            found.setdefault(std, []).append(name)
+    clashes = {std: names for std, names in found.items() if len(names) > 1}
+    if clashes:
+        raise CatalogError(
+            "; ".join(
+                f"columns {' and '.join(repr(n) for n in names)} all give the standard column {std!r}"
+                for std, names in clashes.items()
+            )
+            + ". Keep one: rename or drop the others, or pass aliases={name: None} for the ones to ignore"
+        )
+    original_of = {std: names[0] for std, names in found.items()}
+    standard_of = {orig: std for std, orig in original_of.items()}
+
+    missing = [name for name in REQUIRED_COLUMNS if name not in original_of]
+    if "parallax" not in original_of and "distance" not in original_of:
+        missing.append("parallax or distance")
+    if missing:
+        hints = "; ".join(
+            f"{m}: {', '.join(sum((_spellings(part) for part in m.split(' or ')), []))}" for m in missing
+        )
+        raise CatalogError(
+            f"missing required column(s): {', '.join(missing)}. Columns found: "
+            f"{', '.join(table.colnames) or '(none)'}. Names recognised (any case): {hints}. "
+            f"Pass aliases={{'your_column': 'standard_name'}} for other names"
+        )
+
+    stated_units = {}
+    for key, unit in (units or {}).items():
+        std = key if key in STANDARD_UNITS else standard_of.get(key)
+        if std is None or std not in original_of:
+            raise CatalogError(
+                f"units: {key!r} is not a numeric standard column of this table; its standard "
+                f"columns are: {', '.join(s for s in original_of if s in STANDARD_UNITS)}"
+            )
+        try:
+            stated_units[std] = u.Unit(unit)
+        except (ValueError, TypeError) as exc:
+            raise CatalogError(f"units: {unit!r} given for {key!r} is not a unit: {exc}") from None
+
+    # Convert and check every standard numeric column; collect all problems before raising.
+    problems = []
+    converted = {}
+    ra_wrapped = 0
+    for std, original in original_of.items():
+        if std == "source_id":
+            continue
+        label = _column_label(std, original)
+        values, unit = _as_float(table[original], label, owned)
+        if values is None:
+            problems.append(unit)
+            continue
+        unit, problem = _resolve_unit(std, original, unit, stated_units.get(std), label)
+        if problem:
+            problems.append(problem)
+            continue
+        target = STANDARD_UNITS[std]
+        try:
+            scale = unit.to(target)
+        except u.UnitConversionError:
+            problems.append(
+                f"{label} has unit {unit.to_string()!r}, which cannot be converted to the expected "
+                f"unit {target.to_string() or 'dimensionless'!r}"
+            )
+            continue
+        if scale != 1.0:
+            values *= scale
+        if std == "ra":
+            ra_wrapped = _wrap_ra(values)
+        problems.extend(_range_problems(std, values, label, target))
+        converted[std] = values
+    if problems:
+        raise CatalogError(
+            f"{len(problems)} problem{'s' if len(problems) > 1 else ''} in the catalogue:\n  - "
+            + "\n  - ".join(problems)
+        )
+
+    n_rows = len(table)
+    filled = []
+    if "radial_velocity" not in converted:
+        converted["radial_velocity"] = np.full(n_rows, np.nan)
+        filled.append("radial_velocity")
+    distance_column = "distance" if "distance" in converted else "parallax"
+    flag_columns = [*REQUIRED_COLUMNS, distance_column] + (
+        [] if filled else ["radial_velocity"]
+    )
+    nan_counts = {}
+    has_nan = np.zeros(n_rows, dtype=bool)
+    for std, values in converted.items():
+        isnan = np.isnan(values)
+        nan_counts[std] = int(np.count_nonzero(isnan))
+        if std in flag_columns:
+            has_nan |= isnan
+
+    names, columns = [], []
+    for name in table.colnames:
+        std = standard_of.get(name)
+        if name == "has_nan":
+            continue
+        if std in converted:
+            names.append(std)
+            columns.append(u.Quantity(converted[std], STANDARD_UNITS[std], copy=False))
+        else:
+            if std is None and name in original_of:
+                raise CatalogError(
+                    f"column {name!r} is left alone (aliases maps it to None) but another column "
+                    f"becomes the standard column of that name; rename {name!r} first"
+                )
+            names.append(std or name)
+            columns.append(table[name])
+    for std in filled:
+        names.append(std)
+        columns.append(u.Quantity(converted[std], STANDARD_UNITS[std], copy=False))
+    names.append("has_nan")
+    columns.append(has_nan)
+
+    meta = dict(table.meta)
+    meta.update(
+        mwkin_source=description,
+        renamed={orig: std for std, orig in original_of.items() if orig != std},
+        nan_counts=nan_counts,
+        nan_flag_columns=flag_columns,
+        distance_column=distance_column,
+        filled_with_nan=filled,
+        ra_wrapped=ra_wrapped,
+    )
+    if used_format is not None:
+        meta["mwkin_format"] = used_format
+    out = QTable(columns, names=names, meta=meta, copy=False)
+    out["has_nan"].description = "True where a value needed for the kinematics is NaN"
+    return out
+
+
+def _alias_doc_table():
+    """The alias list, for the module docstring (built from the dict so the two never drift)."""
+    by_target = {}
+    for alias, std in COLUMN_ALIASES.items():
+        by_target.setdefault(std, []).append(alias)
+    rows = [(f"``{std}``", ", ".join(f"``{a}``" for a in spellings)) for std, spellings in by_target.items()]
+    left = max(len(r[0]) for r in rows)
+    right = max(len(r[1]) for r in rows)
+    rule = f"{'=' * left}  {'=' * right}"
+    lines = [rule, f"{'standard name':<{left}}  other spellings", rule]
+    lines += [f"{a:<{left}}  {b}" for a, b in rows]
+    lines.append(rule)
+    return "\n".join(lines)
+
+
+if __doc__ is not None:  # python -OO strips docstrings
+    __doc__ += "\n" + _alias_doc_table() + "\n"

@@ -1,0 +1,132 @@
+"""Coalesced background computation for live widgets.
+
+Slider moves arrive faster than some computations finish. :class:`LiveRunner` runs the computation on one
+worker thread, always on the newest request: requests that arrive while it is busy replace each other,
+and a result is delivered only if no newer request was made in the meantime, so a stale result never
+overwrites a newer one. Errors are handed to a callback (the widget's status line) instead of vanishing
+into the kernel log.
+"""
+
+from __future__ import annotations
+
+import threading
+import time
+import traceback
+
+__all__ = ["LiveRunner"]
+
+
+class LiveRunner:
+    """Run ``compute(request)`` off the kernel's main thread, newest request wins.
+
+    Parameters
+    ----------
+    compute : callable
+        ``compute(request) -> result``; runs on the worker thread.
+    on_result : callable
+        ``on_result(result, request, seconds)``; called only for the newest request.
+    on_error : callable
+        ``on_error(exception, request)``; called only for the newest request.
+    on_busy : callable, optional
+        ``on_busy(bool)`` when the runner starts or stops having work.
+    threaded : bool, optional
+        False runs everything synchronously in :meth:`submit` (scripts and debugging).
+    """
+
+    def __init__(self, compute, on_result, on_error, on_busy=None, threaded=True):
+        self._compute = compute
+        self._on_result = on_result
+        self._on_error = on_error
+        self._on_busy = on_busy or (lambda busy: None)
+        self._threaded = threaded
+        self._lock = threading.Condition()
+        self._pending = None
+        self._generation = 0
+        self._delivered = 0
+        self._thread = None
+        self.last_seconds = None
+
+    @property
+    def generation(self):
+        """Number of requests submitted so far."""
+        return self._generation
+
+    def submit(self, request):
+        """Queue ``request``, replacing any request that has not started yet; returns its generation."""
+        with self._lock:
+            self._generation += 1
+            generation = self._generation
+            self._pending = (generation, request)
+            if not self._threaded:
+                pass
+            elif self._thread is None or not self._thread.is_alive():
+                self._thread = threading.Thread(target=self._work, name="mwkin-live", daemon=True)
+                self._thread.start()
+            else:
+                self._lock.notify_all()
+        if not self._threaded:
+            self._on_busy(True)
+            try:
+                self._run_one()
+            finally:
+                self._on_busy(False)
+        return generation
+
+    def _run_one(self):
+        with self._lock:
+            if self._pending is None:
+                return False
+            generation, request = self._pending
+            self._pending = None
+        start = time.perf_counter()
+        try:
+            result = self._compute(request)
+            error = None
+        except Exception as exc:  # noqa: BLE001 - every failure must reach the status line
+            result, error = None, exc
+            error.__mwkin_traceback__ = traceback.format_exc()
+        seconds = time.perf_counter() - start
+        with self._lock:
+            newest = generation == self._generation
+        if newest:
+            self.last_seconds = seconds
+            try:
+                if error is None:
+                    self._on_result(result, request, seconds)
+                else:
+                    self._on_error(error, request)
+            except Exception as exc:  # noqa: BLE001
+                try:
+                    self._on_error(exc, request)
+                except Exception:  # noqa: BLE001
+                    traceback.print_exc()
+        with self._lock:
+            self._delivered = max(self._delivered, generation)
+            self._lock.notify_all()
+        return True
+
+    def _work(self):
+        while True:
+            with self._lock:
+                if self._pending is None:
+                    self._lock.wait(timeout=5.0)
+                    if self._pending is None:
+                        self._thread = None
+                        return
+            self._on_busy(True)
+            try:
+                while self._run_one():
+                    pass
+            finally:
+                self._on_busy(False)
+
+    def wait(self, timeout=30.0):
+        """Block until every submitted request has been processed; returns False on timeout."""
+        deadline = time.monotonic() + timeout
+        with self._lock:
+            while self._delivered < self._generation:
+                remaining = deadline - time.monotonic()
+                if remaining <= 0:
+                    return False
+                self._lock.wait(timeout=min(remaining, 0.1))
+        return True

@@ -1,0 +1,180 @@
+"""Shared state: one solar frame and one potential that several widgets observe.
+
+Controls write to these objects and analysis widgets observe them; no widget reaches into another. Each
+state holds one representation only (the frame as R0, z_sun and Cartesian v_sun; the potential as a
+preset name or a three-component parameter set) and converts to and from the core objects.
+"""
+
+from __future__ import annotations
+
+import copy
+import json
+
+import traitlets
+
+from ..frames import FrameError, SolarFrame
+
+__all__ = ["FrameState", "PotentialState", "DEFAULT_FRAME_PRESET", "DEFAULT_POTENTIAL_PRESET"]
+
+DEFAULT_FRAME_PRESET = "astropy v4.0"
+DEFAULT_POTENTIAL_PRESET = "MWPotential2014"
+
+
+class FrameState(traitlets.HasTraits):
+    """The solar frame shared by widgets.
+
+    Traits
+    ------
+    R0 : float
+        Sun--centre distance, kpc.
+    z_sun : float
+        Height of the Sun above the mid-plane, pc.
+    v_sun : tuple of 3 floats
+        Solar velocity in astropy's Galactocentric Cartesian axes, km/s.
+    preset : str
+        Name of the preset the values came from, or "" once edited.
+    """
+
+    R0 = traitlets.Float(8.122, help="Sun-centre distance, kpc")
+    z_sun = traitlets.Float(20.8, help="height of the Sun above the Galactic mid-plane, pc")
+    v_sun = traitlets.Tuple(traitlets.Float(), traitlets.Float(), traitlets.Float(),
+                            default_value=(12.9, 245.6, 7.78),
+                            help="solar velocity (vx, vy, vz) in Galactocentric Cartesian axes, km/s")
+    preset = traitlets.Unicode(DEFAULT_FRAME_PRESET, help="preset name, or '' once a value was edited")
+
+    def __init__(self, frame=None, **kwargs):
+        super().__init__(**kwargs)
+        self._applying = False
+        self.set_frame(frame if frame is not None else SolarFrame.preset(DEFAULT_FRAME_PRESET))
+
+    @traitlets.validate("R0")
+    def _check_R0(self, proposal):
+        if not proposal["value"] > 0:
+            raise traitlets.TraitError(f"R0 must be positive, got {proposal['value']} kpc")
+        return proposal["value"]
+
+    @traitlets.validate("z_sun")
+    def _check_z_sun(self, proposal):
+        if abs(proposal["value"]) >= 1000.0 * self.R0:
+            raise traitlets.TraitError(f"|z_sun| = {abs(proposal['value'])} pc must be smaller than R0")
+        return proposal["value"]
+
+    @traitlets.observe("R0", "z_sun", "v_sun")
+    def _mark_edited(self, change):
+        if not self._applying:
+            self.preset = ""
+
+    @property
+    def frame(self):
+        """The current :class:`~mwkin.frames.SolarFrame`."""
+        return SolarFrame(R0=self.R0, z_sun=self.z_sun, v_sun=tuple(self.v_sun), label=self.preset)
+
+    def set_frame(self, frame):
+        """Take all values from a SolarFrame in one batch of notifications."""
+        self._applying = True
+        try:
+            with self.hold_trait_notifications():
+                self.R0 = frame.R0
+                self.z_sun = frame.z_sun
+                self.v_sun = tuple(frame.v_sun)
+                self.preset = frame.label
+        finally:
+            self._applying = False
+
+    def apply_preset(self, name):
+        """Load a published preset by name (see ``SolarFrame.presets()``)."""
+        self.set_frame(SolarFrame.preset(name))
+
+    @property
+    def config(self):
+        """JSON-able dict of the state (the frame's ``to_dict()``)."""
+        return self.frame.to_dict()
+
+    def load_config(self, config):
+        """Inverse of :attr:`config`."""
+        self.set_frame(SolarFrame.from_dict(config))
+
+
+class PotentialState(traitlets.HasTraits):
+    """The Galactic potential shared by widgets.
+
+    Traits
+    ------
+    preset : str
+        Name of a published model (``Potential.presets()``), or "" to use ``parameters``.
+    parameters : dict
+        Three-component model in physical units, as accepted by ``Potential.three_component``
+        (``{"bulge": {...}, "disc": {...}, "halo": {...}}``); used when ``preset`` is "".
+    match_frame_vc : bool
+        Rescale the potential so that its circular velocity at the Sun equals the frame's azimuthal
+        solar velocity minus ``solar_V`` (the Sun's own motion relative to the local standard of rest).
+    solar_V : float
+        The Sun's motion relative to the LSR in the direction of rotation, km/s, used by ``match_frame_vc``.
+    """
+
+    preset = traitlets.Unicode(DEFAULT_POTENTIAL_PRESET, help="published model name, or '' for parameters")
+    parameters = traitlets.Dict(help="three-component model parameters (Msun, kpc), used when preset is ''")
+    match_frame_vc = traitlets.Bool(False, help="rescale to the frame's circular velocity at the Sun")
+    solar_V = traitlets.Float(12.24, help="solar motion relative to the LSR along rotation, km/s "
+                                          "(Schoenrich et al. 2010), used when matching the frame")
+
+    def __init__(self, potential=None, **kwargs):
+        super().__init__(**kwargs)
+        if potential is not None:
+            self.set_potential(potential)
+        if not self.parameters:
+            from ..potentials import Potential
+
+            self.parameters = Potential.default_three_component_parameters()
+
+    def potential_for(self, frame=None):
+        """The current :class:`~mwkin.potentials.Potential`, matched to ``frame`` if requested."""
+        from ..potentials import Potential
+
+        if self.preset:
+            pot = Potential.preset(self.preset)
+        else:
+            pot = Potential.three_component(**copy.deepcopy(self.parameters))
+        if self.match_frame_vc and frame is not None:
+            R_sun = (frame.R0 ** 2 - (frame.z_sun / 1000.0) ** 2) ** 0.5
+            pot = pot.scaled_to(frame.v_sun[1] - self.solar_V, R_sun)
+        return pot
+
+    @property
+    def potential(self):
+        """The current potential without frame matching."""
+        return self.potential_for(None)
+
+    def set_potential(self, potential):
+        """Take a preset or three-component Potential (anything ``to_dict()`` describes)."""
+        spec = potential.to_dict()
+        with self.hold_trait_notifications():
+            if spec.get("kind") == "preset":
+                self.preset = spec["name"]
+            elif spec.get("kind") == "three_component":
+                self.parameters = copy.deepcopy(spec["parameters"])
+                self.preset = ""
+            else:
+                raise ValueError(f"PotentialState holds presets or three-component models, got {spec.get('kind')!r}")
+
+    @property
+    def config(self):
+        """JSON-able dict of the state."""
+        return {"preset": self.preset, "parameters": json.loads(json.dumps(self.parameters)),
+                "match_frame_vc": self.match_frame_vc, "solar_V": self.solar_V}
+
+    def load_config(self, config):
+        """Inverse of :attr:`config`."""
+        unknown = set(config) - {"preset", "parameters", "match_frame_vc", "solar_V"}
+        if unknown:
+            raise ValueError(f"unknown potential-state keys {sorted(unknown)}")
+        with self.hold_trait_notifications():
+            for key, value in config.items():
+                setattr(self, key, value)
+
+
+def _frame_error_message(exc):
+    """Readable text of a frame validation error for the status line."""
+    if isinstance(exc, (FrameError, traitlets.TraitError)):
+        return str(exc)
+    return f"{type(exc).__name__}: {exc}"
