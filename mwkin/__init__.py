@@ -5,7 +5,8 @@ widget library, so it runs in scripts and batch jobs. See the README for the con
 """
 
 from .frames import SolarFrame
+from .catalog import CatalogError, read_catalog
 
 __version__ = "0.1.0"
 
-__all__ = ["SolarFrame", "__version__"]
+__all__ = ["SolarFrame", "read_catalog", "CatalogError", "__version__"]

@@ -33,7 +33,8 @@ name                       unit        meaning
 Other spellings
 ---------------
 Column names are matched case-insensitively (and ignoring surrounding blanks) against the standard
-names and against :data:`COLUMN_ALIASES`, listed below. ``read_catalog(..., aliases={"my_plx":
+names (so ``RA``, ``DEC``, ``pmRA``, ``PARALLAX`` are found as they are) and against
+:data:`COLUMN_ALIASES`, listed below. ``read_catalog(..., aliases={"my_plx":
 "parallax"})`` adds spellings of your own. A few spellings state a unit in the name (for example
 ``distance_pc``); see :data:`ALIAS_UNITS`.
 """
@@ -118,8 +119,25 @@ columns that carry no unit)."""
 
 _STANDARD_NAMES = ("source_id",) + tuple(STANDARD_UNITS)
 
+_DESCRIPTIONS = {
+    "ra": "right ascension (ICRS)",
+    "dec": "declination (ICRS)",
+    "parallax": "parallax",
+    "pmra": "proper motion in right ascension, mu_alpha* = mu_alpha cos(dec)",
+    "pmdec": "proper motion in declination",
+    "radial_velocity": "heliocentric radial velocity",
+    "distance": "heliocentric distance",
+    "ra_error": "uncertainty (1 sigma) of ra cos(dec)",
+    **{f"{name}_error": f"uncertainty (1 sigma) of {name}" for name in VALUE_COLUMNS[1:]},
+    # "ra_pmdec_corr" -> "correlation coefficient of ra and pmdec" (no standard name before
+    # "_corr" has an underscore except radial_velocity, which has no correlation column)
+    **{name: f"correlation coefficient of {name[:-5].replace('_', ' and ', 1)}"
+       for name in CORRELATION_COLUMNS},
+}
+
 # Other spellings -> standard name. Matching is case-insensitive, so "PLX" and "plx" are both covered
-# by the entry "Plx"; entries differing only in case are listed once. Spellings that include a unit
+# by the entry "Plx", and the standard names need no entry ("RA", "DEC", "pmRA" are found as they are);
+# entries differing only in case are listed once. Spellings that include a unit
 # different from the default are in ALIAS_UNITS as well.
 COLUMN_ALIASES = {
     # identifier
@@ -151,7 +169,6 @@ COLUMN_ALIASES = {
     "dist_pc": "distance",
     "d_pc": "distance",
     # proper motions (mu_alpha* = mu_alpha cos dec in every case)
-    "pmRA": "pmra",
     "pm_ra": "pmra",
     "pmra_cosdec": "pmra",
     "pm_ra_cosdec": "pmra",
@@ -286,7 +303,12 @@ def _describe_rows(rows, values, unit):
     text = f"row{'s' if len(rows) > 1 else ''} {', '.join(str(i) for i in shown)}"
     if len(rows) > _N_SHOWN:
         text += f", ... ({len(rows)} rows in all)"
-    return f"{text} (values {vals}{', ...' if len(rows) > _N_SHOWN else ''})"
+    return f"{text} (value{'s' if len(rows) > 1 else ''} {vals}{', ...' if len(rows) > _N_SHOWN else ''})"
+
+
+def _list_names(names, limit=40):
+    text = ", ".join(names[:limit]) or "(none)"
+    return text + (f", ... ({len(names)} columns in all)" if len(names) > limit else "")
 
 
 def _column_label(std, original):
@@ -336,8 +358,11 @@ def _as_float(col, label, owned):
     if values is None:  # text, or objects that are not all numbers
         rows = [i for i in _text_rows(data) if mask is None or not mask[i]]
         if rows:
-            shown = ", ".join(f"{i} ({data[i]!r})" for i in rows[:_N_SHOWN])
+            entries = data.tolist()  # plain Python values, so the message shows 'n/a', not np.str_('n/a')
+            shown = ", ".join(f"{i} ({entries[i]!r})" for i in rows[:_N_SHOWN])
             more = f", ... ({len(rows)} rows in all)" if len(rows) > _N_SHOWN else ""
+            if len(rows) == 1:
+                return None, f"{label} is not numeric: row {shown} is not a number"
             return None, f"{label} is not numeric: rows {shown}{more} are not numbers"
         return None, f"{label} is not numeric: it holds text ({data.dtype}); convert it to numbers first"
     if mask is not None:
@@ -382,12 +407,11 @@ def _range_problems(std, values, label, unit):
 
 def _wrap_ra(values):
     """Wrap right ascension into [0, 360) deg in place; return how many values moved."""
-    out = (values < 0.0) | (values >= 360.0)
-    n = int(np.count_nonzero(out))
+    n = int(np.count_nonzero(((values < 0.0) | (values >= 360.0)) & np.isfinite(values)))
     if n:
-        wrapped = np.mod(values[out], 360.0)
-        wrapped[wrapped == 360.0] = 0.0  # np.mod(-1e-20, 360) rounds to 360
-        values[out] = wrapped
+        # np.mod leaves values already in [0, 360) exactly as they are; infinities stay, to be reported.
+        np.mod(values, 360.0, out=values, where=np.isfinite(values))
+        values[values == 360.0] = 0.0  # np.mod(-1e-20, 360) rounds to 360
     return n
 
 
@@ -396,6 +420,11 @@ def _load(source, format):
     if isinstance(source, Table):
         return source, "astropy Table", False, None
     if type(source).__module__.split(".")[0] == "pandas" and hasattr(source, "columns"):
+        duplicated = list(source.columns[source.columns.duplicated()])
+        if duplicated:
+            raise CatalogError(f"the DataFrame has more than one column named {duplicated}")
+        if not all(isinstance(name, str) for name in source.columns):
+            source = source.rename(columns=str)
         index = getattr(source.index, "name", None) is not None and source.index.name not in source.columns
         try:
             table = Table.from_pandas(source, index=index)
@@ -461,7 +490,7 @@ def read_catalog(source, *, format=None, aliases=None, units=None):
     source : str, path-like, `~astropy.table.Table`, `~astropy.table.QTable` or pandas.DataFrame
         A file (CSV, ECSV, FITS, VOTable or Parquet, told apart by the suffix; ``.gz``, ``.bz2`` and
         ``.xz`` compression is allowed where astropy reads it) or a table in memory. An open file
-        object needs ``format``.
+        object (opened in binary mode) needs ``format``.
     format : str, optional
         Overrides the suffix: ``"csv"``, ``"ecsv"``, ``"fits"``, ``"votable"``, ``"parquet"``, or any
         format name `astropy.table.Table.read` understands.
@@ -515,8 +544,9 @@ def read_catalog(source, *, format=None, aliases=None, units=None):
       (as measured); distances may not.
     - NaN (and masked or empty entries, which become NaN) are allowed and never dropped. ``has_nan``
       is True where any of ``ra``, ``dec``, ``pmra``, ``pmdec``, the distance column (``distance``
-      when present, else ``parallax``) or -- only if the input had one -- ``radial_velocity`` is NaN.
-      An input ``has_nan`` column is replaced.
+      when present, else ``parallax``) or -- only if the input has one with at least one value --
+      ``radial_velocity`` is NaN. An input ``has_nan`` column is replaced, so reading a table this
+      function returned gives the same table again.
     - Standard columns are copied once (so editing the result never changes the input); the other
       columns of an in-memory input share its data.
 
@@ -541,7 +571,7 @@ def read_catalog(source, *, format=None, aliases=None, units=None):
     for alias in aliases or {}:
         if str(alias).strip().lower() not in lowered:
             raise CatalogError(
-                f"aliases: there is no column {alias!r}; columns found: {', '.join(table.colnames)}"
+                f"aliases: there is no column {alias!r}; columns found: {_list_names(table.colnames)}"
             )
     found = {}
     for name in table.colnames:
@@ -569,7 +599,7 @@ def read_catalog(source, *, format=None, aliases=None, units=None):
         )
         raise CatalogError(
             f"missing required column(s): {', '.join(missing)}. Columns found: "
-            f"{', '.join(table.colnames) or '(none)'}. Names recognised (any case): {hints}. "
+            f"{_list_names(table.colnames)}. Names recognised (any case): {hints}. "
             f"Pass aliases={{'your_column': 'standard_name'}} for other names"
         )
 
@@ -629,9 +659,11 @@ def read_catalog(source, *, format=None, aliases=None, units=None):
         converted["radial_velocity"] = np.full(n_rows, np.nan)
         filled.append("radial_velocity")
     distance_column = "distance" if "distance" in converted else "parallax"
-    flag_columns = [*REQUIRED_COLUMNS, distance_column] + (
-        [] if filled else ["radial_velocity"]
-    )
+    flag_columns = [*REQUIRED_COLUMNS, distance_column]
+    # An all-NaN radial velocity column (e.g. our own filled one, read back) carries no information;
+    # flagging every row for it would make has_nan useless.
+    if not filled and not np.isnan(converted["radial_velocity"]).all():
+        flag_columns.append("radial_velocity")
     nan_counts = {}
     has_nan = np.zeros(n_rows, dtype=bool)
     for std, values in converted.items():
@@ -647,7 +679,7 @@ def read_catalog(source, *, format=None, aliases=None, units=None):
             continue
         if std in converted:
             names.append(std)
-            columns.append(u.Quantity(converted[std], STANDARD_UNITS[std], copy=False))
+            columns.append(_standard_column(std, converted[std]))
         else:
             if std is None and name in original_of:
                 raise CatalogError(
@@ -658,7 +690,7 @@ def read_catalog(source, *, format=None, aliases=None, units=None):
             columns.append(table[name])
     for std in filled:
         names.append(std)
-        columns.append(u.Quantity(converted[std], STANDARD_UNITS[std], copy=False))
+        columns.append(_standard_column(std, converted[std]))
     names.append("has_nan")
     columns.append(has_nan)
 
@@ -677,6 +709,12 @@ def read_catalog(source, *, format=None, aliases=None, units=None):
     out = QTable(columns, names=names, meta=meta, copy=False)
     out["has_nan"].description = "True where a value needed for the kinematics is NaN"
     return out
+
+
+def _standard_column(std, values):
+    column = u.Quantity(values, STANDARD_UNITS[std], copy=False)
+    column.info.description = _DESCRIPTIONS[std]
+    return column
 
 
 def _alias_doc_table():
