@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import functools
 import platform
 from importlib import metadata
 
@@ -12,6 +13,13 @@ _LIBRARIES = ("mwkin", "numpy", "scipy", "astropy", "galpy")
 
 def library_versions():
     """Installed versions of the libraries a result depends on, as a dict name -> version string."""
+    return dict(_library_versions())
+
+
+@functools.lru_cache(maxsize=1)
+def _library_versions():
+    # Read once per process: importlib.metadata parses each package's METADATA file (~1 ms each),
+    # which live widgets would otherwise pay on every result.
     versions = {"python": platform.python_version()}
     for name in _LIBRARIES:
         try:

@@ -61,11 +61,14 @@ class Panel:
     equal_aspect : bool
     notes : list of str
         Caveats printed under the panel.
+    legend_outside : bool
+        Put the legend beside the axes instead of inside (for plots whose lines fill the whole box).
     """
 
-    def __init__(self, title, x_label, y_label, layers, equal_aspect=False, notes=()):
+    def __init__(self, title, x_label, y_label, layers, equal_aspect=False, notes=(), legend_outside=False):
         self.title, self.x_label, self.y_label = title, x_label, y_label
         self.layers, self.equal_aspect, self.notes = list(layers), equal_aspect, list(notes)
+        self.legend_outside = legend_outside
 
 
 def error_text(exc):
@@ -91,7 +94,7 @@ class AnalysisWidget(widgets.VBox):
         if not isinstance(self.potential_state, PotentialState):
             raise TypeError("potential must be a PotentialState (wrap a Potential with PotentialState(pot))")
         self.status_line = StatusLine()
-        self.provenance_label = widgets.HTML(layout=widgets.Layout(font_size="11px"))
+        self.provenance_label = widgets.HTML(style={"font_size": "11px"})
         self.provenance_label.add_class("mwkin-provenance")
         self._result = None
         self._last_request = None
@@ -154,6 +157,7 @@ class AnalysisWidget(widgets.VBox):
         except Exception as exc:  # noqa: BLE001 - shown on screen, inputs kept as typed
             self._fail(exc, None)
             return
+        self.status_line.show_busy("computing...")
         self._runner.submit(request)
 
     def wait(self, timeout=60.0):

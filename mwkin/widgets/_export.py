@@ -46,7 +46,10 @@ def export_panels(panels, path, title="", footer="", dpi=150):
         if panel.equal_aspect:
             ax.set_aspect("equal", adjustable="datalim")
         if any(layer.get("label") for layer in panel.layers):
-            ax.legend(fontsize=7, loc="best")
+            if getattr(panel, "legend_outside", False):
+                ax.legend(fontsize=7, loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0.0)
+            else:
+                ax.legend(fontsize=7, loc="best")
         if panel.notes:
             ax.text(0.0, -0.22, "\n".join(panel.notes), transform=ax.transAxes, fontsize=7, va="top")
     if title:

@@ -51,6 +51,12 @@ class LiveRunner:
         """Number of requests submitted so far."""
         return self._generation
 
+    @property
+    def idle(self):
+        """True when every submitted request has been processed (nothing queued or running)."""
+        with self._lock:
+            return self._delivered >= self._generation
+
     def submit(self, request):
         """Queue ``request``, replacing any request that has not started yet; returns its generation."""
         with self._lock:

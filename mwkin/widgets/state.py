@@ -14,7 +14,8 @@ import traitlets
 
 from ..frames import FrameError, SolarFrame
 
-__all__ = ["FrameState", "PotentialState", "DEFAULT_FRAME_PRESET", "DEFAULT_POTENTIAL_PRESET"]
+__all__ = ["FrameState", "PotentialState", "DEFAULT_FRAME_PRESET", "DEFAULT_POTENTIAL_PRESET",
+           "potential_from_config", "default_three_component_parameters"]
 
 DEFAULT_FRAME_PRESET = "astropy v4.0"
 DEFAULT_POTENTIAL_PRESET = "MWPotential2014"
@@ -123,22 +124,11 @@ class PotentialState(traitlets.HasTraits):
         if potential is not None:
             self.set_potential(potential)
         if not self.parameters:
-            from ..potentials import Potential
-
-            self.parameters = Potential.default_three_component_parameters()
+            self.parameters = default_three_component_parameters()
 
     def potential_for(self, frame=None):
         """The current :class:`~mwkin.potentials.Potential`, matched to ``frame`` if requested."""
-        from ..potentials import Potential
-
-        if self.preset:
-            pot = Potential.preset(self.preset)
-        else:
-            pot = Potential.three_component(**copy.deepcopy(self.parameters))
-        if self.match_frame_vc and frame is not None:
-            R_sun = (frame.R0 ** 2 - (frame.z_sun / 1000.0) ** 2) ** 0.5
-            pot = pot.scaled_to(frame.v_sun[1] - self.solar_V, R_sun)
-        return pot
+        return potential_from_config(self.config, frame)
 
     @property
     def potential(self):
@@ -148,11 +138,14 @@ class PotentialState(traitlets.HasTraits):
     def set_potential(self, potential):
         """Take a preset or three-component Potential (anything ``to_dict()`` describes)."""
         spec = potential.to_dict()
+        if "scaled_to" in spec:
+            raise ValueError("PotentialState holds unscaled models; use match_frame_vc=True to rescale to the "
+                             f"frame's circular velocity (this potential is scaled to {spec['scaled_to']})")
         with self.hold_trait_notifications():
             if spec.get("kind") == "preset":
                 self.preset = spec["name"]
             elif spec.get("kind") == "three_component":
-                self.parameters = copy.deepcopy(spec["parameters"])
+                self.parameters = {k: copy.deepcopy(spec[k]) for k in _COMPONENTS}
                 self.preset = ""
             else:
                 raise ValueError(f"PotentialState holds presets or three-component models, got {spec.get('kind')!r}")
@@ -171,6 +164,43 @@ class PotentialState(traitlets.HasTraits):
         with self.hold_trait_notifications():
             for key, value in config.items():
                 setattr(self, key, value)
+
+
+_COMPONENTS = ("bulge", "disc", "halo")
+
+
+def default_three_component_parameters():
+    """Parameters of ``Potential.three_component()`` with its defaults, as {"bulge": {...}, ...}."""
+    from ..potentials import Potential
+
+    spec = Potential.three_component().to_dict()
+    return {k: dict(spec[k]) for k in _COMPONENTS}
+
+
+def potential_from_config(config, frame=None):
+    """The :class:`~mwkin.potentials.Potential` a :attr:`PotentialState.config` describes.
+
+    Parameters
+    ----------
+    config : dict
+        ``preset``, ``parameters``, ``match_frame_vc``, ``solar_V`` (as :attr:`PotentialState.config`).
+    frame : SolarFrame, optional
+        Needed for ``match_frame_vc``: the model is rescaled so that vc at the Sun's in-plane radius
+        equals ``v_sun[1] - solar_V``.
+
+    Notes
+    -----
+    Safe to call from a worker thread (it reads no traits), which is how the widgets use it.
+    """
+    from ..potentials import Potential, sun_inplane_radius
+
+    if config.get("preset"):
+        pot = Potential.preset(config["preset"])
+    else:
+        pot = Potential.three_component(**copy.deepcopy(config["parameters"]))
+    if config.get("match_frame_vc") and frame is not None:
+        pot = pot.scaled_to(frame.v_sun[1] - config.get("solar_V", 12.24), sun_inplane_radius(frame))
+    return pot
 
 
 def _frame_error_message(exc):

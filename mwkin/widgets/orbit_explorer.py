@@ -1,0 +1,833 @@
+"""OrbitExplorer: the orbit of one star in the shared frame and potential, recomputed live.
+
+The star comes from a table row, from typed observables or from typed Galactocentric phase space. The
+orbit is integrated forward and backward with :func:`mwkin.integrate_orbits` and drawn face-on (x, y)
+and in the meridional plane (R, z), both at equal aspect, with the Sun, the centre and the sense of
+Galactic rotation marked. A toggle adds faint orbits of stars drawn from the measurement uncertainties.
+"""
+
+from __future__ import annotations
+
+import html
+import math
+from dataclasses import dataclass
+
+import ipywidgets as widgets
+import numpy as np
+
+from ._base import AnalysisWidget, Panel
+from .controls import NumberField
+from .state import potential_from_config
+
+__all__ = ["OrbitExplorer", "OrbitView", "DEFAULT_STAR"]
+
+#: The star shown when none is given: a thin-disc-like star about 1 kpc away (made up for the demo).
+DEFAULT_STAR = {"ra": 120.0, "dec": -30.0, "parallax": 1.0, "pmra": -4.0, "pmdec": 3.0,
+                "radial_velocity": 15.0, "parallax_error": 0.04, "pmra_error": 0.05, "pmdec_error": 0.05,
+                "radial_velocity_error": 1.0, "distance": 1.0, "distance_error": 0.04}
+
+#: Typed observables: key -> (label with unit, default slider range or None).
+_OBSERVABLES = {
+    "ra": ("ra [deg]", None), "dec": ("dec [deg]", None),
+    "parallax": ("parallax [mas]", None), "distance": ("distance [kpc]", None),
+    "pmra": ("pmra [mas/yr]", (-100.0, 100.0, 0.1)), "pmdec": ("pmdec [mas/yr]", (-100.0, 100.0, 0.1)),
+    "radial_velocity": ("radial_velocity [km/s]", (-400.0, 400.0, 0.5)),
+}
+_OBS_ERRORS = {"parallax_error": "σ parallax [mas]", "distance_error": "σ distance [kpc]",
+               "pmra_error": "σ pmra [mas/yr]", "pmdec_error": "σ pmdec [mas/yr]",
+               "radial_velocity_error": "σ radial_velocity [km/s]"}
+#: Typed Galactocentric phase space (astropy's Galactocentric axes).
+_PHASE_SPACE = {"x": ("x [kpc]", None), "y": ("y [kpc]", None), "z": ("z [kpc]", None),
+                "vx": ("vx [km/s]", (-400.0, 400.0, 0.5)), "vy": ("vy [km/s]", (-400.0, 400.0, 0.5)),
+                "vz": ("vz [km/s]", (-300.0, 300.0, 0.5))}
+DEFAULT_PHASE_SPACE = {"x": -8.0, "y": 0.5, "z": 0.1, "vx": 10.0, "vy": 230.0, "vz": 5.0}
+
+_SOURCES = {"table": "table row", "observables": "observables", "phase_space": "phase space"}
+_COLOURS = {"forward": "#1f5fa8", "backward": "#d0661f", "cloud": "#9fb6d3", "sun": "#e0a800",
+            "centre": "#222222", "rotation": "#6a6a6a", "star": "#1f5fa8"}
+
+#: Output points of each cloud orbit (at most; fewer if the main orbit has fewer).
+CLOUD_POINTS = 501
+
+#: The plots' key, under them (the tracks fill the boxes, so an in-plot legend would hide them).
+_KEY_HTML = (
+    "<small>"
+    f"<span style='color:{_COLOURS['forward']}'>━ forward</span> &nbsp; "
+    f"<span style='color:{_COLOURS['backward']}'>╍ backward</span> &nbsp; "
+    f"<span style='color:{_COLOURS['cloud']}'>━ from the uncertainties</span> &nbsp; "
+    f"<span style='color:{_COLOURS['sun']}'>● Sun</span> &nbsp; "
+    f"<span style='color:{_COLOURS['centre']}'>✚ Galactic centre</span> &nbsp; "
+    f"<span style='color:{_COLOURS['star']}'>● star now</span> &nbsp; "
+    f"<span style='color:{_COLOURS['rotation']}'>↻ sense of rotation (clockwise seen from the north "
+    "Galactic pole; toward you in the meridional view)</span></small>")
+
+_FACE_PX = 380          # face-on figure: square, equal margins -> equal aspect
+_MER_W, _MER_H = 460, 250
+_MARGIN = 45
+
+
+@dataclass
+class OrbitView:
+    """Everything one OrbitExplorer computation produced.
+
+    Attributes
+    ----------
+    orbits : OrbitSet
+        The forward integration (the backward one when the forward time is 0); ``OrbitExplorer.result``.
+    backward : OrbitSet or None
+    cloud : OrbitSet or None
+        Orbits of stars drawn from the measurement uncertainties (forward in time).
+    potential : Potential
+        The potential used (after matching the frame, if asked).
+    frame : SolarFrame
+    """
+
+    orbits: object
+    backward: object
+    cloud: object
+    potential: object
+    frame: object
+
+
+def _plain(value):
+    return np.asarray(getattr(value, "value", value), dtype=float)
+
+
+class OrbitExplorer(AnalysisWidget):
+    """The orbit of one star, live in the shared frame and potential.
+
+    Parameters
+    ----------
+    frame : FrameState, optional
+    potential : PotentialState, optional
+    star : dict, optional
+        Observables (``ra``, ``dec``, ``parallax`` or ``distance``, ``pmra``, ``pmdec``,
+        ``radial_velocity``, optional ``*_error``; deg, mas, kpc, mas/yr, km/s) or Galactocentric
+        phase space (``x``, ``y``, ``z`` in kpc, ``vx``, ``vy``, ``vz`` in km/s).
+    stars : table, optional
+        Anything :func:`mwkin.read_catalog` reads; the star is row ``row`` of it.
+    row : int, optional
+    t_forward, t_backward : float, optional
+        Integration time forward and backward, Gyr (both >= 0, not both 0).
+    n_points : int, optional
+        Output points per direction (including t = 0).
+    n_cloud : int, optional
+        Number of orbits drawn from the uncertainties when the cloud is shown.
+    seed : int, optional
+        Seed of the cloud's random draws (so a config reproduces the same cloud).
+    threaded : bool, optional
+        Compute off the kernel's main thread (default); False computes in place.
+
+    Notes
+    -----
+    ``.result`` is the :class:`~mwkin.orbits.OrbitSet` of the forward integration (or of the backward
+    one when ``t_forward`` is 0); :attr:`view` holds both directions and the cloud. The orbital
+    parameters shown cover the whole integrated span (backward and forward together).
+    """
+
+    def __init__(self, frame=None, potential=None, star=None, *, stars=None, row=0, t_forward=1.0,
+                 t_backward=0.0, n_points=2001, n_cloud=30, seed=1, threaded=True, **kwargs):
+        super().__init__(frame, potential, threaded=threaded, **kwargs)
+        self._loading = False
+        self._stars = None
+        self._seed = int(seed)
+        star = dict(star or {})
+        if star and set(star) & set(_PHASE_SPACE) and not set(star) & {"ra", "dec"}:
+            source, obs, phase = "phase_space", dict(DEFAULT_STAR), {**DEFAULT_PHASE_SPACE, **star}
+        else:
+            source, obs, phase = "observables", {**DEFAULT_STAR, **star}, dict(DEFAULT_PHASE_SPACE)
+        if "distance" in star and "parallax" not in star:
+            distance_input = "distance"
+        else:
+            distance_input = "parallax"
+
+        self._build_inputs(obs, phase, distance_input, t_forward, t_backward, n_points, n_cloud)
+        if stars is not None:
+            self.set_stars(stars, row=row, refresh=False)
+            source = "table"
+        self.source.value = source
+        self._source_changed(None)
+        self._build_figures()
+        self.readout = widgets.HTML()
+        self.readout.add_class("mwkin-orbit-parameters")
+
+        left = widgets.VBox([self.source, self.table_box, self.observables_box, self.phase_box,
+                             self.time_box, self.cloud_box], layout=widgets.Layout(width="30em"))
+        self.key = widgets.HTML(_KEY_HTML)
+        self.key.add_class("mwkin-orbit-key")
+        plots = widgets.VBox([widgets.HBox([self.face_on_figure, self.meridional_figure]), self.key,
+                              self.readout])
+        self.children = [widgets.HBox([left, plots]), self.status_line,
+                         widgets.HBox([self.code_button]), self.code_area, self.provenance_label]
+        self.add_class("mwkin-orbit-explorer")
+
+        self.frame_state.observe(self._inputs_changed, ["R0", "z_sun", "v_sun"])
+        self.potential_state.observe(self._inputs_changed, ["preset", "parameters", "match_frame_vc", "solar_V"])
+        self.refresh()
+
+    # ================================================================== inputs
+    def _build_inputs(self, obs, phase, distance_input, t_forward, t_backward, n_points, n_cloud):
+        changed = self._inputs_changed
+        self.source = widgets.ToggleButtons(options=[(_SOURCES[k], k) for k in ("observables", "phase_space")],
+                                            description="Star from", style={"description_width": "6em"})
+        self.source.add_class("mwkin-star-source")
+        self.source.observe(self._source_changed, "value")
+
+        self.row_selector = widgets.BoundedIntText(value=0, min=0, max=0, description="row",
+                                                   style={"description_width": "9em"},
+                                                   layout=widgets.Layout(width="17em"))
+        self.row_selector.add_class("mwkin-row")
+        self.row_selector.observe(changed, "value")
+        self.row_label = widgets.HTML()
+        self.table_box = widgets.VBox([self.row_selector, self.row_label])
+
+        def field(key, label, value, rng):
+            css = "mwkin-" + key.replace("_", "-")
+            return NumberField(label, float(value), css, lambda v: changed(None), rng, label)
+
+        self.observable_fields = {k: field(k, lab, obs[k], rng) for k, (lab, rng) in _OBSERVABLES.items()}
+        self.error_fields = {k: field(k, lab, obs.get(k, 0.0), None) for k, lab in _OBS_ERRORS.items()}
+        self.distance_input = widgets.ToggleButtons(options=[("parallax", "parallax"), ("distance", "distance")],
+                                                    value=distance_input, description="distance from",
+                                                    style={"description_width": "9em"})
+        self.distance_input.add_class("mwkin-distance-input")
+        self.distance_input.observe(self._distance_input_changed, "value")
+        f, e = self.observable_fields, self.error_fields
+        self.observables_box = widgets.VBox([
+            f["ra"], f["dec"], self.distance_input, f["parallax"], f["distance"], f["pmra"], f["pmdec"],
+            f["radial_velocity"], widgets.HTML("<small>uncertainties (1σ, for the orbit cloud)</small>"),
+            e["parallax_error"], e["distance_error"], e["pmra_error"], e["pmdec_error"],
+            e["radial_velocity_error"]])
+        self.phase_fields = {k: field(k, lab, phase[k], rng) for k, (lab, rng) in _PHASE_SPACE.items()}
+        self.phase_box = widgets.VBox(
+            [widgets.HTML("<small>Galactocentric Cartesian (astropy axes: the Sun near x = -R0)</small>")]
+            + list(self.phase_fields.values()))
+
+        self.time_fields = {
+            "t_forward": field("t_forward", "forward [Gyr]", t_forward, None),
+            "t_backward": field("t_backward", "backward [Gyr]", t_backward, None),
+        }
+        self.n_points = widgets.IntText(value=int(n_points), description="output points",
+                                        style={"description_width": "9em"}, layout=widgets.Layout(width="17em"),
+                                        continuous_update=False)
+        self.n_points.add_class("mwkin-n-points")
+        self.n_points.observe(changed, "value")
+        self.time_box = widgets.VBox([widgets.HTML("<b>integration time</b>"), *self.time_fields.values(),
+                                      self.n_points])
+
+        self.cloud_toggle = widgets.Checkbox(value=False, description="show orbits from the uncertainties",
+                                             indent=False)
+        self.cloud_toggle.add_class("mwkin-cloud-toggle")
+        self.cloud_toggle.observe(changed, "value")
+        self.n_cloud = widgets.BoundedIntText(value=int(n_cloud), min=2, max=200, description="orbits drawn",
+                                              style={"description_width": "9em"},
+                                              layout=widgets.Layout(width="17em"))
+        self.n_cloud.add_class("mwkin-n-cloud")
+        self.n_cloud.observe(changed, "value")
+        self.cloud_box = widgets.VBox([self.cloud_toggle, self.n_cloud])
+        self._distance_input_changed(None)
+
+    def set_stars(self, stars, row=0, refresh=True):
+        """Use row ``row`` of a table (anything :func:`mwkin.read_catalog` reads) as the star."""
+        from ..catalog import read_catalog
+
+        self._stars = read_catalog(stars)
+        n = len(self._stars)
+        if n == 0:
+            raise ValueError("the star table has no rows")
+        with self.hold_sync():
+            self.source.options = [(_SOURCES[k], k) for k in ("table", "observables", "phase_space")]
+            self.row_selector.max = n - 1
+            self._loading = True
+            try:
+                self.row_selector.value = int(row)
+                self.source.value = "table"
+            finally:
+                self._loading = False
+        self._show_row_label()
+        if refresh:
+            self.refresh()
+
+    def _show_row_label(self):
+        if self._stars is None:
+            self.row_label.value = ""
+            return
+        values = self._row_values()
+        ident = f"source_id {values['source_id']}: " if "source_id" in values else ""
+        shown = ", ".join(f"{k} = {values[k]:.4g}" for k in ("ra", "dec", "parallax", "distance", "pmra",
+                                                             "pmdec", "radial_velocity")
+                          if k in values and np.isfinite(values[k]))
+        self.row_label.value = f"<small>{html.escape(ident + shown)} (of {len(self._stars)} rows)</small>"
+
+    def _row_values(self):
+        row = self._stars[int(self.row_selector.value)]
+        out = {}
+        for name in self._stars.colnames:
+            if name == "source_id":
+                out[name] = row[name].item() if hasattr(row[name], "item") else row[name]
+                continue
+            value = row[name]
+            try:
+                out[name] = float(getattr(value, "value", value))
+            except (TypeError, ValueError):
+                continue
+        return out
+
+    def _source_changed(self, change):
+        source = self.source.value
+        self.table_box.layout.display = None if source == "table" else "none"
+        self.observables_box.layout.display = None if source == "observables" else "none"
+        self.phase_box.layout.display = None if source == "phase_space" else "none"
+        self.cloud_box.layout.display = "none" if source == "phase_space" else None
+        self._inputs_changed(change)
+
+    def _distance_input_changed(self, change):
+        use_parallax = self.distance_input.value == "parallax"
+        for key, shown in (("parallax", use_parallax), ("distance", not use_parallax)):
+            self.observable_fields[key].layout.display = None if shown else "none"
+            self.error_fields[f"{key}_error"].layout.display = None if shown else "none"
+        if change is not None:
+            self._inputs_changed(change)
+
+    def _inputs_changed(self, change):
+        if self._loading or not hasattr(self, "face_on_figure"):
+            return
+        if change is not None and getattr(change, "get", None) and change.get("owner") is self.row_selector:
+            self._show_row_label()
+        self.refresh()
+
+    # ================================================================== request / compute
+    def _star_request(self):
+        """The star as plain values, validated: (kind, values, errors); raises ValueError naming the input."""
+        source = self.source.value
+        if source == "phase_space":
+            values = {k: float(f.value) for k, f in self.phase_fields.items()}
+            for key, v in values.items():
+                if not math.isfinite(v):
+                    raise ValueError(f"{_PHASE_SPACE[key][0]}: got {v}, need a finite number")
+            return {"kind": "phase_space", "values": values, "errors": {}}
+        if source == "table":
+            row = self._row_values()
+            use = "distance" if ("parallax" not in row or not np.isfinite(row.get("parallax", np.nan))) \
+                and np.isfinite(row.get("distance", np.nan)) else "parallax"
+            where = f"row {int(self.row_selector.value)}"
+        else:
+            row = {k: float(f.value) for k, f in self.observable_fields.items()}
+            row.update({k: float(f.value) for k, f in self.error_fields.items()})
+            use = self.distance_input.value
+            where = "typed star"
+        drop = "distance" if use == "parallax" else "parallax"
+        keys = ["ra", "dec", use, "pmra", "pmdec", "radial_velocity"]
+        values = {}
+        for key in keys:
+            v = row.get(key, np.nan)
+            if not np.isfinite(v):
+                raise ValueError(f"{where}: {key} is missing or not finite ({v}); the orbit needs ra, dec, "
+                                 "parallax or distance, pmra, pmdec and radial_velocity")
+            values[key] = float(v)
+        if not -90.0 <= values["dec"] <= 90.0:
+            raise ValueError(f"{where}: dec = {values['dec']} deg is outside [-90, 90] deg")
+        if use == "parallax" and not values["parallax"] > 0:
+            raise ValueError(f"{where}: parallax = {values['parallax']} mas is not positive, so 1/parallax gives "
+                             "no distance; type a distance [kpc] instead")
+        if use == "distance" and not values["distance"] > 0:
+            raise ValueError(f"{where}: distance = {values['distance']} kpc must be positive")
+        errors = {}
+        for key in (f"{use}_error", "pmra_error", "pmdec_error", "radial_velocity_error"):
+            v = row.get(key, np.nan)
+            if np.isfinite(v):
+                if v < 0:
+                    raise ValueError(f"{where}: {key} = {v} is negative; uncertainties are standard deviations")
+                errors[key] = float(v)
+        for key in ("ra_error", "dec_error"):
+            if np.isfinite(row.get(key, np.nan)):
+                errors[key] = float(row[key])
+        corr = {k: float(v) for k, v in row.items() if k.endswith("_corr") and drop not in k and np.isfinite(v)}
+        return {"kind": "observables", "values": values, "errors": {**errors, **corr}}
+
+    def _time_request(self):
+        t_forward = float(self.time_fields["t_forward"].value)
+        t_backward = float(self.time_fields["t_backward"].value)
+        n_points = int(self.n_points.value)
+        for key, value in (("t_forward", t_forward), ("t_backward", t_backward)):
+            label = self.time_fields[key].text.description
+            if not math.isfinite(value) or value < 0:
+                raise ValueError(f"integration time {label} = {value} must be >= 0 (use the other field "
+                                 "for the other direction)")
+        if t_forward == 0 and t_backward == 0:
+            raise ValueError("integration time: forward and backward are both 0 Gyr; give at least one")
+        if n_points < 2:
+            raise ValueError(f"output points = {n_points}: need at least 2 output times per direction")
+        return t_forward, t_backward, n_points
+
+    def _request(self):
+        star = self._star_request()
+        t_forward, t_backward, n_points = self._time_request()
+        cloud = bool(self.cloud_toggle.value) and star["kind"] == "observables"
+        return {"frame": self.frame_state.frame, "potential_config": self.potential_state.config,
+                "star": star, "source": self.source.value,
+                "row": int(self.row_selector.value) if self.source.value == "table" else None,
+                "t_forward": t_forward, "t_backward": t_backward, "n_points": n_points,
+                "cloud": cloud, "n_cloud": int(self.n_cloud.value), "seed": self._seed}
+
+    def _compute(self, request):
+        frame = request["frame"]
+        pot = potential_from_config(request["potential_config"], frame)
+        phase, cov = _phase_space(request["star"], frame, want_covariance=request["cloud"])
+        n = request["n_points"]
+        forward = backward = cloud = None
+        if request["t_forward"] > 0:
+            forward = _integrate(phase, pot, frame, np.linspace(0.0, request["t_forward"], n))
+        if request["t_backward"] > 0:
+            backward = _integrate(phase, pot, frame, np.linspace(0.0, -request["t_backward"], n))
+        if request["cloud"]:
+            span = request["t_forward"] if request["t_forward"] > 0 else -request["t_backward"]
+            samples = _draw_stars(phase, cov, request["n_cloud"], request["seed"])
+            # A coarser grid for the faint cloud: enough for a smooth line, cheap to send.
+            cloud = _integrate(samples, pot, frame, np.linspace(0.0, span, min(n, CLOUD_POINTS)))
+        main = forward if forward is not None else backward
+        for name, orbits in (("orbit", main), ("backward orbit", backward if forward is not None else None)):
+            if orbits is not None and orbits.flags[0]:
+                raise ValueError(f"the {name} could not be computed: {orbits.flags[0]}")
+        return OrbitView(orbits=main, backward=backward if forward is not None else None, cloud=cloud,
+                         potential=pot, frame=frame)
+
+    def _star_table_for_bench(self):
+        """The current star as the one-row table handed to the core (benchmarks, debugging)."""
+        return _star_table(self._star_request())
+
+    # ================================================================== results
+    @property
+    def result(self):
+        """The latest :class:`~mwkin.orbits.OrbitSet` (None before the first computation)."""
+        return None if self._result is None else self._result.orbits
+
+    @property
+    def view(self):
+        """The latest :class:`OrbitView` (both directions and the cloud)."""
+        return self._result
+
+    def orbital_parameters(self):
+        """Orbital parameters over the whole integrated span, as a dict of floats (kpc, km^2/s^2, kpc km/s).
+
+        ``rperi``/``rapo``/``zmax`` are the extremes over the backward and forward integrations
+        together, ``eccentricity`` = (rapo - rperi) / (rapo + rperi) from them; ``energy`` and ``Lz``
+        are those of the star at t = 0.
+        """
+        view = self._result
+        if view is None:
+            return None
+        sets = [s for s in (view.orbits, view.backward) if s is not None]
+        rperi = min(float(_plain(s.rperi)[0]) for s in sets)
+        rapo = max(float(_plain(s.rapo)[0]) for s in sets)
+        zmax = max(float(_plain(s.zmax)[0]) for s in sets)
+        return {"rperi": rperi, "rapo": rapo, "zmax": zmax, "eccentricity": (rapo - rperi) / (rapo + rperi),
+                "energy": float(_plain(view.orbits.energy)[0]), "Lz": float(_plain(view.orbits.Lz)[0])}
+
+    def _summary(self, view):
+        p = self.orbital_parameters()
+        return f"rperi {p['rperi']:.2f} kpc, rapo {p['rapo']:.2f} kpc, zmax {p['zmax']:.2f} kpc"
+
+    def _provenance_for(self, view, request):
+        from ..provenance import provenance_line
+
+        return provenance_line(frame=view.frame, potential=view.potential,
+                               extra=f"star from {_SOURCES[request['source']]}")
+
+    def _show(self, view, request):
+        self._last_star = request["star"]
+        tracks = {"forward": None, "backward": None}
+        main_key = "forward" if request["t_forward"] > 0 else "backward"
+        tracks[main_key] = _track_arrays(view.orbits, 0)
+        if view.backward is not None:
+            tracks["backward"] = _track_arrays(view.backward, 0)
+        cloud = _cloud_arrays(view.cloud) if view.cloud is not None else None
+        sun = view.frame.sun_position
+        self._draw_face_on(tracks, cloud, sun)
+        self._draw_meridional(tracks, cloud, sun)
+        self._show_readout(view)
+
+    def _show_readout(self, view):
+        p = self.orbital_parameters()
+        rows = [("r_peri", f"{p['rperi']:.3f}", "kpc", "rperi"), ("r_apo", f"{p['rapo']:.3f}", "kpc", "rapo"),
+                ("z_max", f"{p['zmax']:.3f}", "kpc", "zmax"), ("e", f"{p['eccentricity']:.3f}", "", "eccentricity"),
+                ("E", f"{p['energy']:.5g}", "km²/s²", "energy"), ("L_z", f"{p['Lz']:.5g}", "kpc km/s", "Lz")]
+        spread = {}
+        if view.cloud is not None:
+            for key in ("rperi", "rapo", "zmax", "eccentricity", "energy", "Lz"):
+                values = _plain(getattr(view.cloud, key))
+                values = values[np.isfinite(values)]
+                if values.size:
+                    lo, hi = np.percentile(values, [16, 84])
+                    spread[key] = f"{lo:.4g} – {hi:.4g}"
+        head = "<tr><th></th><th>value</th><th>unit</th>" + ("<th>cloud 16–84%</th>" if spread else "") + "</tr>"
+        body = "".join(f"<tr><td>{n}</td><td>{v}</td><td>{u}</td>"
+                       + (f"<td>{spread.get(k, '')}</td>" if spread else "") + "</tr>" for n, v, u, k in rows)
+        note = ("<small>r_peri, r_apo, z_max and e over the integrated span; E in the potential's zero point "
+                "(see OrbitSet.energy); L_z = R v_phi, positive for prograde orbits</small>")
+        caveat = _parallax_caveat(self._last_star)
+        if caveat:
+            note += f"<br><small class='mwkin-caveat'>{html.escape(caveat)}</small>"
+        self.readout.value = f"<table class='mwkin-orbit-table'>{head}{body}</table>{note}"
+
+    # ================================================================== plots
+    def _build_figures(self):
+        import bqplot as bq
+
+        def figure(title, x_label, y_label, width, height):
+            xs, ys = bq.LinearScale(), bq.LinearScale()
+            axes = [bq.Axis(scale=xs, label=x_label, grid_lines="none"),
+                    bq.Axis(scale=ys, label=y_label, side="left", grid_lines="none")]
+            fig = bq.Figure(axes=axes, title=title, fig_margin={"top": _MARGIN, "bottom": _MARGIN,
+                                                                "left": _MARGIN, "right": _MARGIN},
+                            layout=widgets.Layout(width=f"{width}px", height=f"{height}px"),
+                            min_aspect_ratio=width / height, max_aspect_ratio=width / height,
+                            legend_location="top-right")
+            return fig, xs, ys
+
+        def marks(xs, ys, labelled):
+            sc = {"x": xs, "y": ys}
+            empty = np.array([np.nan])
+            m = {
+                "cloud": bq.Lines(x=empty, y=empty, scales=sc, colors=[_COLOURS["cloud"]], opacities=[0.35],
+                                  stroke_width=1.0),
+                "backward": bq.Lines(x=empty, y=empty, scales=sc, colors=[_COLOURS["backward"]],
+                                     line_style="dashed", labels=["backward"], display_legend=labelled),
+                "forward": bq.Lines(x=empty, y=empty, scales=sc, colors=[_COLOURS["forward"]],
+                                    labels=["forward"], display_legend=labelled),
+                "rotation": bq.Lines(x=empty, y=empty, scales=sc, colors=[_COLOURS["rotation"]]),
+                "star": bq.Scatter(x=empty, y=empty, scales=sc, colors=[_COLOURS["star"]], default_size=40),
+                "sun": bq.Scatter(x=empty, y=empty, scales=sc, colors=[_COLOURS["sun"]], default_size=90,
+                                  stroke="black", labels=["Sun"], display_legend=labelled),
+                "centre": bq.Scatter(x=np.array([0.0]), y=np.array([0.0]), scales=sc, marker="cross",
+                                     colors=[_COLOURS["centre"]], default_size=90, labels=["Galactic centre"],
+                                     display_legend=labelled),
+                "label": bq.Label(x=empty, y=empty, scales=sc, text=np.array(["rotation"]),
+                                  colors=[_COLOURS["rotation"]], default_size=12, align="middle"),
+            }
+            return m
+
+        self.face_on_figure, self._fx, self._fy = figure("Face-on", "x [kpc]", "y [kpc]", _FACE_PX, _FACE_PX)
+        self.face_on_marks = marks(self._fx, self._fy, False)
+        self.face_on_figure.marks = list(self.face_on_marks.values())
+        self.face_on_figure.add_class("mwkin-face-on")
+        self.meridional_figure, self._mx, self._my = figure("Meridional", "R [kpc]", "z [kpc]", _MER_W, _MER_H)
+        self.meridional_marks = marks(self._mx, self._my, False)
+        self.meridional_figure.marks = list(self.meridional_marks.values())
+        self.meridional_figure.add_class("mwkin-meridional")
+
+    def _draw_face_on(self, tracks, cloud, sun):
+        """Face-on (x, y) view: the one method to replace with an anywidget GalaxyView later."""
+        m = self.face_on_marks
+        xs = [t["x"] for t in tracks.values() if t is not None]
+        ys = [t["y"] for t in tracks.values() if t is not None]
+        if cloud is not None:
+            xs.append(cloud["x"].ravel())
+            ys.append(cloud["y"].ravel())
+        extent = max(float(np.nanmax(np.abs(np.concatenate(xs + ys)))), abs(sun[0])) * 1.1
+        arc = _rotation_arc(0.35 * abs(sun[0]))
+        with self.face_on_figure.hold_sync():
+            self._fx.min, self._fx.max = -extent, extent
+            self._fy.min, self._fy.max = -extent, extent
+            self._set_tracks(m, tracks, cloud, "x", "y")
+            _set_xy(m["sun"], [sun[0]], [sun[1]])
+            _set_xy(m["rotation"], arc["x"], arc["y"])
+            _set_xy(m["label"], [arc["label_x"]], [arc["label_y"]])
+        self.face_on_arrays = {"rotation": arc}
+
+    def _draw_meridional(self, tracks, cloud, sun):
+        m = self.meridional_marks
+        R_sun, z_sun = math.hypot(sun[0], sun[1]), sun[2]
+        Rs = [t["R"] for t in tracks.values() if t is not None]
+        zs = [t["z"] for t in tracks.values() if t is not None]
+        if cloud is not None:
+            Rs.append(cloud["R"].ravel())
+            zs.append(cloud["z"].ravel())
+        R_top = max(float(np.nanmax(np.concatenate(Rs))), R_sun) * 1.08
+        z_half = max(float(np.nanmax(np.abs(np.concatenate(zs)))), abs(z_sun)) * 1.15
+        ratio = (_MER_W - 2 * _MARGIN) / (_MER_H - 2 * _MARGIN)   # plot-area width / height
+        # Equal aspect: data span ratio equals the plot area's ratio (widen whichever is short).
+        if R_top / (2 * z_half) > ratio:
+            z_half = R_top / ratio / 2
+        else:
+            R_top = 2 * z_half * ratio
+        with self.meridional_figure.hold_sync():
+            self._mx.min, self._mx.max = 0.0, R_top
+            self._my.min, self._my.max = -z_half, z_half
+            self._set_tracks(m, tracks, cloud, "R", "z")
+            _set_xy(m["sun"], [R_sun], [z_sun])
+            # Rotation is perpendicular to this plane, toward the viewer (R right, z up, phi with rotation).
+            m["label"].text = np.array(["⊙ rotation: toward you"])
+            _set_xy(m["label"], [0.5 * R_top], [0.82 * z_half])
+            _set_xy(m["rotation"], [np.nan], [np.nan])
+
+    def _set_tracks(self, m, tracks, cloud, kx, ky):
+        for key in ("forward", "backward"):
+            track = tracks[key]
+            if track is None:
+                _set_xy(m[key], [np.nan], [np.nan])
+            else:
+                _set_xy(m[key], track[kx], track[ky])
+        start = tracks["forward"] if tracks["forward"] is not None else tracks["backward"]
+        _set_xy(m["star"], [start[kx][0]], [start[ky][0]])
+        if cloud is None:
+            _set_xy(m["cloud"], [np.nan], [np.nan])
+        else:
+            _set_xy(m["cloud"], cloud[kx], cloud[ky])
+
+    def _figure_panels(self):
+        if self._result is None:
+            raise RuntimeError("nothing to export yet: the orbit has not been computed")
+        panels = []
+        for title, marks, labels in (("Face-on", self.face_on_marks, ("x [kpc]", "y [kpc]")),
+                                     ("Meridional", self.meridional_marks, ("R [kpc]", "z [kpc]"))):
+            # The tracks fill the face-on box, so the key sits beside the meridional panel only.
+            keyed = title == "Meridional"
+
+            def label(text):
+                return text if keyed else None
+
+            layers = []
+            cloud_x, cloud_y = np.atleast_2d(marks["cloud"].x), np.atleast_2d(marks["cloud"].y)
+            for i in range(cloud_x.shape[0] if np.isfinite(cloud_x).any() else 0):
+                layers.append({"kind": "line", "x": cloud_x[i], "y": cloud_y[i], "color": _COLOURS["cloud"],
+                               "width": 0.6, "label": label("from the uncertainties") if i == 0 else None})
+            for key in ("backward", "forward"):
+                if np.isfinite(marks[key].x).any():
+                    layers.append({"kind": "line", "x": marks[key].x, "y": marks[key].y,
+                                   "color": _COLOURS[key], "label": label(key)})
+            if np.isfinite(marks["rotation"].x).any():
+                layers.append({"kind": "line", "x": marks["rotation"].x, "y": marks["rotation"].y,
+                               "color": _COLOURS["rotation"], "width": 1.5})
+            layers += [
+                {"kind": "scatter", "x": marks["sun"].x, "y": marks["sun"].y, "color": _COLOURS["sun"],
+                 "size": 60, "label": label("Sun")},
+                {"kind": "scatter", "x": [0.0], "y": [0.0], "color": _COLOURS["centre"], "size": 60,
+                 "marker": "P", "label": label("Galactic centre")},
+                {"kind": "scatter", "x": marks["star"].x, "y": marks["star"].y, "color": _COLOURS["star"],
+                 "size": 20, "label": label("star (t = 0)")},
+            ]
+            notes = (["grey arrow: sense of Galactic rotation (clockwise seen from the north pole)"] if not keyed
+                     else ["rotation is toward the viewer (perpendicular to this plane)"])
+            panels.append(Panel(title, *labels, layers, equal_aspect=True, notes=notes, legend_outside=keyed))
+        return panels
+
+    # ================================================================== sharing
+    def _config(self):
+        star = {"source": self.source.value,
+                "observables": {k: float(f.value) for k, f in self.observable_fields.items()},
+                "errors": {k: float(f.value) for k, f in self.error_fields.items()},
+                "distance_input": self.distance_input.value,
+                "phase_space": {k: float(f.value) for k, f in self.phase_fields.items()},
+                "row": int(self.row_selector.value)}
+        if self.source.value == "table":
+            star["row_values"] = {k: v for k, v in self._row_values().items() if k != "source_id"}
+            star["note"] = "the table itself is not saved; pass stars= again to use it"
+        return {"star": star, "t_forward_gyr": float(self.time_fields["t_forward"].value),
+                "t_backward_gyr": float(self.time_fields["t_backward"].value),
+                "n_points": int(self.n_points.value), "cloud": bool(self.cloud_toggle.value),
+                "n_cloud": int(self.n_cloud.value), "seed": self._seed}
+
+    def load_config(self, config):
+        """Apply a dict produced by :attr:`config` (one recomputation at the end)."""
+        self._loading = True
+        try:
+            super().load_config(config)
+        finally:
+            self._loading = False
+
+    def _load_config(self, config):
+        config = dict(config)
+        known = {"star", "t_forward_gyr", "t_backward_gyr", "n_points", "cloud", "n_cloud", "seed"}
+        unknown = set(config) - known
+        if unknown:
+            raise ValueError(f"unknown OrbitExplorer settings {sorted(unknown)}; expected {sorted(known)}")
+        self._loading = True
+        star = config.get("star", {})
+        for key, value in star.get("observables", {}).items():
+            self.observable_fields[key].show(float(value))
+        for key, value in star.get("errors", {}).items():
+            self.error_fields[key].show(float(value))
+        for key, value in star.get("phase_space", {}).items():
+            self.phase_fields[key].show(float(value))
+        if "distance_input" in star:
+            self.distance_input.value = star["distance_input"]
+        source = star.get("source", self.source.value)
+        if source == "table":
+            if self._stars is None:
+                # No table here: fall back to the row's saved values as typed observables.
+                values = star.get("row_values", {})
+                for key, field in {**self.observable_fields, **self.error_fields}.items():
+                    if np.isfinite(values.get(key, np.nan)):
+                        field.show(float(values[key]))
+                self.distance_input.value = "parallax" if np.isfinite(values.get("parallax", np.nan)) \
+                    else "distance"
+                source = "observables"
+            else:
+                self.row_selector.value = int(star.get("row", 0))
+                self._show_row_label()
+        self.source.value = source
+        if "t_forward_gyr" in config:
+            self.time_fields["t_forward"].show(float(config["t_forward_gyr"]))
+        if "t_backward_gyr" in config:
+            self.time_fields["t_backward"].show(float(config["t_backward_gyr"]))
+        if "n_points" in config:
+            self.n_points.value = int(config["n_points"])
+        if "cloud" in config:
+            self.cloud_toggle.value = bool(config["cloud"])
+        if "n_cloud" in config:
+            self.n_cloud.value = int(config["n_cloud"])
+        if "seed" in config:
+            self._seed = int(config["seed"])
+
+    def _code(self, request):
+        frame = request["frame"]
+        pot_cfg = request["potential_config"]
+        lines = ["import numpy as np", "from astropy.table import QTable", "import mwkin as mk", "",
+                 f"frame = mk.SolarFrame(R0={frame.R0!r}, z_sun={frame.z_sun!r}, v_sun={tuple(frame.v_sun)!r})"]
+        if pot_cfg["preset"]:
+            lines.append(f"pot = mk.Potential.preset({pot_cfg['preset']!r})")
+        else:
+            lines.append(f"pot = mk.Potential.three_component(**{pot_cfg['parameters']!r})")
+        if pot_cfg["match_frame_vc"]:
+            lines.append(f"pot = pot.scaled_to(frame.v_sun[1] - {pot_cfg['solar_V']!r}, "
+                         "(frame.R0**2 - (frame.z_sun / 1000)**2) ** 0.5)  # match the frame's vc")
+        star = request["star"]
+        cloud = request["cloud"]
+        values = {**star["values"], **(star["errors"] if cloud else {})}
+        columns = ", ".join(f"{k!r}: [{v!r}]" for k, v in values.items())
+        lines.append(f"star = QTable({{{columns}}})  # {_UNITS_CODE[star['kind']]}")
+        if star["kind"] == "observables":
+            choice = "mk.DistanceColumn()" if "distance" in star["values"] else "mk.InverseParallax(min_snr=0)"
+            errors = ', errors="linear", return_covariance=True' if cloud else ""
+            lines.append(f"star = mk.to_galactocentric(star, frame=frame, distance={choice}{errors})")
+        t_f, t_b, n = request["t_forward"], request["t_backward"], request["n_points"]
+        grids = ([("orbits", t_f)] if t_f > 0 else []) + ([("backward" if t_f > 0 else "orbits", -t_b)] if t_b > 0 else [])
+        for name, end in grids:
+            lines.append(f"{name} = mk.integrate_orbits(star, pot, frame=frame, t=np.linspace(0.0, {end!r}, {n}))"
+                         "  # Gyr")
+        lines.append("print(orbits.rperi, orbits.rapo, orbits.zmax, orbits.eccentricity)")
+        if cloud:
+            span = t_f if t_f > 0 else -t_b
+            lines += ["# the cloud: orbits of stars drawn from the linear covariance of x..vz",
+                      f"cloud = mk.orbit_parameters(star, pot, frame=frame, method=\"integrate\", "
+                      f"t=np.linspace(0.0, {span!r}, {min(n, CLOUD_POINTS)}), n_samples={request['n_cloud']}, "
+                      f"seed={request['seed']})",
+                      "print(cloud[\"rapo_p16\"], cloud[\"rapo_p84\"])"]
+        return "\n".join(lines) + "\n"
+
+
+_UNITS_CODE = {"observables": "ra, dec in deg, parallax in mas (distance in kpc), pm in mas/yr, km/s",
+               "phase_space": "Galactocentric x, y, z in kpc, vx, vy, vz in km/s"}
+
+
+# ====================================================================== helpers (no widget access)
+def _set_xy(mark, x, y):
+    with mark.hold_sync():
+        mark.x = np.asarray(x, dtype=float)
+        mark.y = np.asarray(y, dtype=float)
+
+
+def _rotation_arc(radius, half_angle=0.7, n=40):
+    """A clockwise arc around the centre (the sense of rotation seen from the north Galactic pole,
+    x right, y up) with an arrow head, as one polyline broken by NaN, and where to put its label."""
+    # The Sun (azimuth pi in the x-y plane) moves toward +y, i.e. toward decreasing polar angle.
+    a = np.linspace(math.pi + half_angle, math.pi - half_angle, n)
+    x, y = radius * np.cos(a), radius * np.sin(a)
+    tip = np.array([x[-1], y[-1]])
+    direction = np.array([math.sin(a[-1]), -math.cos(a[-1])])   # d(position)/d(-a)
+    head = 0.12 * radius
+    wings = []
+    for turn in (+0.45, -0.45):
+        c, s = math.cos(math.pi + turn), math.sin(math.pi + turn)
+        back = np.array([c * direction[0] - s * direction[1], s * direction[0] + c * direction[1]])
+        wings.append(tip + head * back)
+    xs = np.concatenate([x, [np.nan, wings[0][0], tip[0], wings[1][0]]])
+    ys = np.concatenate([y, [np.nan, wings[0][1], tip[1], wings[1][1]]])
+    return {"x": xs, "y": ys, "label_x": -0.72 * radius, "label_y": 0.0,
+            "tip": tip, "direction": direction}
+
+
+def _star_table(star):
+    """One-row QTable of a star request (observables with errors, or Galactocentric phase space)."""
+    from astropy.table import QTable
+
+    columns = {k: [v] for k, v in {**star["values"], **star["errors"]}.items()}
+    return QTable(columns)
+
+
+def _integrate(stars, pot, frame, t):
+    """:func:`mwkin.integrate_orbits` with the widget's inputs (one place, so the snippet matches)."""
+    from ..orbits import integrate_orbits
+
+    return integrate_orbits(stars, pot, frame=frame, t=t)
+
+
+def _parallax_caveat(star):
+    """A warning when the star's distance is 1/parallax at parallax/error below 5, else ''."""
+    values, errors = star["values"], star["errors"]
+    if "parallax" not in values or not errors.get("parallax_error"):
+        return ""
+    snr = values["parallax"] / errors["parallax_error"]
+    if snr >= 5:
+        return ""
+    return (f"parallax/error = {snr:.1f} < 5: 1/parallax is a biased, noisy distance here "
+            "(Bailer-Jones 2015, PASP 127, 994); the orbit cloud shows how uncertain the orbit is")
+
+
+def _distance_choice(star):
+    """The distance choice for a one-star request: the distance typed, or 1/parallax without a cut.
+
+    The user typed (or picked) this one star, so its parallax is inverted whatever its signal-to-noise;
+    the read-out warns when that is below 5 (Bailer-Jones 2015, PASP 127, 994).
+    """
+    from ..distances import DistanceColumn, InverseParallax
+
+    return DistanceColumn() if "distance" in star["values"] else InverseParallax(min_snr=0)
+
+
+def _phase_space(star, frame, want_covariance=False):
+    """Galactocentric x..vz of the star (a one-row QTable) and, if asked, its (1, 6, 6) covariance."""
+    from ..kinematics import to_galactocentric
+
+    table = _star_table(star)
+    if star["kind"] == "phase_space":
+        return table, None
+    errors = "linear" if want_covariance else "none"
+    gc = to_galactocentric(table, frame=frame, distance=_distance_choice(star), errors=errors,
+                           return_covariance=want_covariance)
+    if gc["flag"][0]:
+        raise ValueError(f"the star has no Galactocentric position and velocity: {gc['flag'][0]}")
+    cov = _plain(gc["cov_galactocentric"]).reshape(1, 6, 6) if want_covariance else None
+    return gc[list(_PHASE_SPACE)], cov
+
+
+def _draw_stars(phase, cov, n, seed):
+    """``n`` Galactocentric phase-space points (n, 6) drawn from the star's linear covariance.
+
+    The covariance of x..vz is ``to_galactocentric(errors="linear", return_covariance=True)``'s and the
+    draws are the orbits module's sampler, as in ``orbit_parameters(n_samples=...)``, so with the same
+    seed the cloud holds the samples that function summarises.
+    """
+    from ..orbits import _draw_samples
+
+    if cov is None or not np.all(np.isfinite(cov)):
+        raise ValueError("the star's uncertainties give no finite covariance; give the parallax (or distance), "
+                         "pmra, pmdec and radial_velocity errors")
+    xyz = np.column_stack([_plain(phase[c]) for c in _PHASE_SPACE])
+    return _draw_samples(xyz, cov, int(n), np.random.default_rng(seed)).reshape(-1, 6)
+
+
+def _track_arrays(orbits, i):
+    """Track of orbit ``i`` as float64 arrays x, y, z, R (kpc) and t (Gyr)."""
+    c = orbits.cylindrical[i]
+    return {"x": -c[:, 0] * np.cos(c[:, 1]), "y": c[:, 0] * np.sin(c[:, 1]), "z": c[:, 2], "R": c[:, 0],
+            "t": _plain(orbits.t)}
+
+
+def _cloud_arrays(orbits):
+    """All cloud tracks as (N, nt) arrays x, y, z, R (kpc); failed draws dropped."""
+    c = orbits.cylindrical
+    keep = np.all(np.isfinite(c[..., 0]), axis=1)
+    c = c[keep]
+    return {"x": -c[..., 0] * np.cos(c[..., 1]), "y": c[..., 0] * np.sin(c[..., 1]), "z": c[..., 2], "R": c[..., 0]}

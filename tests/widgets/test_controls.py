@@ -1,0 +1,256 @@
+"""FrameControls and PotentialControls driven from Python: they write the state and follow it."""
+
+from __future__ import annotations
+
+import re
+
+import numpy as np
+import pytest
+
+import mwkin as mk
+from mwkin.galactic import K_KMS_PER_MASYR_KPC
+from mwkin.widgets import FrameControls, FrameState
+
+
+# --------------------------------------------------------------------------- FrameControls
+def test_every_frame_control_has_a_css_class_and_a_unit():
+    controls = FrameControls(FrameState())
+    for key, unit in [("R0", "kpc"), ("z_sun", "pc"), ("vc", "km/s"), ("U", "km/s"), ("vx", "km/s")]:
+        field = controls.fields[key]
+        assert f"[{unit}]" in field.text.description
+        assert any(c.startswith("mwkin-") and c != "mwkin-field" for c in field._dom_classes)
+    assert "mwkin-R0" in controls.fields["R0"]._dom_classes
+    assert "mwkin-zsun" in controls.fields["z_sun"]._dom_classes
+
+
+def test_typing_R0_writes_the_state_and_marks_the_frame_custom():
+    state = FrameState()
+    controls = FrameControls(state)
+    controls.fields["R0"].text.value = 8.3
+    assert state.R0 == 8.3
+    assert state.preset == ""
+    assert controls.preset_dropdown.value == "custom"
+    assert "custom" in controls.preset_dropdown.options
+    assert controls.fields["R0"].slider.value == pytest.approx(8.3)
+
+
+def test_the_slider_writes_the_state_and_the_text_box():
+    state = FrameState()
+    controls = FrameControls(state)
+    controls.fields["z_sun"].slider.value = 25.0
+    assert state.z_sun == pytest.approx(25.0)
+    assert controls.fields["z_sun"].text.value == pytest.approx(25.0)
+
+
+def test_state_changes_from_elsewhere_show_in_the_controls():
+    state = FrameState()
+    controls = FrameControls(state)
+    state.set_frame(mk.SolarFrame.preset("astropy pre-v4.0"))
+    assert controls.fields["R0"].value == pytest.approx(8.3)
+    assert controls.fields["vy"].value == pytest.approx(232.24)
+    assert controls.preset_dropdown.value == "astropy pre-v4.0"
+    assert "custom" not in controls.preset_dropdown.options
+    # the citation of the chosen preset is shown under the chooser
+    assert "Gillessen" in controls.citation.value
+
+
+def test_uvw_plus_vc_converts_to_and_from_the_cartesian_v_sun():
+    state = FrameState()
+    controls = FrameControls(state, solar_V=12.24)
+    # v_sun = (U, vc + V, W) (SolarFrame.from_lsr)
+    assert controls.fields["vc"].value == pytest.approx(245.6 - 12.24)
+    assert controls.fields["U"].value == pytest.approx(12.9)
+    assert controls.fields["W"].value == pytest.approx(7.78)
+    controls.fields["vc"].text.value = 230.0
+    assert state.v_sun == pytest.approx((12.9, 242.24, 7.78))
+    controls.fields["V"].text.value = 5.0      # vc kept, the split changes
+    assert state.v_sun[1] == pytest.approx(235.0)
+    controls.fields["U"].text.value = 11.1
+    assert state.v_sun[0] == pytest.approx(11.1)
+    assert controls.fields["vx"].value == pytest.approx(11.1)
+    # the state holds only v_sun: no U/V/W/vc traits were added to it
+    assert not {"U", "V", "W", "vc"} & set(state.trait_names())
+
+
+def test_representation_toggle_switches_the_visible_velocity_fields():
+    controls = FrameControls(FrameState())
+    assert controls.cartesian_box.layout.display == "none"
+    controls.representation.value = "cartesian"
+    assert controls.lsr_box.layout.display == "none"
+    assert controls.cartesian_box.layout.display != "none"
+    controls.fields["vy"].text.value = 250.0
+    assert controls.state.v_sun[1] == 250.0
+
+
+def test_a_refused_value_stays_typed_and_the_error_is_shown():
+    state = FrameState()
+    controls = FrameControls(state)
+    controls.fields["R0"].text.value = -2.0
+    assert state.R0 == pytest.approx(8.122)              # the state kept its value
+    assert controls.fields["R0"].value == -2.0           # the typed value is not lost
+    assert "mwkin-invalid" in controls.fields["R0"]._dom_classes
+    assert controls.status.startswith("error") and "R0 must be positive" in controls.status
+    controls.fields["z_sun"].text.value = 1e6
+    assert "z_sun" in controls.status and state.z_sun == pytest.approx(20.8)
+    controls.fields["R0"].text.value = 8.0
+    controls.fields["z_sun"].text.value = 25.0
+    assert controls.status == "ready"
+    assert "mwkin-invalid" not in controls.fields["R0"]._dom_classes
+
+
+def test_reset_returns_to_the_last_preset_chosen():
+    state = FrameState()
+    controls = FrameControls(state)
+    controls.preset_dropdown.value = "astropy pre-v4.0"
+    controls.fields["R0"].text.value = 9.0
+    controls.fields["z_sun"].text.value = -1e6             # refused, still typed
+    controls.reset()
+    assert state.frame == mk.SolarFrame.preset("astropy pre-v4.0")
+    assert controls.fields["z_sun"].value == pytest.approx(27.0)
+    assert controls.status == "ready"
+
+
+def test_reflex_line_for_the_v4_preset_agrees_with_the_sgr_a_star_motion():
+    controls = FrameControls(FrameState())
+    reflex = controls.reflex
+    # Reid & Brunthaler 2004, ApJ 616, 872: 6.379 +/- 0.024 mas/yr along the Galactic plane;
+    # the v4.0 preset was built to match it (245.6 / (k * 8.122) = 6.3789, REFERENCES.md).
+    assert -reflex["mu_l"] == pytest.approx(6.379, abs=0.024)
+    assert -reflex["mu_l"] == pytest.approx(245.6 / (K_KMS_PER_MASYR_KPC * 8.122), abs=2e-3)
+    # difference from Reid & Brunthaler 2020 (mu_l = -6.411 +/- 0.008) in sigma, as shown
+    assert reflex["sigma_l"] == pytest.approx((reflex["mu_l"] + 6.411) / 0.008)
+    numbers = re.findall(r"[-+]?\d+\.\d+", controls.reflex_text)
+    assert f"{reflex['mu_l']:.3f}" in numbers and "-6.411" in numbers
+    assert f"{reflex['sigma_l']:+.1f}σ" in controls.reflex_text
+
+
+def test_reflex_line_follows_the_frame():
+    state = FrameState()
+    controls = FrameControls(state)
+    before = controls.reflex_text
+    state.R0 = 8.178
+    state.v_sun = (11.1, 6.411 * K_KMS_PER_MASYR_KPC * 8.178, 7.25)
+    assert controls.reflex_text != before
+    # an azimuthal velocity of k R0 |mu_l| reproduces the measured mu_l to the tilt's second order
+    # (Reid & Brunthaler 2020 value; the frame tilt from z_sun changes mu_l by < 1e-3 mas/yr)
+    assert abs(controls.reflex["sigma_l"]) < 0.2
+
+
+# --------------------------------------------------------------------------- PotentialControls
+from mwkin.widgets import PotentialControls, PotentialState  # noqa: E402
+
+
+def controls_at_8kpc():
+    """Potential controls with a frame at R0 = 8 kpc in the plane (z_sun = 0)."""
+    frame = FrameState()
+    frame.z_sun = 0.0
+    frame.R0 = 8.0
+    pot = PotentialState()
+    return PotentialControls(pot, frame, threaded=True).wait(), pot, frame
+
+
+def test_mwpotential2014_shows_220_kms_at_8_kpc():
+    controls, pot, frame = controls_at_8kpc()
+    # MWPotential2014: vc(8 kpc) = 220 km/s (Bovy 2015, ApJS 216, 29)
+    assert controls.result["vc_pot"] == pytest.approx(220.0, abs=0.05)
+    assert "220.0 km/s" in controls.readout.value
+    assert "Bovy 2015" in controls.citation.value
+    assert controls.status.startswith("ready")
+
+
+def test_rotation_curve_has_total_and_components_that_add_in_quadrature():
+    controls, _, _ = controls_at_8kpc()
+    mark = controls.curve_mark
+    assert list(mark.labels) == ["total", "bulge", "disc", "halo"]
+    y = np.asarray(mark.y, dtype=float)
+    assert y.shape == (4, np.asarray(mark.x).size)
+    # vc^2 = sum of the components' vc^2 (forces add; common practice, no source)
+    np.testing.assert_allclose(y[0] ** 2, (y[1:] ** 2).sum(axis=0), rtol=1e-10)
+    # against galpy directly: MWPotential2014 at R = 8 kpc is 220 km/s in galpy's units (ro=8, vo=220)
+    from galpy.potential import MWPotential2014, vcirc
+    R = np.asarray(mark.x, dtype=float)
+    i = np.argmin(np.abs(R - 12.0))
+    assert y[0, i] == pytest.approx(220.0 * vcirc(MWPotential2014, R[i] / 8.0), rel=1e-9)
+
+
+def test_frame_vc_is_marked_at_R0_and_follows_the_frame():
+    controls, pot, frame = controls_at_8kpc()
+    assert controls.frame_mark.x[0] == pytest.approx(8.0)
+    assert controls.frame_mark.y[0] == pytest.approx(245.6 - 12.24)
+    curve = np.asarray(controls.curve_mark.y, dtype=float).copy()
+    frame.v_sun = (12.9, 250.0, 7.78)
+    controls.wait()
+    assert controls.frame_mark.y[0] == pytest.approx(250.0 - 12.24)
+    # without matching, the frame does not change the model's curve (it is reused, not recomputed)
+    np.testing.assert_array_equal(np.asarray(controls.curve_mark.y, dtype=float), curve)
+    pot.solar_V = 10.0
+    controls.wait()
+    assert controls.frame_mark.y[0] == pytest.approx(240.0)
+    assert controls.solar_V_field.value == pytest.approx(10.0)
+
+
+def test_a_slider_switches_to_the_three_component_model_and_redraws():
+    controls, pot, _ = controls_at_8kpc()
+    before = np.asarray(controls.curve_mark.y, dtype=float).copy()
+    field, factor = controls.sliders[("disc", "mass")]
+    assert factor == 1e10 and "[1e10 Msun]" in field.text.description
+    assert "[kpc]" in controls.sliders[("disc", "a")][0].text.description
+    field.slider.value = 9.0
+    controls.wait()
+    assert pot.preset == "" and pot.parameters["disc"]["mass"] == pytest.approx(9.0e10)
+    assert controls.preset_dropdown.value == ""
+    after = np.asarray(controls.curve_mark.y, dtype=float)
+    assert not np.allclose(before, after)
+    assert controls.result["vc_pot"] > 225.0                  # a heavier disc, a faster rotation
+    assert controls.parameter_box.layout.display != "none"
+
+
+def test_a_refused_parameter_stays_typed_with_the_error_shown():
+    controls, pot, _ = controls_at_8kpc()
+    pot.preset = ""
+    controls.wait()
+    field, _ = controls.sliders[("halo", "scale")]
+    field.text.value = -4.0
+    assert field.value == -4.0
+    assert pot.parameters["halo"]["scale"] == pytest.approx(16.0)
+    assert controls.status.startswith("error") and "halo.scale" in controls.status
+    assert "mwkin-invalid" in field._dom_classes
+
+
+def test_matching_the_frame_rescales_vc_at_the_sun():
+    controls, pot, frame = controls_at_8kpc()
+    controls.match_checkbox.value = True
+    controls.wait()
+    assert pot.match_frame_vc
+    assert controls.result["vc_pot"] == pytest.approx(245.6 - 12.24, rel=1e-9)
+    assert "+0.0 km/s" in controls.readout.value
+    curve = np.asarray(controls.curve_mark.y, dtype=float).copy()
+    frame.R0 = 8.3
+    controls.wait()
+    assert controls.result["vc_pot"] == pytest.approx(245.6 - 12.24, rel=1e-9)
+    assert not np.allclose(np.asarray(controls.curve_mark.y, dtype=float), curve)   # rescaled model
+
+
+def test_choosing_a_preset_shows_busy_then_the_citation():
+    pot = PotentialState()
+    controls = PotentialControls(pot, FrameState(), threaded=True).wait()
+    controls.preset_dropdown.value = "Irrgang13I"
+    # the first build of a model goes to the worker thread and says so at once
+    assert "building Irrgang13I" in controls.status or controls.status.startswith("ready")
+    controls.wait()
+    assert pot.preset == "Irrgang13I"
+    assert "Irrgang et al. 2013" in controls.citation.value
+    assert controls.status.startswith("ready")
+    assert controls.parameter_box.layout.display == "none"
+
+
+def test_the_newest_potential_request_wins():
+    controls, pot, frame = controls_at_8kpc()
+    pot.preset = ""
+    for mass in np.linspace(5.0, 9.0, 8):
+        controls.sliders[("disc", "mass")][0].slider.value = float(mass)
+    controls.wait()
+    from mwkin.potentials import Potential
+    expected = float(Potential.three_component(**pot.parameters).vcirc(8.0).value)
+    assert controls.result["vc_pot"] == pytest.approx(expected, rel=1e-12)
+    assert pot.parameters["disc"]["mass"] == pytest.approx(9.0e10)
