@@ -4,6 +4,11 @@ Everything here binds the core (which never imports this package) to plots. Widg
 :class:`FrameState` / :class:`PotentialState` update together.
 """
 
+from .controls import FrameControls, PotentialControls
+from .oort_fitter import OortFitter
+from .orbit_explorer import OrbitExplorer
 from .state import FrameState, PotentialState
+from .velocity_panel import VelocityPanel
 
-__all__ = ["FrameState", "PotentialState"]
+__all__ = ["FrameState", "PotentialState", "FrameControls", "PotentialControls", "OrbitExplorer",
+           "VelocityPanel", "OortFitter"]
