@@ -171,10 +171,10 @@ _COMPONENTS = ("bulge", "disc", "halo")
 
 def default_three_component_parameters():
     """Parameters of ``Potential.three_component()`` with its defaults, as {"bulge": {...}, ...}."""
-    from ..potentials import Potential
+    # Read the defaults rather than building the model: building imports galpy, which takes seconds.
+    from ..potentials import DEFAULT_BULGE, DEFAULT_DISC, DEFAULT_HALO
 
-    spec = Potential.three_component().to_dict()
-    return {k: dict(spec[k]) for k in _COMPONENTS}
+    return {"bulge": dict(DEFAULT_BULGE), "disc": dict(DEFAULT_DISC), "halo": dict(DEFAULT_HALO)}
 
 
 def potential_from_config(config, frame=None):
