@@ -6,7 +6,15 @@ widget library, so it runs in scripts and batch jobs. See the README for the con
 
 from .frames import SolarFrame
 from .catalog import CatalogError, read_catalog
+from .distances import DistanceColumn, InverseParallax
+from .kinematics import from_galactocentric, to_galactocentric
+from . import demo
+from .potentials import Potential
+from .orbits import OrbitSet, integrate_orbits, orbit_parameters
+from .oort import OortFit, fit_in_distance_bins, fit_oort
 
 __version__ = "0.1.0"
 
-__all__ = ["SolarFrame", "read_catalog", "CatalogError", "__version__"]
+__all__ = ["SolarFrame", "read_catalog", "CatalogError", "Potential", "integrate_orbits", "orbit_parameters",
+           "OrbitSet", "to_galactocentric", "from_galactocentric", "InverseParallax", "DistanceColumn",
+           "fit_oort", "fit_in_distance_bins", "OortFit", "demo", "__version__"]
