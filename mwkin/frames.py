@@ -24,7 +24,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .galactic import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC, radec_to_lb, tangent_basis
+from .galactic import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC, _rot, tangent_basis
 from .units import KMS, to_value
 
 __all__ = ["SolarFrame", "Preset", "ReflexProperMotion", "FrameError"]
@@ -64,15 +64,6 @@ class ReflexProperMotion:
     def total(self):
         """Size of the proper-motion vector, mas/yr."""
         return math.hypot(self.mu_l_star, self.mu_b)
-
-
-def _rot(angle_rad, axis):
-    c, s = math.cos(angle_rad), math.sin(angle_rad)
-    if axis == "x":
-        return np.array([[1.0, 0.0, 0.0], [0.0, c, s], [0.0, -s, c]])
-    if axis == "y":
-        return np.array([[c, 0.0, -s], [0.0, 1.0, 0.0], [s, 0.0, c]])
-    return np.array([[c, s, 0.0], [-s, c, 0.0], [0.0, 0.0, 1.0]])
 
 
 @dataclass(frozen=True)

@@ -376,3 +376,25 @@ def apply_sample_config(widget, config):
         return (f"note: the config was saved with a different sample ({source.describe()}, fingerprint "
                 f"{source.fingerprint}); using the current one ({widget._source.describe()})")
     return ""
+
+
+class SampleInput:
+    """Mixin for widgets that take a star sample: the ``sample`` property and its source.
+
+    The widget implements ``_set_sample(stars, source)``.
+    """
+
+    @property
+    def sample(self):
+        """The input sample as read by ``read_catalog`` (None before one is given); assignable."""
+        return self._stars
+
+    @sample.setter
+    def sample(self, sample):
+        stars, source = load_sample(sample)
+        self._set_sample(stars, source)
+
+    @property
+    def sample_source(self):
+        """Where the sample came from (:class:`SampleSource`)."""
+        return self._source

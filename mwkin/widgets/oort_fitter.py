@@ -19,8 +19,7 @@ from ._base import AnalysisWidget, Panel, error_text
 from ._live import LiveRunner
 from ._plots import (COLOURS, SampleView, band_mark, binned_quantiles, error_bar_mark, legend_html, line_mark,
                      points_mark, set_error_bars, small_figure)
-from ._sample import DistanceControls, SampleLoader, SampleSource, apply_sample_config, inverse_parallax_caveat, \
-    load_sample
+from ._sample import DistanceControls, SampleInput, SampleLoader, SampleSource, apply_sample_config, inverse_parallax_caveat
 
 __all__ = ["OortFitter", "first_order_model", "parameter_table_html", "parse_bins", "DEFAULT_BINS_KPC", "L_BIN_DEG"]
 
@@ -149,7 +148,7 @@ def first_order_model(l_deg, fit, distance_kpc, b_deg=0.0):
     return mu, v_r
 
 
-class OortFitter(AnalysisWidget):
+class OortFitter(SampleInput, AnalysisWidget):
     """Fit the Oort constants A, B, C, K and the solar motion to a sample, live.
 
     Parameters
@@ -321,20 +320,6 @@ class OortFitter(AnalysisWidget):
             width="380px"))
 
     # ------------------------------------------------------------------ sample
-    @property
-    def sample(self):
-        """The input sample as read by ``read_catalog`` (None before one is given); assignable."""
-        return self._stars
-
-    @sample.setter
-    def sample(self, sample):
-        stars, source = load_sample(sample)
-        self._set_sample(stars, source)
-
-    @property
-    def sample_source(self):
-        return self._source
-
     def _set_sample(self, stars, source):
         self._stars, self._source = stars, source
         self._geometry = _SampleGeometry(stars) if stars is not None else None

@@ -17,8 +17,7 @@ import traitlets
 
 from ._base import AnalysisWidget, Panel, error_text
 from ._plots import COLOURS, SampleView
-from ._sample import (DistanceControls, SampleLoader, SampleSource, apply_sample_config, inverse_parallax_caveat,
-                      load_sample)
+from ._sample import (DistanceControls, SampleInput, SampleLoader, SampleSource, apply_sample_config, inverse_parallax_caveat)
 
 __all__ = ["VelocityPanel"]
 
@@ -44,7 +43,7 @@ def _column(table, name):
     return np.asarray(getattr(col, "value", col), dtype=float)
 
 
-class VelocityPanel(AnalysisWidget):
+class VelocityPanel(SampleInput, AnalysisWidget):
     """Space velocities of a sample under the shared solar frame, with a selection mask.
 
     Parameters
@@ -152,21 +151,6 @@ class VelocityPanel(AnalysisWidget):
             self.status_line.show_ready("no sample yet: pass sample=... or load a file")
 
     # ------------------------------------------------------------------ sample
-    @property
-    def sample(self):
-        """The input sample as read by ``read_catalog`` (None before one is given); assignable."""
-        return self._stars
-
-    @sample.setter
-    def sample(self, sample):
-        stars, source = load_sample(sample)
-        self._set_sample(stars, source)
-
-    @property
-    def sample_source(self):
-        """Where the sample came from (:class:`~mwkin.widgets._sample.SampleSource`)."""
-        return self._source
-
     def _set_sample(self, stars, source):
         self._stars, self._source = stars, source
         self._note = ""
