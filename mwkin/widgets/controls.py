@@ -119,6 +119,11 @@ class NumberField(widgets.HBox):
     def _slider_moved(self, change):
         if self._quiet:
             return
+        # A slider shown in the browser snaps the value it was given to its step grid and sends it
+        # back (12.9 -> 12.899999999999999). That echo is not an edit: ignore anything closer than
+        # half a step to the value in the text box. A real move (one key press) is a whole step.
+        if abs(change["new"] - self.text.value) < 0.5 * self.slider.step:
+            return
         self._quiet = True
         try:
             self.text.value = change["new"]

@@ -355,7 +355,9 @@ class OortFitter(SampleInput, AnalysisWidget):
         return self
 
     def _settings(self):
-        return {"distance_range": [float(v) for v in self.distance_range.value],
+        # The front end snaps the range to the slider's step and echoes values like 0.49999999999999994;
+        # rounding far below the step keeps the settings (and the config) at what the user chose.
+        return {"distance_range": [round(float(v), 9) for v in self.distance_range.value],
                 "max_pm_error": float(self.max_pm_error.value), "max_abs_b": float(self.max_abs_b.value),
                 "use": self.use.value, "robust": bool(self.robust.value), "bootstrap": int(self.bootstrap.value),
                 "seed": self.seed, "bins": self.bins_text.value, "residual": self.residual.value,

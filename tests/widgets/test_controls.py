@@ -42,6 +42,26 @@ def test_the_slider_writes_the_state_and_the_text_box():
     assert controls.fields["z_sun"].text.value == pytest.approx(25.0)
 
 
+def test_a_slider_snapping_echo_from_the_browser_is_not_an_edit():
+    # The front end snaps values to the step grid and sends them back (seen in JupyterLab:
+    # 12.9 -> 12.899999999999999); that must leave the preset and the potential untouched.
+    from mwkin.widgets import PotentialControls, PotentialState
+
+    state = FrameState()
+    controls = FrameControls(state)
+    field = controls.fields["z_sun"]
+    field.slider.value = field.text.value - 1e-12
+    assert state.preset == "astropy v4.0"
+    assert state.z_sun == 20.8
+    pot_state = PotentialState()
+    pot_controls = PotentialControls(pot_state)
+    for (component, name), (pfield, factor) in pot_controls.sliders.items():
+        pfield.slider.value = round(pfield.text.value, 2)
+    assert pot_state.preset == "MWPotential2014"
+    field.slider.value = field.text.value + field.slider.step
+    assert state.preset == "" and state.z_sun > 20.8
+
+
 def test_state_changes_from_elsewhere_show_in_the_controls():
     state = FrameState()
     controls = FrameControls(state)
