@@ -32,3 +32,12 @@ def test_notebook_runs(path, tmp_path):
     assert not errors, errors
     # The kernel is the test's own interpreter environment, so mwkin resolves to this checkout.
     assert sys.executable
+
+
+def test_notebooks_match_their_generator_script():
+    # The notebooks are written by example_notebooks/_build_notebooks.py; --check fails on any drift.
+    import subprocess
+
+    result = subprocess.run([sys.executable, str(NOTEBOOK_DIR / "_build_notebooks.py"), "--check"],
+                            capture_output=True, text=True)
+    assert result.returncode == 0, result.stdout + result.stderr
