@@ -82,7 +82,8 @@ function render({ model, el }) {
   canvas.style.cssText = "display:block;touch-action:none";
   const readout = document.createElement("div");
   readout.className = "mwkin-galaxy-readout";
-  readout.style.cssText = "margin-top:3px;min-height:1.3em;white-space:nowrap";
+  // wraps within the canvas width (a long line was clipped in narrow layouts)
+  readout.style.cssText = "margin-top:3px;min-height:1.3em;white-space:normal";
   root.appendChild(canvas);
   root.appendChild(readout);
   el.appendChild(root);
@@ -121,6 +122,7 @@ function render({ model, el }) {
     const W = model.get("width");
     const H = model.get("height");
     const dpr = sizeCanvas(canvas, W, H);
+    readout.style.maxWidth = `${W}px`;
     const rect = { left: MARGIN.left, top: MARGIN.top, width: W - MARGIN.left - MARGIN.right, height: H - MARGIN.top - MARGIN.bottom };
     const [xd, yd] = equalAspect(view.x, view.y, rect.width, rect.height);
     const sx = linearScale(xd[0], xd[1], rect.left, rect.left + rect.width);

@@ -1,16 +1,24 @@
 """OrbitExplorer: the orbit of one star in the shared frame and potential, recomputed live.
 
 The star comes from a table row, from typed observables or from typed Galactocentric phase space. The
-orbit is integrated forward and backward with :func:`mwkin.integrate_orbits` and drawn face-on (x, y)
-and in the meridional plane (R, z), both at equal aspect, with the Sun, the centre and the sense of
-Galactic rotation marked. A toggle adds faint orbits of stars drawn from the measurement uncertainties.
+orbit is integrated forward and backward with :func:`mwkin.integrate_orbits` and drawn face-on (x, y) in
+a :class:`~mwkin.widgets.views.GalaxyView` and in the meridional plane (R, z) with bqplot, both at equal
+aspect, with the Sun, the centre and the sense of Galactic rotation marked. A toggle adds faint orbits of
+stars drawn from the measurement uncertainties.
+
+Dragging the tip of the star's velocity arrow in the face-on view sets the star's initial in-plane
+Galactocentric velocity (vx, vy); the orbit is recomputed through the widget's live runner while the
+arrow moves (the browser sends at most one value per animation frame, the newest request wins). A star
+given as observables or as a table row is converted to phase space with the frame of that moment at the
+first drag; the star as given is kept (``config["star"]["original"]``) and a button brings it back.
 """
 
 from __future__ import annotations
 
 import html
 import math
-from dataclasses import dataclass
+import threading
+from dataclasses import dataclass, field
 
 import ipywidgets as widgets
 import numpy as np
@@ -18,6 +26,7 @@ import numpy as np
 from ._base import AnalysisWidget, Panel
 from .controls import NumberField
 from .state import potential_from_config
+from .views import GalaxyView
 
 __all__ = ["OrbitExplorer", "OrbitView", "DEFAULT_STAR"]
 
@@ -36,22 +45,27 @@ _OBSERVABLES = {
 _OBS_ERRORS = {"parallax_error": "σ parallax [mas]", "distance_error": "σ distance [kpc]",
                "pmra_error": "σ pmra [mas/yr]", "pmdec_error": "σ pmdec [mas/yr]",
                "radial_velocity_error": "σ radial_velocity [km/s]"}
-#: Typed Galactocentric phase space (astropy's Galactocentric axes).
+#: Typed Galactocentric phase space (astropy's Galactocentric axes). vx and vy have no slider: the
+#: velocity arrow of the face-on view is their live control (a slider would also echo each dragged
+#: value back rounded to its step, racing the drag).
 _PHASE_SPACE = {"x": ("x [kpc]", None), "y": ("y [kpc]", None), "z": ("z [kpc]", None),
-                "vx": ("vx [km/s]", (-400.0, 400.0, 0.5)), "vy": ("vy [km/s]", (-400.0, 400.0, 0.5)),
+                "vx": ("vx [km/s]", None), "vy": ("vy [km/s]", None),
                 "vz": ("vz [km/s]", (-300.0, 300.0, 0.5))}
 DEFAULT_PHASE_SPACE = {"x": -8.0, "y": 0.5, "z": 0.1, "vx": 10.0, "vy": 230.0, "vz": 5.0}
 
 _SOURCES = {"table": "table row", "observables": "observables", "phase_space": "phase space"}
 _COLOURS = {"forward": "#1f5fa8", "backward": "#d0661f", "cloud": "#9fb6d3", "sun": "#e0a800",
-            "centre": "#222222", "rotation": "#6a6a6a", "star": "#1f5fa8"}
+            "centre": "#222222", "rotation": "#6a6a6a", "star": "#1f5fa8", "velocity": "#d6275a"}
 
 #: Output points of each cloud orbit (at most; fewer if the main orbit has fewer).
 CLOUD_POINTS = 501
 
 #: The plots' key, under them (the tracks fill the boxes, so an in-plot legend would hide them).
 _KEY_HTML = (
-    "<small>"
+    "<small><b>face-on</b> (top): the whole integrated span as one line, the Sun, the Galactic centre, "
+    "the sense of Galactic rotation and the star with its initial velocity in the plane; "
+    "<b>drag the arrow's tip</b> to change that velocity (pan: drag elsewhere; zoom: wheel).<br>"
+    "<b>meridional</b> (below it): "
     f"<span style='color:{_COLOURS['forward']}'>━ forward</span> &nbsp; "
     f"<span style='color:{_COLOURS['backward']}'>╍ backward</span> &nbsp; "
     f"<span style='color:{_COLOURS['cloud']}'>━ from the uncertainties</span> &nbsp; "
@@ -61,8 +75,10 @@ _KEY_HTML = (
     f"<span style='color:{_COLOURS['rotation']}'>↻ sense of rotation (clockwise seen from the north "
     "Galactic pole; toward you in the meridional view)</span></small>")
 
-_FACE_PX = 380          # face-on figure: square, equal margins -> equal aspect
-_MER_W, _MER_H = 460, 250
+_FACE_PX = 420          # face-on GalaxyView: square (the view itself keeps equal aspect)
+#: Arrow scale of the face-on view: a 250 km/s arrow spans this fraction of the view's half-width.
+_ARROW_FRACTION = 0.3
+_MER_W, _MER_H = _FACE_PX, 240   # meridional figure, under the face-on view
 _MARGIN = 45
 
 
@@ -80,6 +96,10 @@ class OrbitView:
     potential : Potential
         The potential used (after matching the frame, if asked).
     frame : SolarFrame
+    start : numpy.ndarray, shape (6,)
+        The star's Galactocentric x, y, z (kpc), vx, vy, vz (km/s) at t = 0.
+    note : str
+        Said in the status line after the summary (e.g. that the velocity was set by dragging).
     """
 
     orbits: object
@@ -87,6 +107,23 @@ class OrbitView:
     cloud: object
     potential: object
     frame: object
+    start: np.ndarray = field(default_factory=lambda: np.full(6, np.nan))
+    note: str = ""
+
+
+class _Field(NumberField):
+    """A :class:`NumberField` that ignores its slider repeating a shown value at the slider's step.
+
+    The browser's slider snaps a value set from Python (e.g. vz = -10.83 with step 0.5) to its grid and,
+    with ``continuous_update``, sends the snapped value back as if the user had moved it; that would
+    silently replace a converted or restored value by a rounded one. A value within half a step of the
+    text box's is the slider showing that value, not a move (a real move lands on another grid point).
+    """
+
+    def _slider_moved(self, change):
+        if self.slider is not None and abs(change["new"] - self.text.value) <= 0.5 * self.slider.step * (1 + 1e-9):
+            return
+        super()._slider_moved(change)
 
 
 def _plain(value):
@@ -123,6 +160,14 @@ class OrbitExplorer(AnalysisWidget):
     ``.result`` is the :class:`~mwkin.orbits.OrbitSet` of the forward integration (or of the backward
     one when ``t_forward`` is 0); :attr:`view` holds both directions and the cloud. The orbital
     parameters shown cover the whole integrated span (backward and forward together).
+
+    The face-on view is :attr:`galaxy_view`. Its ``velocity_xy`` (km/s, astropy's Galactocentric axes)
+    is the star's initial in-plane velocity: setting it, by dragging the arrow in the browser or from
+    Python, makes the star typed phase space with that (vx, vy), keeping x, y, z and vz. A star given
+    as observables or a table row is first converted with the current frame; from then on a change of
+    the frame moves the Sun but no longer the star (phase space does not depend on the frame), and the
+    orbit cloud is off (phase space has no uncertainties). The star as given stays in
+    ``config["star"]["original"]``; :meth:`restore_star` (the "back to ..." button) brings it back.
     """
 
     def __init__(self, frame=None, potential=None, star=None, *, stars=None, row=0, t_forward=1.0,
@@ -131,6 +176,10 @@ class OrbitExplorer(AnalysisWidget):
         self._loading = False
         self._stars = None
         self._seed = int(seed)
+        self._original = None        # the star as given, once a drag has turned it into phase space
+        self._keep_view = False      # the next request comes from a drag: keep the face-on view's range
+        self._syncing = threading.local()   # set while _show writes the view's velocity (not a drag)
+        self._drawn = None
         star = dict(star or {})
         if star and set(star) & set(_PHASE_SPACE) and not set(star) & {"ra", "dec"}:
             source, obs, phase = "phase_space", dict(DEFAULT_STAR), {**DEFAULT_PHASE_SPACE, **star}
@@ -150,13 +199,24 @@ class OrbitExplorer(AnalysisWidget):
         self._build_figures()
         self.readout = widgets.HTML()
         self.readout.add_class("mwkin-orbit-parameters")
+        self.drag_note = widgets.HTML()
+        self.drag_note.add_class("mwkin-drag-note")
+        self.restore_button = widgets.Button(description="back to the star as given", icon="undo",
+                                             tooltip="undo the dragged velocity: use the star as it was "
+                                                     "given before the first drag",
+                                             layout=widgets.Layout(width="auto", display="none"))
+        self.restore_button.add_class("mwkin-restore-star")
+        self.restore_button.on_click(lambda _: self.restore_star())
 
-        left = widgets.VBox([self.source, self.table_box, self.observables_box, self.phase_box,
-                             self.time_box, self.cloud_box], layout=widgets.Layout(width="30em"))
+        left = widgets.VBox([self.source, self.drag_note, self.restore_button, self.table_box,
+                             self.observables_box, self.phase_box, self.time_box, self.cloud_box],
+                            layout=widgets.Layout(width="30em", flex="0 0 auto"))
         self.key = widgets.HTML(_KEY_HTML)
         self.key.add_class("mwkin-orbit-key")
-        plots = widgets.VBox([widgets.HBox([self.face_on_figure, self.meridional_figure]), self.key,
-                              self.readout])
+        plots = widgets.VBox([self.galaxy_view, self.meridional_figure, self.key, self.readout],
+                             layout=widgets.Layout(width=f"{_FACE_PX + 10}px", flex="0 0 auto"))
+        # Fixed widths: a column that shrank or grew with its content (the note shown at the first drag)
+        # would move the face-on view under the pointer in the middle of a drag.
         self.children = [widgets.HBox([left, plots]), self.status_line,
                          widgets.HBox([self.code_button]), self.code_area, self.provenance_label]
         self.add_class("mwkin-orbit-explorer")
@@ -183,7 +243,7 @@ class OrbitExplorer(AnalysisWidget):
 
         def field(key, label, value, rng):
             css = "mwkin-" + key.replace("_", "-")
-            return NumberField(label, float(value), css, lambda v: changed(None), rng, label)
+            return _Field(label, float(value), css, lambda v: changed(None), rng, label)
 
         self.observable_fields = {k: field(k, lab, obs[k], rng) for k, (lab, rng) in _OBSERVABLES.items()}
         self.error_fields = {k: field(k, lab, obs.get(k, 0.0), None) for k, lab in _OBS_ERRORS.items()}
@@ -275,6 +335,9 @@ class OrbitExplorer(AnalysisWidget):
 
     def _source_changed(self, change):
         source = self.source.value
+        if source != "phase_space" and self._original is not None and not self._loading:
+            # the user chose another input: the dragged star is left behind, nothing to restore
+            self._forget_original()
         self.table_box.layout.display = None if source == "table" else "none"
         self.observables_box.layout.display = None if source == "observables" else "none"
         self.phase_box.layout.display = None if source == "phase_space" else "none"
@@ -290,11 +353,103 @@ class OrbitExplorer(AnalysisWidget):
             self._inputs_changed(change)
 
     def _inputs_changed(self, change):
-        if self._loading or not hasattr(self, "face_on_figure"):
+        if self._loading or not hasattr(self, "galaxy_view"):
             return
         if change is not None and getattr(change, "get", None) and change.get("owner") is self.row_selector:
             self._show_row_label()
         self.refresh()
+
+    def refresh(self):
+        """Recompute from the current inputs (coalesced, off the main thread)."""
+        try:
+            super().refresh()
+        finally:
+            self._keep_view = False
+
+    # ================================================================== dragging the velocity
+    def _velocity_dragged(self, vx, vy):
+        """``galaxy_view.velocity_xy`` changed: a drag in the browser, or a value set from Python."""
+        if getattr(self._syncing, "active", False) or self._loading:
+            return   # the view being told the current star's velocity, not an edit
+        vx, vy = float(vx), float(vy)
+        fields = self.phase_fields
+        if self.source.value == "phase_space" and (vx, vy) == (float(fields["vx"].value), float(fields["vy"].value)):
+            return
+        if self.source.value != "phase_space":
+            try:
+                self._convert_to_phase_space()
+            except ValueError as exc:
+                self._fail(ValueError(f"the dragged velocity cannot be used: {exc}"), None)
+                return
+        fields["vx"].show(vx)
+        fields["vy"].show(vy)
+        self._keep_view = True      # the view must not move under the pointer
+        self.refresh()
+
+    def _convert_to_phase_space(self):
+        """Turn the star (observables or table row) into typed phase space with the current frame.
+
+        The star as given is kept in ``self._original`` (``config["star"]["original"]``) together with
+        the frame used for the conversion. Raises ValueError if the star cannot be converted.
+        """
+        frame = self.frame_state.frame
+        phase, _ = _phase_space(self._star_request(), frame)
+        values = {k: float(_plain(phase[k])[0]) for k in _PHASE_SPACE}
+        original = {**self._star_config(), "converted_with_frame": frame.to_dict()}
+        self._loading = True
+        try:
+            for key, value in values.items():
+                self.phase_fields[key].show(value)
+            self.source.value = "phase_space"
+        finally:
+            self._loading = False
+        self._original = original
+        self._show_original()
+
+    def restore_star(self):
+        """Use the star as it was given before the first drag of the velocity arrow, and recompute.
+
+        Raises
+        ------
+        ValueError
+            If the star was not converted by a drag (there is nothing to go back to).
+        """
+        if self._original is None:
+            raise ValueError("nothing to restore: the star was not converted by dragging its velocity arrow")
+        original = self._original
+        self._loading = True
+        try:
+            self._apply_star_config(original)
+        finally:
+            self._loading = False
+        self._forget_original()
+        self.refresh()
+
+    def _forget_original(self):
+        self._original = None
+        self._show_original()
+
+    def _show_original(self):
+        original = self._original
+        if original is None:
+            self.drag_note.value = ""
+            self.restore_button.layout.display = "none"
+            return
+        given = _given_text(original)
+        R0 = original.get("converted_with_frame", {}).get("R0_kpc")
+        self.drag_note.value = (
+            "<small class='mwkin-note'>The in-plane velocity was set by dragging the arrow, so the star is "
+            f"now Galactocentric phase space, converted from the {html.escape(given)} with the frame of "
+            f"that moment (R0 = {R0} kpc). A change of the frame now moves the Sun, not the star; the "
+            "orbit cloud is off (phase space has no uncertainties). The star as given is kept "
+            "(config['star']['original']).</small>")
+        self.restore_button.description = f"back to the {given}"
+        self.restore_button.layout.display = None
+
+    def _drag_ended(self, change):
+        # the last value of a drag may equal one already computed: widen the view now if needed
+        if not change["new"] and self._drawn is not None and self._runner.idle:
+            self._fit_view(self._drawn["bounds"], self._drawn["extent"], only_if_needed=True)
 
     # ================================================================== request / compute
     def _star_request(self):
@@ -364,11 +519,14 @@ class OrbitExplorer(AnalysisWidget):
         star = self._star_request()
         t_forward, t_backward, n_points = self._time_request()
         cloud = bool(self.cloud_toggle.value) and star["kind"] == "observables"
+        dragged = self._original if self.source.value == "phase_space" else None
         return {"frame": self.frame_state.frame, "potential_config": self.potential_state.config,
                 "star": star, "source": self.source.value,
                 "row": int(self.row_selector.value) if self.source.value == "table" else None,
                 "t_forward": t_forward, "t_backward": t_backward, "n_points": n_points,
-                "cloud": cloud, "n_cloud": int(self.n_cloud.value), "seed": self._seed}
+                "cloud": cloud, "n_cloud": int(self.n_cloud.value), "seed": self._seed,
+                "dragged_from": None if dragged is None else _given_text(dragged),
+                "keep_view": self._keep_view, "dragging": bool(self.galaxy_view.dragging)}
 
     def _compute(self, request):
         frame = request["frame"]
@@ -389,8 +547,11 @@ class OrbitExplorer(AnalysisWidget):
         for name, orbits in (("orbit", main), ("backward orbit", backward if forward is not None else None)):
             if orbits is not None and orbits.flags[0]:
                 raise ValueError(f"the {name} could not be computed: {orbits.flags[0]}")
+        start = np.array([float(_plain(phase[k])[0]) for k in _PHASE_SPACE])
+        note = "" if request["dragged_from"] is None else \
+            f"velocity set by dragging (star converted from the {request['dragged_from']}, which is kept)"
         return OrbitView(orbits=main, backward=backward if forward is not None else None, cloud=cloud,
-                         potential=pot, frame=frame)
+                         potential=pot, frame=frame, start=start, note=note)
 
     def _star_table_for_bench(self):
         """The current star as the one-row table handed to the core (benchmarks, debugging)."""
@@ -426,7 +587,8 @@ class OrbitExplorer(AnalysisWidget):
 
     def _summary(self, view):
         p = self.orbital_parameters()
-        return f"rperi {p['rperi']:.2f} kpc, rapo {p['rapo']:.2f} kpc, zmax {p['zmax']:.2f} kpc"
+        text = f"rperi {p['rperi']:.2f} kpc, rapo {p['rapo']:.2f} kpc, zmax {p['zmax']:.2f} kpc"
+        return f"{text}; {view.note}" if view.note else text
 
     def _provenance_for(self, view, request):
         from ..provenance import provenance_line
@@ -443,7 +605,7 @@ class OrbitExplorer(AnalysisWidget):
             tracks["backward"] = _track_arrays(view.backward, 0)
         cloud = _cloud_arrays(view.cloud) if view.cloud is not None else None
         sun = view.frame.sun_position
-        self._draw_face_on(tracks, cloud, sun)
+        self._draw_face_on(tracks, cloud, sun, view, request)
         self._draw_meridional(tracks, cloud, sun)
         self._show_readout(view)
 
@@ -507,33 +669,70 @@ class OrbitExplorer(AnalysisWidget):
             }
             return m
 
-        self.face_on_figure, self._fx, self._fy = figure("Face-on", "x [kpc]", "y [kpc]", _FACE_PX, _FACE_PX)
-        self.face_on_marks = marks(self._fx, self._fy, False)
-        self.face_on_figure.marks = list(self.face_on_marks.values())
-        self.face_on_figure.add_class("mwkin-face-on")
+        self.galaxy_view = GalaxyView(width=_FACE_PX, height=_FACE_PX)
+        self.galaxy_view.add_class("mwkin-face-on")
+        self.galaxy_view.on_velocity(self._velocity_dragged)
+        self.galaxy_view.observe(self._drag_ended, "dragging")
         self.meridional_figure, self._mx, self._my = figure("Meridional", "R [kpc]", "z [kpc]", _MER_W, _MER_H)
         self.meridional_marks = marks(self._mx, self._my, False)
         self.meridional_figure.marks = list(self.meridional_marks.values())
         self.meridional_figure.add_class("mwkin-meridional")
 
-    def _draw_face_on(self, tracks, cloud, sun):
-        """Face-on (x, y) view: the one method to replace with an anywidget GalaxyView later."""
-        m = self.face_on_marks
-        xs = [t["x"] for t in tracks.values() if t is not None]
-        ys = [t["y"] for t in tracks.values() if t is not None]
+    def _draw_face_on(self, tracks, cloud, sun, view, request):
+        """Face-on (x, y) view: the whole track, the cloud, the Sun, the star and its velocity arrow."""
+        g = self.galaxy_view
+        start = view.start
+        x, y = _joined_track(tracks, "x"), _joined_track(tracks, "y")
+        xs, ys = [x, [sun[0], start[0]]], [y, [sun[1], start[1]]]
         if cloud is not None:
             xs.append(cloud["x"].ravel())
             ys.append(cloud["y"].ravel())
-        extent = max(float(np.nanmax(np.abs(np.concatenate(xs + ys)))), abs(sun[0])) * 1.1
-        arc = _rotation_arc(0.35 * abs(sun[0]))
-        with self.face_on_figure.hold_sync():
-            self._fx.min, self._fx.max = -extent, extent
-            self._fy.min, self._fy.max = -extent, extent
-            self._set_tracks(m, tracks, cloud, "x", "y")
-            _set_xy(m["sun"], [sun[0]], [sun[1]])
-            _set_xy(m["rotation"], arc["x"], arc["y"])
-            _set_xy(m["label"], [arc["label_x"]], [arc["label_y"]])
-        self.face_on_arrays = {"rotation": arc}
+        xs, ys = np.concatenate(xs), np.concatenate(ys)
+        bounds = (float(np.nanmin(xs)), float(np.nanmax(xs)), float(np.nanmin(ys)), float(np.nanmax(ys)))
+        extent = max(map(abs, bounds)) * 1.1
+        self._drawn = {"tracks": tracks, "cloud": cloud, "sun": sun, "start": start, "bounds": bounds,
+                       "extent": extent}
+        with g.hold_sync():
+            g.set_track(x, y)
+            g.set_cloud([] if cloud is None else list(zip(cloud["x"], cloud["y"])))
+            g.sun_xy = [float(sun[0]), float(sun[1])]
+            g.sun_velocity_xy = [float(v) for v in view.frame.v_sun[:2]]
+            g.star_xy = [float(start[0]), float(start[1])]
+            if self._is_current(request):
+                # A result for an older input must not move the arrow back: the observer would take
+                # that for a drag. The flag is per thread, so a drag arriving meanwhile still counts.
+                self._syncing.active = True
+                try:
+                    g.velocity_xy = [float(start[3]), float(start[4])]
+                finally:
+                    self._syncing.active = False
+            if not request["keep_view"]:
+                self._fit_view(bounds, extent)
+            elif not request["dragging"]:
+                self._fit_view(bounds, extent, only_if_needed=True)
+
+    def _is_current(self, request):
+        """True if ``request`` holds the star the inputs hold now."""
+        try:
+            return self._star_request() == request["star"]
+        except ValueError:
+            return False
+
+    def _fit_view(self, bounds, extent, only_if_needed=False):
+        """Show +-extent kpc about the centre, with a matching arrow scale.
+
+        With ``only_if_needed`` the view (zoomed or panned by the user, or kept during a drag) changes
+        only when ``bounds`` (x0, x1, y0, y1) do not fit inside it.
+        """
+        g = self.galaxy_view
+        if only_if_needed:
+            x0, x1, y0, y1 = g.view_range
+            if min(x0, x1) <= bounds[0] and bounds[1] <= max(x0, x1) \
+                    and min(y0, y1) <= bounds[2] and bounds[3] <= max(y0, y1):
+                return
+        with g.hold_sync():
+            g.view_range = [-extent, extent, -extent, extent]
+            g.arrow_scale = 250.0 / (_ARROW_FRACTION * extent)
 
     def _draw_meridional(self, tracks, cloud, sun):
         m = self.meridional_marks
@@ -576,44 +775,72 @@ class OrbitExplorer(AnalysisWidget):
             _set_xy(m["cloud"], cloud[kx], cloud[ky])
 
     def _figure_panels(self):
-        if self._result is None:
+        if self._result is None or self._drawn is None:
             raise RuntimeError("nothing to export yet: the orbit has not been computed")
-        panels = []
-        for title, marks, labels in (("Face-on", self.face_on_marks, ("x [kpc]", "y [kpc]")),
-                                     ("Meridional", self.meridional_marks, ("R [kpc]", "z [kpc]"))):
-            # The tracks fill the face-on box, so the key sits beside the meridional panel only.
-            keyed = title == "Meridional"
+        return [self._face_on_panel(), self._meridional_panel()]
 
-            def label(text):
-                return text if keyed else None
+    def _face_on_panel(self):
+        drawn = self._drawn
+        layers = []
+        cloud = drawn["cloud"]
+        for i in range(0 if cloud is None else cloud["x"].shape[0]):
+            layers.append({"kind": "line", "x": cloud["x"][i], "y": cloud["y"][i], "color": _COLOURS["cloud"],
+                           "width": 0.6})
+        for key in ("backward", "forward"):
+            track = drawn["tracks"][key]
+            if track is not None:
+                layers.append({"kind": "line", "x": track["x"], "y": track["y"], "color": _COLOURS[key]})
+        sun, start = drawn["sun"], drawn["start"]
+        arc = _rotation_arc(0.35 * abs(sun[0]))
+        scale = float(self.galaxy_view.arrow_scale)
+        layers += [
+            {"kind": "line", "x": arc["x"], "y": arc["y"], "color": _COLOURS["rotation"], "width": 1.5},
+            {"kind": "line", "x": [start[0], start[0] + start[3] / scale], "y": [start[1], start[1] + start[4] / scale],
+             "color": _COLOURS["velocity"], "width": 1.5},
+            {"kind": "scatter", "x": [sun[0]], "y": [sun[1]], "color": _COLOURS["sun"], "size": 60},
+            {"kind": "scatter", "x": [0.0], "y": [0.0], "color": _COLOURS["centre"], "size": 60, "marker": "P"},
+            {"kind": "scatter", "x": [start[0]], "y": [start[1]], "color": _COLOURS["star"], "size": 20},
+        ]
+        notes = ["grey arrow: sense of Galactic rotation (clockwise seen from the north pole)",
+                 f"red line: the star's initial velocity in the plane ({scale:.3g} km/s per kpc)"]
+        return Panel("Face-on", "x [kpc]", "y [kpc]", layers, equal_aspect=True, notes=notes)
 
-            layers = []
-            cloud_x, cloud_y = np.atleast_2d(marks["cloud"].x), np.atleast_2d(marks["cloud"].y)
-            for i in range(cloud_x.shape[0] if np.isfinite(cloud_x).any() else 0):
-                layers.append({"kind": "line", "x": cloud_x[i], "y": cloud_y[i], "color": _COLOURS["cloud"],
-                               "width": 0.6, "label": label("from the uncertainties") if i == 0 else None})
-            for key in ("backward", "forward"):
-                if np.isfinite(marks[key].x).any():
-                    layers.append({"kind": "line", "x": marks[key].x, "y": marks[key].y,
-                                   "color": _COLOURS[key], "label": label(key)})
-            if np.isfinite(marks["rotation"].x).any():
-                layers.append({"kind": "line", "x": marks["rotation"].x, "y": marks["rotation"].y,
-                               "color": _COLOURS["rotation"], "width": 1.5})
-            layers += [
-                {"kind": "scatter", "x": marks["sun"].x, "y": marks["sun"].y, "color": _COLOURS["sun"],
-                 "size": 60, "label": label("Sun")},
-                {"kind": "scatter", "x": [0.0], "y": [0.0], "color": _COLOURS["centre"], "size": 60,
-                 "marker": "P", "label": label("Galactic centre")},
-                {"kind": "scatter", "x": marks["star"].x, "y": marks["star"].y, "color": _COLOURS["star"],
-                 "size": 20, "label": label("star (t = 0)")},
-            ]
-            notes = (["grey arrow: sense of Galactic rotation (clockwise seen from the north pole)"] if not keyed
-                     else ["rotation is toward the viewer (perpendicular to this plane)"])
-            panels.append(Panel(title, *labels, layers, equal_aspect=True, notes=notes, legend_outside=keyed))
-        return panels
+    def _meridional_panel(self):
+        marks = self.meridional_marks
+        layers = []
+        cloud_x, cloud_y = np.atleast_2d(marks["cloud"].x), np.atleast_2d(marks["cloud"].y)
+        for i in range(cloud_x.shape[0] if np.isfinite(cloud_x).any() else 0):
+            layers.append({"kind": "line", "x": cloud_x[i], "y": cloud_y[i], "color": _COLOURS["cloud"],
+                           "width": 0.6, "label": "from the uncertainties" if i == 0 else None})
+        for key in ("backward", "forward"):
+            if np.isfinite(marks[key].x).any():
+                layers.append({"kind": "line", "x": marks[key].x, "y": marks[key].y,
+                               "color": _COLOURS[key], "label": key})
+        layers += [
+            {"kind": "scatter", "x": marks["sun"].x, "y": marks["sun"].y, "color": _COLOURS["sun"],
+             "size": 60, "label": "Sun"},
+            {"kind": "scatter", "x": [0.0], "y": [0.0], "color": _COLOURS["centre"], "size": 60,
+             "marker": "P", "label": "Galactic centre"},
+            {"kind": "scatter", "x": marks["star"].x, "y": marks["star"].y, "color": _COLOURS["star"],
+             "size": 20, "label": "star (t = 0)"},
+        ]
+        notes = ["rotation is toward the viewer (perpendicular to this plane)"]
+        return Panel("Meridional", "R [kpc]", "z [kpc]", layers, equal_aspect=True, notes=notes,
+                     legend_outside=True)
 
     # ================================================================== sharing
     def _config(self):
+        star = self._star_config()
+        if self._original is not None:
+            star["original"] = self._original
+            star["note"] = ("vx, vy set by dragging the velocity arrow; 'original' is the star as given, "
+                            "'phase_space' its conversion with the frame of that moment")
+        return {"star": star, "t_forward_gyr": float(self.time_fields["t_forward"].value),
+                "t_backward_gyr": float(self.time_fields["t_backward"].value),
+                "n_points": int(self.n_points.value), "cloud": bool(self.cloud_toggle.value),
+                "n_cloud": int(self.n_cloud.value), "seed": self._seed}
+
+    def _star_config(self):
         star = {"source": self.source.value,
                 "observables": {k: float(f.value) for k, f in self.observable_fields.items()},
                 "errors": {k: float(f.value) for k, f in self.error_fields.items()},
@@ -623,10 +850,7 @@ class OrbitExplorer(AnalysisWidget):
         if self.source.value == "table":
             star["row_values"] = {k: v for k, v in self._row_values().items() if k != "source_id"}
             star["note"] = "the table itself is not saved; pass stars= again to use it"
-        return {"star": star, "t_forward_gyr": float(self.time_fields["t_forward"].value),
-                "t_backward_gyr": float(self.time_fields["t_backward"].value),
-                "n_points": int(self.n_points.value), "cloud": bool(self.cloud_toggle.value),
-                "n_cloud": int(self.n_cloud.value), "seed": self._seed}
+        return star
 
     def load_config(self, config):
         """Apply a dict produced by :attr:`config` (one recomputation at the end)."""
@@ -644,6 +868,25 @@ class OrbitExplorer(AnalysisWidget):
             raise ValueError(f"unknown OrbitExplorer settings {sorted(unknown)}; expected {sorted(known)}")
         self._loading = True
         star = config.get("star", {})
+        self._apply_star_config(star)
+        original = star.get("original")
+        self._original = dict(original) if original and self.source.value == "phase_space" else None
+        self._show_original()
+        if "t_forward_gyr" in config:
+            self.time_fields["t_forward"].show(float(config["t_forward_gyr"]))
+        if "t_backward_gyr" in config:
+            self.time_fields["t_backward"].show(float(config["t_backward_gyr"]))
+        if "n_points" in config:
+            self.n_points.value = int(config["n_points"])
+        if "cloud" in config:
+            self.cloud_toggle.value = bool(config["cloud"])
+        if "n_cloud" in config:
+            self.n_cloud.value = int(config["n_cloud"])
+        if "seed" in config:
+            self._seed = int(config["seed"])
+
+    def _apply_star_config(self, star):
+        """Show the star of a config's ``"star"`` dict in the inputs (no recomputation)."""
         for key, value in star.get("observables", {}).items():
             self.observable_fields[key].show(float(value))
         for key, value in star.get("errors", {}).items():
@@ -657,9 +900,9 @@ class OrbitExplorer(AnalysisWidget):
             if self._stars is None:
                 # No table here: fall back to the row's saved values as typed observables.
                 values = star.get("row_values", {})
-                for key, field in {**self.observable_fields, **self.error_fields}.items():
+                for key, field_ in {**self.observable_fields, **self.error_fields}.items():
                     if np.isfinite(values.get(key, np.nan)):
-                        field.show(float(values[key]))
+                        field_.show(float(values[key]))
                 self.distance_input.value = "parallax" if np.isfinite(values.get("parallax", np.nan)) \
                     else "distance"
                 source = "observables"
@@ -667,18 +910,6 @@ class OrbitExplorer(AnalysisWidget):
                 self.row_selector.value = int(star.get("row", 0))
                 self._show_row_label()
         self.source.value = source
-        if "t_forward_gyr" in config:
-            self.time_fields["t_forward"].show(float(config["t_forward_gyr"]))
-        if "t_backward_gyr" in config:
-            self.time_fields["t_backward"].show(float(config["t_backward_gyr"]))
-        if "n_points" in config:
-            self.n_points.value = int(config["n_points"])
-        if "cloud" in config:
-            self.cloud_toggle.value = bool(config["cloud"])
-        if "n_cloud" in config:
-            self.n_cloud.value = int(config["n_cloud"])
-        if "seed" in config:
-            self._seed = int(config["seed"])
 
     def _code(self, request):
         frame = request["frame"]
@@ -697,6 +928,9 @@ class OrbitExplorer(AnalysisWidget):
         values = {**star["values"], **(star["errors"] if cloud else {})}
         columns = ", ".join(f"{k!r}: [{v!r}]" for k, v in values.items())
         lines.append(f"star = QTable({{{columns}}})  # {_UNITS_CODE[star['kind']]}")
+        if request["dragged_from"] is not None:
+            lines.append(f"# vx, vy set by dragging the velocity arrow; x, y, z, vz converted from the "
+                         f"{request['dragged_from']} (see config['star']['original'])")
         if star["kind"] == "observables":
             choice = "mk.DistanceColumn()" if "distance" in star["values"] else "mk.InverseParallax(min_snr=0)"
             errors = ', errors="linear", return_covariance=True' if cloud else ""
@@ -746,6 +980,23 @@ def _rotation_arc(radius, half_angle=0.7, n=40):
     ys = np.concatenate([y, [np.nan, wings[0][1], tip[1], wings[1][1]]])
     return {"x": xs, "y": ys, "label_x": -0.72 * radius, "label_y": 0.0,
             "tip": tip, "direction": direction}
+
+
+def _given_text(star_config):
+    """How a star config was given, for messages: 'table row 3' or 'typed observables'."""
+    if star_config.get("source") == "table":
+        return f"table row {int(star_config.get('row', 0))}"
+    return "typed observables"
+
+
+def _joined_track(tracks, key):
+    """Coordinate ``key`` of the backward (reversed) and forward tracks as one line in time order."""
+    back, fwd = tracks["backward"], tracks["forward"]
+    if back is None:
+        return fwd[key]
+    if fwd is None:
+        return back[key][::-1]
+    return np.concatenate([back[key][::-1], fwd[key][1:]])   # both start at the star (t = 0)
 
 
 def _star_table(star):

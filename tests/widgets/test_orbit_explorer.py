@@ -25,7 +25,13 @@ def explorer(**kwargs):
 
 
 def marks_x(widget):
-    return np.array(widget.face_on_marks["forward"].x, dtype=float)
+    """x of the face-on track as sent to the GalaxyView (float32 bytes)."""
+    return widget.galaxy_view.track()[0].astype(float)
+
+
+def drag(widget, vx, vy, dragging=False):
+    """Set the view's velocity the way the browser does (a comm message applied with set_state)."""
+    widget.galaxy_view.set_state({"velocity_xy": [float(vx), float(vy)], "dragging": dragging})
 
 
 def test_first_result_is_an_orbit_set_drawn_in_both_views():
@@ -33,8 +39,14 @@ def test_first_result_is_an_orbit_set_drawn_in_both_views():
     assert isinstance(ex.result, mk.OrbitSet)
     assert ex.status.startswith("ready")
     track = ex.result.track(0)
-    np.testing.assert_allclose(marks_x(ex), track["x"].value)
-    np.testing.assert_allclose(ex.face_on_marks["forward"].y, track["y"].value)
+    gx, gy = ex.galaxy_view.track()
+    assert gx.dtype == np.float32 and gx.size == N        # binary float32, not a JSON list
+    np.testing.assert_allclose(gx, track["x"].value, rtol=1e-6)
+    np.testing.assert_allclose(gy, track["y"].value, rtol=1e-6, atol=1e-6)
+    # the arrow starts at the star with its initial in-plane velocity
+    start = track[0]
+    assert ex.galaxy_view.star_xy == pytest.approx([start["x"].value, start["y"].value])
+    assert ex.galaxy_view.velocity_xy == pytest.approx([start["vx"].value, start["vy"].value])
     np.testing.assert_allclose(ex.meridional_marks["forward"].x, track["R"].value)
     np.testing.assert_allclose(ex.meridional_marks["forward"].y, track["z"].value)
     # the readout shows the result's parameters with units
@@ -54,7 +66,8 @@ def test_changing_R0_moves_the_orbit_and_the_plot():
     assert float(ex.result.rapo[0].value) > rapo + 0.2
     assert not np.allclose(marks_x(ex), x)
     # the Sun marker follows the frame (astropy's Galactocentric axes: Sun near x = -R0)
-    assert ex.face_on_marks["sun"].x[0] == pytest.approx(-8.5, abs=1e-3)
+    assert ex.galaxy_view.sun_xy[0] == pytest.approx(-8.5, abs=1e-3)
+    assert ex.meridional_marks["sun"].x[0] == pytest.approx(8.5, abs=1e-3)
 
 
 def test_changing_a_potential_parameter_recomputes():
@@ -139,16 +152,20 @@ def test_the_newest_request_wins():
         frame.R0 = float(R0)
     ex.wait()
     assert ex.result.frame.R0 == pytest.approx(8.6)
-    assert ex.face_on_marks["sun"].x[0] == pytest.approx(-8.6, abs=1e-3)
+    assert ex.galaxy_view.sun_xy[0] == pytest.approx(-8.6, abs=1e-3)
 
 
 def test_backward_integration_is_drawn_and_joins_the_forward_one():
     ex = explorer(t_backward=0.5)
     back = ex.view.backward
     assert back is not None and back.t[-1].value == pytest.approx(-0.5)
-    np.testing.assert_allclose(ex.face_on_marks["backward"].x, back.track(0)["x"].value)
+    np.testing.assert_allclose(ex.meridional_marks["backward"].x, back.track(0)["R"].value)
+    # the face-on view draws the whole span as one line in time order: backward reversed, then forward
+    fwd = ex.result.track(0)["x"].value
+    np.testing.assert_allclose(marks_x(ex), np.concatenate([back.track(0)["x"].value[::-1], fwd[1:]]),
+                               rtol=1e-6)
     # both start at the star's present position
-    assert ex.face_on_marks["backward"].x[0] == pytest.approx(marks_x(ex)[0])
+    assert ex.meridional_marks["backward"].x[0] == pytest.approx(ex.meridional_marks["forward"].x[0])
     params = ex.orbital_parameters()
     assert params["rapo"] == pytest.approx(max(ex.result.rapo[0].value, back.rapo[0].value))
 
@@ -173,7 +190,7 @@ def test_phase_space_input_does_not_depend_on_the_frame():
     frame.R0 = 8.4
     ex.wait()
     assert float(ex.result.rapo[0].value) == pytest.approx(rapo, rel=1e-12)
-    assert ex.face_on_marks["sun"].x[0] == pytest.approx(-8.4, abs=1e-3)   # only the Sun moved
+    assert ex.galaxy_view.sun_xy[0] == pytest.approx(-8.4, abs=1e-3)   # only the Sun moved
 
 
 def test_a_table_row_round_trips_to_its_phase_space():
@@ -199,7 +216,11 @@ def test_cloud_orbits_are_the_samples_orbit_parameters_summarises():
     ex.wait()
     cloud = ex.view.cloud
     assert len(cloud) == 20
-    assert np.array(ex.face_on_marks["cloud"].x).shape == (20, cloud.t.size)
+    assert np.array(ex.meridional_marks["cloud"].x).shape == (20, cloud.t.size)
+    # the face-on view gets the 20 tracks packed into one float32 buffer, separated by NaN
+    cx = np.frombuffer(ex.galaxy_view.cloud_x, np.float32)
+    assert cx.size == 20 * (cloud.t.size + 1) and np.isnan(cx).sum() == 20
+    np.testing.assert_allclose(cx[:cloud.t.size], cloud.track(0)["x"].value, rtol=1e-6)
     # orbit_parameters draws from the same linear covariance with the same sampler and seed. (It is given
     # the phase space with its covariance: passing observables with n_samples > 0 fails in orbits.py,
     # which looks for cov_galactocentric among the input's column names.)
@@ -215,26 +236,33 @@ def test_cloud_orbits_are_the_samples_orbit_parameters_summarises():
     assert "cloud 16–84%" in ex.readout.value
     ex.cloud_toggle.value = False
     ex.wait()
-    assert ex.view.cloud is None and not np.isfinite(np.array(ex.face_on_marks["cloud"].x, dtype=float)).any()
+    assert ex.view.cloud is None and ex.galaxy_view.cloud_x == b""
 
 
 def test_views_have_equal_aspect_and_mark_the_sun_centre_and_rotation():
     ex = explorer()
-    fx, fy = ex._fx, ex._fy
-    assert fx.max - fx.min == pytest.approx(fy.max - fy.min)
+    g = ex.galaxy_view
+    x0, x1, y0, y1 = g.view_range
+    assert x1 - x0 == pytest.approx(y1 - y0) and x0 == pytest.approx(-x1)   # square about the centre
+    track_x, track_y = g.track()
+    assert np.abs(track_x).max() < x1 and np.abs(track_y).max() < y1           # the orbit fits
     mer_ratio = (ex._mx.max - ex._mx.min) / (ex._my.max - ex._my.min)
     plot_w = float(ex.meridional_figure.layout.width.rstrip("px")) - 2 * ex.meridional_figure.fig_margin["left"]
     plot_h = float(ex.meridional_figure.layout.height.rstrip("px")) - 2 * ex.meridional_figure.fig_margin["top"]
     assert mer_ratio == pytest.approx(plot_w / plot_h)
-    assert list(ex.face_on_marks["centre"].x) == [0.0]
-    assert "rotation" in str(ex.face_on_marks["label"].text[0])
-    # the rotation arrow points the way a prograde orbit (L_z > 0) moves: from the Sun's side toward +y
-    arc = ex.face_on_arrays["rotation"]
-    assert arc["direction"][1] > 0 or arc["tip"][1] > 0
+    assert "rotation" in str(ex.meridional_marks["label"].text[0])
+    # The view draws the rotation arrow in the sense of the Sun's motion: x vy - y vx of the Sun, which
+    # must be the sense of a prograde orbit (L_z = R v_phi > 0, DESIGN.md conventions).
+    sun, v_sun = g.sun_xy, g.sun_velocity_xy
+    assert sun[0] * v_sun[1] - sun[1] * v_sun[0] < 0            # clockwise seen from the north pole
+    assert v_sun == pytest.approx(list(ex.result.frame.v_sun[:2]))
     assert float(ex.result.Lz[0].value) > 0
     track = ex.result.track(0)
     step = np.arctan2(track["y"].value[5], -track["x"].value[5]) - np.arctan2(track["y"].value[0], -track["x"].value[0])
     assert step > 0   # phi = atan2(y, -x) increases with rotation (DESIGN.md conventions)
+    sx, sy = g.star_xy
+    vx, vy = g.velocity_xy
+    assert sx * vy - sy * vx < 0                                 # the star moves the same way as the Sun
 
 
 def test_config_round_trip_gives_the_same_result(tmp_path):
@@ -310,3 +338,200 @@ def test_provenance_names_frame_and_potential():
     ex = explorer()
     assert "R0=8.122 kpc" in ex.provenance_text and "MWPotential2014" in ex.provenance_text
     assert "galpy" in ex.provenance_text
+
+
+# ---- the face-on GalaxyView: dragging the velocity arrow ------------------------------------------------
+
+def test_a_dragged_velocity_changes_the_result_and_the_track_sent_to_the_view():
+    ex = explorer()
+    g = ex.galaxy_view
+    rapo, rperi = float(ex.result.rapo[0].value), float(ex.result.rperi[0].value)
+    track_before, star_before = g.track_x, list(g.star_xy)
+    vx, vy = g.velocity_xy
+    drag(ex, vx - 40.0, vy + 30.0)                       # faster along rotation and outward: a wider orbit
+    ex.wait()
+    assert ex.status.startswith("ready") and "velocity set by dragging" in ex.status
+    assert float(ex.result.rapo[0].value) > rapo + 1.0
+    assert float(ex.result.rperi[0].value) != pytest.approx(rperi, abs=1e-3)
+    assert g.track_x != track_before                                     # new bytes went to the view
+    assert g.star_xy == pytest.approx(star_before)                       # the star stays where it was
+    start = ex.result.track(0)[0]
+    assert (start["vx"].value, start["vy"].value) == pytest.approx((vx - 40.0, vy + 30.0), abs=1e-9)
+    # the view's track is the new result's (float32)
+    np.testing.assert_allclose(g.track()[0], ex.result.track(0)["x"].value, rtol=1e-6)
+
+
+def test_a_drag_turns_typed_observables_into_phase_space_and_keeps_them():
+    frame = FrameState()
+    ex = explorer(frame=frame)
+    before = ex.result.track(0)[0]
+    drag(ex, 0.0, 260.0)
+    ex.wait()
+    assert ex.source.value == "phase_space"
+    # x, y, z and vz are the observables' conversion (astropy-checked core), vx and vy the dragged ones
+    star = QTable({k: [v] for k, v in STAR.items()})
+    phase = mk.to_galactocentric(star, frame=frame.frame, distance=mk.InverseParallax(min_snr=0))
+    fields = {k: f.value for k, f in ex.phase_fields.items()}
+    for key in ("x", "y", "z", "vz"):
+        assert fields[key] == pytest.approx(float(phase[key][0].value), rel=1e-12)
+        assert fields[key] == pytest.approx(float(getattr(before[key], "value", before[key])), rel=1e-9)
+    assert (fields["vx"], fields["vy"]) == (0.0, 260.0)
+    # nothing typed is lost: the observables fields and the config keep the star as given
+    assert ex.observable_fields["pmra"].value == STAR["pmra"]
+    config = ex.config
+    assert config["star"]["source"] == "phase_space"
+    assert config["star"]["phase_space"]["vy"] == 260.0
+    original = config["star"]["original"]
+    assert original["source"] == "observables" and original["observables"]["parallax"] == STAR["parallax"]
+    assert original["converted_with_frame"]["R0_kpc"] == pytest.approx(8.122)
+    json.dumps(config)                                                   # still JSON-able
+    assert "typed observables" in ex.drag_note.value
+    assert ex.restore_button.layout.display != "none"
+    # copy as code reproduces the dragged orbit and says where the star came from
+    snippet = ex.code()
+    assert "dragging the velocity arrow" in snippet and "'vy': [260.0]" in snippet
+    namespace = {}
+    exec(snippet, namespace)   # noqa: S102
+    np.testing.assert_allclose(namespace["orbits"].cylindrical, ex.result.cylindrical, atol=1e-9)
+
+
+def test_back_to_the_star_as_given_restores_the_first_result():
+    ex = explorer()
+    first = ex.result
+    drag(ex, 30.0, 200.0)
+    ex.wait()
+    assert ex.result.rapo[0] != first.rapo[0]
+    ex.restore_button.click()
+    ex.wait()
+    assert ex.source.value == "observables"
+    np.testing.assert_allclose(ex.result.cylindrical, first.cylindrical, rtol=0, atol=1e-12)
+    assert "original" not in ex.config["star"] and ex.drag_note.value == ""
+    assert ex.restore_button.layout.display == "none"
+    assert "dragging" not in ex.status
+    assert ex.galaxy_view.velocity_xy == pytest.approx([first.track(0)[0][k].value for k in ("vx", "vy")])
+    with pytest.raises(ValueError, match="nothing to restore"):
+        ex.restore_star()
+
+
+def test_a_table_row_is_kept_when_its_velocity_is_dragged():
+    frame = mk.SolarFrame.preset("astropy v4.0")
+    phase = QTable({"x": [-7.5, -8.6], "y": [0.3, -0.4], "z": [0.05, -0.2],
+                    "vx": [20.0, -15.0], "vy": [225.0, 240.0], "vz": [3.0, -10.0]})
+    stars = mk.from_galactocentric(phase, frame=frame)
+    ex = explorer(frame=FrameState(frame), star=None, stars=stars, row=1)
+    drag(ex, -15.0, 200.0)
+    ex.wait()
+    assert ex.config["star"]["original"]["row"] == 1
+    assert ex.restore_button.description == "back to the table row 1"
+    # the conversion recovers the row's own phase space (round trip through the observables)
+    assert ex.phase_fields["x"].value == pytest.approx(-8.6, abs=1e-9)
+    assert ex.phase_fields["vz"].value == pytest.approx(-10.0, abs=1e-7)
+    assert ex.result.track(0)[0]["vy"].value == pytest.approx(200.0, abs=1e-9)
+    ex.restore_star()
+    ex.wait()
+    assert ex.source.value == "table" and ex.row_selector.value == 1
+    assert ex.result.track(0)[0]["vy"].value == pytest.approx(240.0, abs=1e-7)
+
+
+def test_dragging_a_phase_space_star_edits_its_velocity_fields():
+    # A star on the circular orbit of MWPotential2014 at R = 8 kpc (vc = 220 km/s, Bovy 2015, ApJS 216,
+    # 29). Dragging v_y up to 250 km/s with v_R = 0 puts the star at the pericentre of an eccentric orbit:
+    # r_peri stays 8 kpc, r_apo grows (common practice (no source): v_R = 0 is a turning point).
+    ex = explorer(star={"x": -8.0, "y": 0.0, "z": 0.0, "vx": 0.0, "vy": 220.0, "vz": 0.0})
+    assert ex.orbital_parameters()["rapo"] == pytest.approx(8.0, abs=0.01)
+    drag(ex, 0.0, 250.0)
+    ex.wait()
+    p = ex.orbital_parameters()
+    assert ex.phase_fields["vy"].value == 250.0 and ex.phase_fields["vx"].value == 0.0
+    assert p["rperi"] == pytest.approx(8.0, abs=0.01) and p["rapo"] > 9.0
+    assert p["Lz"] == pytest.approx(8.0 * 250.0, rel=1e-6)
+    assert "original" not in ex.config["star"]          # typed phase space: nothing was converted
+    assert "dragging" not in ex.status
+
+
+def test_frame_changes_still_update_after_a_drag():
+    frame = FrameState()
+    ex = explorer(frame=frame)
+    drag(ex, 5.0, 250.0)
+    ex.wait()
+    rapo, star_xy = float(ex.result.rapo[0].value), list(ex.galaxy_view.star_xy)
+    frame.R0 = 8.4
+    ex.wait()
+    assert ex.status.startswith("ready") and ex.result.frame.R0 == 8.4
+    assert ex.galaxy_view.sun_xy[0] == pytest.approx(-8.4, abs=1e-3)      # the Sun moved
+    assert ex.galaxy_view.star_xy == pytest.approx(star_xy)               # the phase-space star did not
+    assert float(ex.result.rapo[0].value) == pytest.approx(rapo, rel=1e-12)
+    assert ex.galaxy_view.velocity_xy == [5.0, 250.0]
+
+
+def test_during_a_drag_the_newest_value_wins_and_the_view_stays_put():
+    ex = explorer()
+    g = ex.galaxy_view
+    g.view_range = [-20.0, 5.0, -10.0, 15.0]           # the user panned and zoomed
+    vx, vy = g.velocity_xy
+    for i in range(1, 16):                              # what the browser sends, one value per frame
+        drag(ex, vx - 3.0 * i, vy + 2.0 * i, dragging=True)
+    ex.wait()
+    assert g.view_range == [-20.0, 5.0, -10.0, 15.0]   # nothing moved under the pointer
+    start = ex.result.track(0)[0]
+    assert (start["vx"].value, start["vy"].value) == pytest.approx((vx - 45.0, vy + 30.0), abs=1e-9)
+    drag(ex, vx - 60.0, vy + 40.0, dragging=False)      # release
+    ex.wait()
+    start = ex.result.track(0)[0]
+    assert (start["vx"].value, start["vy"].value) == pytest.approx((vx - 60.0, vy + 40.0), abs=1e-9)
+    # after the release the view widens only because the orbit no longer fits (rapo > 15 kpc here)
+    track_x, track_y = g.track()
+    x0, x1, y0, y1 = g.view_range
+    assert x0 <= track_x.min() and track_x.max() <= x1 and y0 <= track_y.min() and track_y.max() <= y1
+
+
+def test_a_late_result_for_an_older_velocity_does_not_move_the_arrow_back():
+    ex = explorer(star={"x": -8.0, "y": 0.5, "z": 0.1, "vx": 10.0, "vy": 230.0, "vz": 5.0})
+    old_view, old_request = ex.view, ex._last_request
+    drag(ex, 40.0, 210.0)
+    ex.wait()
+    generation = ex._runner.generation
+    ex._show(old_view, old_request)                     # as if the worker delivered it late
+    assert ex.galaxy_view.velocity_xy == [40.0, 210.0]
+    assert ex._runner.generation == generation          # and it was not taken for a new drag
+    assert ex.phase_fields["vx"].value == 40.0
+
+
+def test_a_drag_on_a_star_that_cannot_be_converted_is_an_error():
+    ex = explorer()
+    ex.observable_fields["parallax"].text.value = -0.5
+    ex.wait()
+    drag(ex, 0.0, 250.0)
+    ex.wait()
+    assert ex.status.startswith("error") and "dragged velocity cannot be used" in ex.status
+    assert "parallax = -0.5 mas" in ex.status
+    assert ex.source.value == "observables"
+
+
+def test_config_after_a_drag_round_trips_with_its_original(tmp_path):
+    ex = explorer(t_backward=0.2)
+    drag(ex, -20.0, 255.0)
+    ex.wait()
+    path = tmp_path / "dragged.json"
+    ex.save_config(path)
+    other = OrbitExplorer(threaded=True).wait()
+    other.load_config_file(path)
+    other.wait()
+    np.testing.assert_allclose(other.result.cylindrical, ex.result.cylindrical, atol=1e-10)
+    assert other.config["star"]["original"] == ex.config["star"]["original"]
+    other.restore_star()
+    other.wait()
+    assert other.source.value == "observables"
+    assert other.observable_fields["pmdec"].value == STAR["pmdec"]
+
+
+def test_export_after_a_drag_draws_the_velocity(tmp_path):
+    ex = explorer()
+    drag(ex, 0.0, 260.0)
+    ex.wait()
+    panel = ex._figure_panels()[0]
+    scale = ex.galaxy_view.arrow_scale
+    arrow = [layer for layer in panel.layers if layer.get("color") == "#d6275a"][0]
+    sx, sy = ex.galaxy_view.star_xy
+    assert arrow["x"] == pytest.approx([sx, sx]) and arrow["y"] == pytest.approx([sy, sy + 260.0 / scale])
+    assert ex.export_figure(tmp_path / "dragged.png").stat().st_size > 1000
