@@ -531,7 +531,7 @@ def test_export_after_a_drag_draws_the_velocity(tmp_path):
     ex.wait()
     panel = ex._figure_panels()[0]
     scale = ex.galaxy_view.arrow_scale
-    arrow = [layer for layer in panel.layers if layer.get("color") == "#d6275a"][0]
+    arrow = next(layer for layer in panel.layers if layer.get("color") == "#d6275a")
     sx, sy = ex.galaxy_view.star_xy
     assert arrow["x"] == pytest.approx([sx, sx]) and arrow["y"] == pytest.approx([sy, sy + 260.0 / scale])
     assert ex.export_figure(tmp_path / "dragged.png").stat().st_size > 1000
