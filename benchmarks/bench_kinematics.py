@@ -10,7 +10,10 @@ Run:  .venv/bin/python benchmarks/bench_kinematics.py [--n 1000000] [--repeat 3]
    conversion of the same table (goal: at most 3x) and peak memory, measured in a fresh subprocess
    (goal: under 2 GB).
 
-Timings are wall-clock and depend on the machine's load; on a shared machine run it twice.
+Timings are wall-clock and depend on the machine's load; on a shared machine run it a few times
+and compare the ratios of the same run. mwkin works on blocks of stars on ``MWKIN_THREADS`` threads
+(default min(2, CPUs)); ``--threads`` sets it for this run, and the load average is printed with the
+figures.
 """
 
 from __future__ import annotations
@@ -177,15 +180,33 @@ def bench_memory(n):
               f"  (goal < 2 GB)")
 
 
+def _load():
+    import os
+
+    try:
+        return "load average " + " ".join(f"{x:.2f}" for x in os.getloadavg())
+    except OSError:
+        return "load average unknown"
+
+
 def main(argv=None):
+    import os
+
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--n", type=int, default=1_000_000)
     parser.add_argument("--repeat", type=int, default=3)
+    parser.add_argument("--threads", type=int, default=None, help="sets MWKIN_THREADS for this run")
     args = parser.parse_args(argv)
+    if args.threads is not None:
+        os.environ["MWKIN_THREADS"] = str(args.threads)
+    from mwkin._blocks import thread_count
+
     print("note: wall-clock timings on a shared machine are noisy; compare ratios from the same run")
+    print(f"mwkin threads: {thread_count()} (CPUs: {os.cpu_count()}); {_load()}")
     bench_memory(args.n)
     bench_plain(args.n, args.repeat)
     bench_linear(args.n, args.repeat)
+    print(f"at the end: {_load()}")
 
 
 if __name__ == "__main__":

@@ -41,6 +41,7 @@ names (so ``RA``, ``DEC``, ``pmRA``, ``PARALLAX`` are found as they are) and aga
 
 from __future__ import annotations
 
+import math
 import os
 from collections.abc import Mapping
 
@@ -326,11 +327,11 @@ def _text_rows(data):
     return bad
 
 
-def _as_float(col, label, owned):
-    """Return (float64 values we may modify, unit or None), or (None, problem text).
+def _as_float(col, label, copy):
+    """Return (float64 values, unit or None, whether they are ours to modify), or (None, problem, None).
 
-    Masked entries become NaN. The values are a fresh copy unless ``owned`` (the table was read from
-    a file by us) and the column already is unmasked float64.
+    Masked entries become NaN. With ``copy`` the values are always a fresh copy; without it they
+    share the column's memory when it already is unmasked float64 (then they are not ours to modify).
     """
     unit = getattr(col, "unit", None)
     mask = None
@@ -344,15 +345,15 @@ def _as_float(col, label, owned):
         mask = None
 
     if data.ndim != 1:
-        return None, f"{label} must hold one number per row, found shape {data.shape}"
+        return None, f"{label} must hold one number per row, found shape {data.shape}", None
     kind = data.dtype.kind
     if kind not in "iufOUS":
-        return None, f"{label} is not numeric: it has data type {data.dtype}"
+        return None, f"{label} is not numeric: it has data type {data.dtype}", None
     values = None
     if kind in "iufO":
         try:
             # One copy for in-memory input, so that editing the result never edits the input.
-            values = np.array(data, dtype=np.float64, copy=True if not owned else None)
+            values = np.array(data, dtype=np.float64, copy=True if copy else None)
         except (TypeError, ValueError):
             pass
     if values is None:  # text, or objects that are not all numbers
@@ -362,12 +363,15 @@ def _as_float(col, label, owned):
             shown = ", ".join(f"{i} ({entries[i]!r})" for i in rows[:_N_SHOWN])
             more = f", ... ({len(rows)} rows in all)" if len(rows) > _N_SHOWN else ""
             if len(rows) == 1:
-                return None, f"{label} is not numeric: row {shown} is not a number"
-            return None, f"{label} is not numeric: rows {shown}{more} are not numbers"
-        return None, f"{label} is not numeric: it holds text ({data.dtype}); convert it to numbers first"
+                return None, f"{label} is not numeric: row {shown} is not a number", None
+            return None, f"{label} is not numeric: rows {shown}{more} are not numbers", None
+        return None, f"{label} is not numeric: it holds text ({data.dtype}); convert it to numbers first", None
+    ours = copy or not np.may_share_memory(values, data)
     if mask is not None:
+        if not ours:
+            values, ours = values.copy(), True
         values[mask] = np.nan
-    return values, unit
+    return values, unit, ours
 
 
 def _resolve_unit(std, original, unit, stated, label):
@@ -386,8 +390,81 @@ def _resolve_unit(std, original, unit, stated, label):
     return unit, None
 
 
-def _range_problems(std, values, label, unit):
+_SCAN_BLOCK = 1 << 16  # values per block of _Summary (512 kB, fits the processor cache)
+
+
+class _Summary:
+    """Lowest and highest value (ignoring NaN) and the NaN entries of a column, from one or two passes.
+
+    Most columns have no NaN and nothing out of range: two reductions then settle every check, and
+    the row-by-row checks run only for the columns that need them.
+    """
+
+    __slots__ = ("lo", "hi", "n_nan", "isnan")
+
+    def __init__(self, values):
+        self.isnan = None
+        if values.size == 0:
+            self.lo = self.hi = math.nan
+            self.n_nan = 0
+            return
+        lo, hi = math.inf, -math.inf
+        for start in range(0, values.size, _SCAN_BLOCK):  # both reductions while the block is in cache
+            block = values[start:start + _SCAN_BLOCK]
+            b_lo, b_hi = float(block.min()), float(block.max())  # NaN if any value is NaN
+            if math.isnan(b_lo) or math.isnan(b_hi):
+                break
+            lo, hi = min(lo, b_lo), max(hi, b_hi)
+        else:
+            self.n_nan = 0
+            self.lo, self.hi = lo, hi
+            return
+        self.isnan = np.isnan(values)
+        self.n_nan = int(np.count_nonzero(self.isnan))
+        self.lo, self.hi = float(np.fmin.reduce(values)), float(np.fmax.reduce(values))  # NaN only if all are
+
+    def within(self, lo, hi, lo_open=False):
+        """True if every non-NaN value is finite and in [lo, hi] (lo excluded with ``lo_open``)."""
+        if math.isnan(self.lo):  # no rows, or only NaN, which always passes
+            return True
+        above = self.lo > lo if lo_open else self.lo >= lo
+        return bool(above and self.hi <= hi and math.isfinite(self.lo) and math.isfinite(self.hi))
+
+
+def _summaries(columns):
+    """:class:`_Summary` of each array, on a few threads for large tables (numpy's reductions
+    release the interpreter lock)."""
+    out = [None] * len(columns)
+    if sum(c.size for c in columns) < (1 << 20):
+        return [_Summary(c) for c in columns]
+    from ._blocks import run_blocks
+
+    def work(start, stop, scratch):
+        for i in range(start, stop):
+            out[i] = _Summary(columns[i])
+
+    run_blocks(len(columns), 1, work)
+    return out
+
+
+# Range of the values each kind of column may take (beyond being finite), and whether the lower end
+# is excluded; used by _range_problems to skip the row-by-row checks when the column is clean.
+def _allowed_range(std):
+    if std == "dec":
+        return -90.0, 90.0, False
+    if std in ERROR_COLUMNS:
+        return 0.0, math.inf, False
+    if std in CORRELATION_COLUMNS:
+        return -1.0, 1.0, False
+    if std == "distance":
+        return 0.0, math.inf, True
+    return -math.inf, math.inf, False
+
+
+def _range_problems(std, values, label, unit, summary=None):
     """Checks of the values themselves (NaN always passes)."""
+    if summary is not None and summary.within(*_allowed_range(std)):
+        return []
     checks = [(np.isinf(values), "infinite values at")]
     if std == "dec":
         checks.append(((values < -90.0) | (values > 90.0), "values outside [-90, 90] deg at"))
@@ -405,14 +482,21 @@ def _range_problems(std, values, label, unit):
     return problems
 
 
-def _wrap_ra(values):
-    """Wrap right ascension into [0, 360) deg in place; return how many values moved."""
+def _wrap_ra(values, summary=None, writable=True):
+    """Wrap right ascension into [0, 360) deg; return (values, how many moved).
+
+    Works in place when ``writable``, else on a copy (only if a value has to move).
+    """
+    if summary is not None and summary.within(0.0, math.nextafter(360.0, 0.0)):
+        return values, 0
     n = int(np.count_nonzero(((values < 0.0) | (values >= 360.0)) & np.isfinite(values)))
     if n:
+        if not writable:
+            values = values.copy()
         # np.mod leaves values already in [0, 360) exactly as they are; infinities stay, to be reported.
         np.mod(values, 360.0, out=values, where=np.isfinite(values))
         values[values == 360.0] = 0.0  # np.mod(-1e-20, 360) rounds to 360
-    return n
+    return values, n
 
 
 def _load(source, format):
@@ -563,6 +647,17 @@ def read_catalog(source, *, format=None, aliases=None, units=None):
     >>> stars.meta["filled_with_nan"], bool(stars["has_nan"].any())
     (['radial_velocity'], False)
     """
+    return _read_catalog(source, format, aliases, units, copy=True)
+
+
+def _read_catalog(source, format=None, aliases=None, units=None, copy=True):
+    """:func:`read_catalog`; ``copy=False`` lets the standard columns share an in-memory input's memory.
+
+    For callers that only read the standard columns and never hand them back to the user
+    (:func:`mwkin.kinematics.to_galactocentric`): the checks and the returned values are the same,
+    only the copy is left out where no value has to change (unit conversion, masks and wrapped right
+    ascensions still give copies, never edits of the input).
+    """
     table, description, owned, used_format = _load(source, format)
     lookup = _alias_lookup(aliases)
 
@@ -616,37 +711,52 @@ def read_catalog(source, *, format=None, aliases=None, units=None):
         except (ValueError, TypeError) as exc:
             raise CatalogError(f"units: {unit!r} given for {key!r} is not a unit: {exc}") from None
 
-    # Convert and check every standard numeric column; collect all problems before raising.
-    problems = []
-    converted = {}
-    ra_wrapped = 0
+    # Convert and check every standard numeric column; collect all problems before raising, in
+    # column order. The scans of the values (the costly part for large tables) run on a few threads.
+    column_problems = []
+    pending = []
     for std, original in original_of.items():
         if std == "source_id":
             continue
         label = _column_label(std, original)
-        values, unit = _as_float(table[original], label, owned)
+        found_here = []
+        column_problems.append(found_here)
+        values, unit, ours = _as_float(table[original], label, copy and not owned)
         if values is None:
-            problems.append(unit)
+            found_here.append(unit)
             continue
+        writable = ours or owned
         unit, problem = _resolve_unit(std, original, unit, stated_units.get(std), label)
         if problem:
-            problems.append(problem)
+            found_here.append(problem)
             continue
         target = STANDARD_UNITS[std]
         try:
             scale = unit.to(target)
         except u.UnitConversionError:
-            problems.append(
+            found_here.append(
                 f"{label} has unit {unit.to_string()!r}, which cannot be converted to the expected "
                 f"unit {target.to_string() or 'dimensionless'!r}"
             )
             continue
         if scale != 1.0:
-            values *= scale
+            if writable:
+                values *= scale
+            else:
+                values, writable = values * scale, True
+        pending.append((std, label, values, writable, target, found_here))
+    converted = {}
+    summaries = {}
+    ra_wrapped = 0
+    for (std, label, values, writable, target, found_here), summary in zip(
+            pending, _summaries([item[2] for item in pending])):
         if std == "ra":
-            ra_wrapped = _wrap_ra(values)
-        problems.extend(_range_problems(std, values, label, target))
+            # Wrapping moves finite values only, so the summary still tells about infinities.
+            values, ra_wrapped = _wrap_ra(values, summary, writable)
+        found_here.extend(_range_problems(std, values, label, target, summary))
         converted[std] = values
+        summaries[std] = summary
+    problems = [problem for found_here in column_problems for problem in found_here]
     if problems:
         raise CatalogError(
             f"{len(problems)} problem{'s' if len(problems) > 1 else ''} in the catalogue:\n  - "
@@ -662,15 +772,15 @@ def read_catalog(source, *, format=None, aliases=None, units=None):
     flag_columns = [*REQUIRED_COLUMNS, distance_column]
     # An all-NaN radial velocity column (e.g. our own filled one, read back) carries no information;
     # flagging every row for it would make has_nan useless.
-    if not filled and not np.isnan(converted["radial_velocity"]).all():
+    if not filled and summaries["radial_velocity"].n_nan != n_rows:
         flag_columns.append("radial_velocity")
     nan_counts = {}
     has_nan = np.zeros(n_rows, dtype=bool)
-    for std, values in converted.items():
-        isnan = np.isnan(values)
-        nan_counts[std] = int(np.count_nonzero(isnan))
-        if std in flag_columns:
-            has_nan |= isnan
+    for std in converted:
+        summary = summaries.get(std)
+        nan_counts[std] = n_rows if summary is None else summary.n_nan  # no summary: our all-NaN column
+        if std in flag_columns and summary is not None and summary.n_nan:
+            has_nan |= summary.isnan
 
     names, columns = [], []
     for name in table.colnames:

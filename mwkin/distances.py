@@ -127,7 +127,10 @@ class DistanceResult:
 
 def _result(distance, error, codes, names, parameter, value, value_error):
     """DistanceResult from per-row codes (0 = usable, i + 1 = names[i]); distance and error are ours to edit."""
-    counts = {name: int(np.count_nonzero(codes == i)) for i, name in enumerate(names, start=1)}
+    if np.count_nonzero(codes):
+        counts = {name: int(np.count_nonzero(codes == i)) for i, name in enumerate(names, start=1)}
+    else:  # the common case, one pass
+        counts = dict.fromkeys(names, 0)
     usable = codes == 0
     if sum(counts.values()):
         distance[~usable] = np.nan
@@ -234,10 +237,13 @@ class InverseParallax:
             plx_err = np.zeros_like(plx)
 
         cut = self.min_snr > 0
+        # Two reductions tell whether the first checks can fail at all (min is NaN if any value is).
+        all_positive = plx.size == 0 or plx.min() > 0
+        errors_known = not cut or plx_err.size == 0 or not np.isnan(plx_err.max())
         checks = (  # in the order of self.reasons; the first failing check names the reason
-            lambda: np.isnan(plx),
-            lambda: plx <= 0,
-            lambda: np.isnan(plx_err) if cut else None,
+            lambda: None if all_positive else np.isnan(plx),
+            lambda: None if all_positive else plx <= 0,
+            lambda: np.isnan(plx_err) if cut and not errors_known else None,
             lambda: plx < self.min_snr * plx_err if cut else None,
         )
         codes = np.zeros(plx.shape, dtype=np.uint8)
@@ -245,11 +251,15 @@ class InverseParallax:
             # From the last check to the first, so that the first failing check has the last word.
             for code, check in reversed(list(enumerate(checks, start=1))):
                 bad = check()
-                if bad is not None:
-                    codes[bad] = code
+                if bad is not None and bad.any():
+                    np.copyto(codes, code, where=bad)
         with np.errstate(invalid="ignore", divide="ignore"):
-            distance = 1.0 / plx
-            error = plx_err * distance * distance if has_error else None
+            distance = np.divide(1.0, plx)
+            if has_error:
+                error = plx_err * distance
+                error *= distance
+            else:
+                error = None
         return _result(distance, error, codes, self.reasons, "parallax", plx, plx_err)
 
     def describe(self):

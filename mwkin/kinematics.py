@@ -26,8 +26,14 @@ Conventions
 
 Implementation notes
 --------------------
-Stars are processed in blocks of a few thousand so that the working arrays stay in the processor
-cache; the constant rotations are matrix products (BLAS), the rest plain numpy on 1-D arrays.
+Stars are processed in blocks of 32768 (:func:`mwkin._blocks.run_blocks`) on ``MWKIN_THREADS``
+threads (default min(2, CPUs)): numpy releases the interpreter lock inside its loops, and each
+block's scratch arrays are made once per thread and reused, so that no large temporary arrays are
+made. Smaller blocks would fit the cache better, but then the threads spend their time waiting for
+the interpreter lock between the short numpy calls; 32768 was measured best for both the plain
+conversion and the linear uncertainties. Outputs are rows of one preallocated array, written in
+place. The constant rotations are matrix products (BLAS, in chunks small enough that OpenBLAS does
+not start threads of its own), the rest plain numpy.
 """
 
 from __future__ import annotations
@@ -40,6 +46,7 @@ import numpy as np
 import astropy.units as u
 from astropy.table import QTable
 
+from ._blocks import run_blocks
 from .distances import InverseParallax, _column_values
 from .frames import SolarFrame
 from .galactic import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC
@@ -60,7 +67,9 @@ __all__ = [
 _K = K_KMS_PER_MASYR_KPC  # km/s per (mas/yr kpc)
 _MAS_TO_RAD = math.pi / (180.0 * 3.6e6)
 _DEG = 180.0 / math.pi
-_BLOCK = 1 << 13  # stars per block (see the module notes)
+_BLOCK = 1 << 15  # stars per block (see the module notes)
+_BLAS_CHUNK = 1 << 19  # multiply-adds per matrix product call (see _matmul)
+_ROTATION_CHUNK = 1 << 13  # stars per step of the covariance rotations (see _Linear)
 _MC_DRAWS_PER_BLOCK = 1 << 18  # stars x samples per Monte Carlo block: bounds memory
 #: Percentiles of a Gaussian at -1 and +1 sigma (15.87 and 84.13).
 _SIGMA_LEVELS = (50.0 * math.erfc(1.0 / math.sqrt(2.0)), 50.0 * math.erfc(-1.0 / math.sqrt(2.0)))
@@ -111,7 +120,6 @@ _CORRELATIONS = {
 # Unique entries of a symmetric 3x3 block, in the order the blocks are stored.
 _SYM = ((0, 0), (0, 1), (0, 2), (1, 1), (1, 2), (2, 2))
 _SYM_DIAG = (0, 3, 5)
-_FULL = tuple((i, j) for i in range(3) for j in range(3))
 
 _SKY_REASON = "no_sky_position"
 
@@ -130,9 +138,17 @@ def _sym_map(R):
     return T
 
 
-def _full_map(R):
-    """Matrix acting on the 9 entries (row-major) of S, giving those of R S R^T."""
-    return np.array([[R[a, i] * R[b, j] for (i, j) in _FULL] for (a, b) in _FULL])
+def _antisym_map(R):
+    """Matrix acting on the entries 01, 02, 12 of an antisymmetric Z, giving those of R Z R^T."""
+    keys = ((0, 1), (0, 2), (1, 2))
+    T = np.zeros((3, 3))
+    for q, (i, j) in enumerate(keys):
+        basis = np.zeros((3, 3))
+        basis[i, j], basis[j, i] = 1.0, -1.0
+        turned = R @ basis @ R.T
+        for p, (a, b) in enumerate(keys):
+            T[p, q] = turned[a, b]
+    return T
 
 
 @dataclass(frozen=True)
@@ -157,16 +173,34 @@ class _Geometry:
         vel[3:, 3] = v_sun
         return cls(matrix, offset, v_sun, pos, vel)
 
-    def covariance_maps(self, full_helio):
-        """Maps from ICRS block entries to (Galactocentric; heliocentric) block entries."""
-        gc_sym, h_sym = _sym_map(self.icrs_to_gc), _sym_map(ICRS_TO_GALACTIC)
-        if not full_helio:
-            h_sym = h_sym[list(_SYM_DIAG)]
-        maps = {"rr": np.vstack([gc_sym, h_sym]), "vv": np.vstack([gc_sym, h_sym]),
-                "rv": _full_map(self.icrs_to_gc)}
-        if full_helio:
-            maps["rv"] = np.vstack([maps["rv"], _full_map(ICRS_TO_GALACTIC)])
-        return maps
+    def covariance_maps(self, full):
+        """Maps from ICRS covariance entries to Galactocentric and heliocentric ones.
+
+        Returns (maps, rows): ``maps["sym"]`` acts on the unique entries (_SYM order) of a symmetric
+        block, ``maps["cross_sym"]`` likewise for the symmetric part of the position-velocity block,
+        ``maps["cross_anti"]`` on the antisymmetric part (entries 01, 02, 12); ``rows[name]`` names
+        the rows of each product ("xx", "xy", ... and "XX", ... for the Galactic axes). With ``full``
+        every entry of both frames is made, Galactocentric first (for the covariance matrices);
+        otherwise only those the uncertainties need.
+        """
+        frames = {"gc": self.icrs_to_gc, "h": ICRS_TO_GALACTIC}
+        axes = {"gc": "xyz", "h": "XYZ"}
+        every_sym = [(f, a, b) for f in frames for a, b in _SYM]
+        every_anti = [(f, a, b) for f in frames for a, b in ((0, 1), (0, 2), (1, 2))]
+        if full:
+            want = {"sym": every_sym, "cross_sym": every_sym, "cross_anti": every_anti}
+        else:
+            # Variances of both frames, and the x-y entries the cylindrical coordinates need.
+            want = {"sym": [("gc", 0, 0), ("gc", 0, 1), ("gc", 1, 1), ("gc", 2, 2),
+                            ("h", 0, 0), ("h", 1, 1), ("h", 2, 2)],
+                    "cross_sym": [("gc", 0, 0), ("gc", 0, 1), ("gc", 1, 1)], "cross_anti": [("gc", 0, 1)]}
+        full_maps = {f: {"sym": _sym_map(R), "anti": _antisym_map(R)} for f, R in frames.items()}
+        maps, rows = {}, {}
+        for name, entries in want.items():
+            kind, keys = ("anti", ((0, 1), (0, 2), (1, 2))) if name == "cross_anti" else ("sym", _SYM)
+            maps[name] = np.array([full_maps[f][kind][keys.index((a, b))] for f, a, b in entries])
+            rows[name] = {axes[f][a] + axes[f][b]: i for i, (f, a, b) in enumerate(entries)}
+        return maps, rows
 
 
 def _frame_or_default(frame):
@@ -178,81 +212,229 @@ def _frame_or_default(frame):
 
 
 # ====================================================================== forward conversion
-def _sin_cos_deg(angle_deg):
-    """sin and cos of angles in degrees, through the tangent of the half angle.
+# Scratch names that share memory with names whose values are no longer needed by then: fewer
+# distinct arrays keep more of a block's working set in the processor cache. Forward-only
+# temporaries serve the first steps of the uncertainties, and the Jacobian rows and their
+# correlation-weighted sums (dead once the local covariance is made) serve the last steps.
+_SHARED_SCRATCH = {
+    "kma": "t_ra", "kmd": "t_dec", "kt": "w", "pa": "t2", "rot_t2": "g",
+    "cyl_c": "h30", "cyl_s": "h31", "cyl_c2": "h40", "cyl_s2": "h50", "cyl_cs": "h42", "cyl_2cs": "h43",
+    "cyl_cos2": "h51", "var_p1": "h52", "var_w0": "h54", "var_w1": "W30", "cov_p1_w0": "W31",
+    "cov_p1_w1": "W32", "cyl_half": "W40", "cyl_f": "W41",
+    "gal_p": "h30", "gal_q": "h31", "inv_cb2": "h40", "gal_ja": "h50", "gal_jd": "h42", "gal_x": "h43",
+}
 
+
+class _Scratch:
+    """Arrays reused by every block one thread works on (fresh temporaries would cost page faults).
+
+    ``vec(name, m)`` is a 1-D array of length m, ``mat(name, rows, m)`` a (rows, m) array; both are
+    views of arrays made once per thread with room for a whole block. Names listed in
+    _SHARED_SCRATCH share the memory of another name.
+    """
+
+    def __init__(self, capacity=None):
+        self._arrays = {}
+        self.capacity = _BLOCK if capacity is None else capacity
+
+    def vec(self, name, m):
+        name = _SHARED_SCRATCH.get(name, name)
+        a = self._arrays.get(name)
+        if a is None or a.shape[0] < m:
+            a = self._arrays[name] = np.empty(max(m, self.capacity))
+        return a[:m]
+
+    def mat(self, name, rows, m, fill_last=None):
+        """(rows, m) view; ``fill_last`` is written into the last row once, when the array is made."""
+        name = _SHARED_SCRATCH.get(name, name)
+        a = self._arrays.get(name)
+        if a is None or a.shape[-1] < m:
+            a = self._arrays[name] = np.empty((rows, max(m, self.capacity)))
+            if fill_last is not None:
+                a[-1] = fill_last
+        return a[:, :m]
+
+    def arr(self, name, shape, m):
+        """(*shape, m) view."""
+        a = self._arrays.get(name)
+        if a is None or a.shape[-1] < m:
+            a = self._arrays[name] = np.empty(tuple(shape) + (max(m, self.capacity),))
+        return a[..., :m]
+
+    def mask(self, name, m):
+        """Boolean (m,) view."""
+        a = self._arrays.get(name)
+        if a is None or a.shape[0] < m:
+            a = self._arrays[name] = np.empty(max(m, self.capacity), dtype=bool)
+        return a[:m]
+
+
+def _scratch_for(n):
+    """Maker of per-thread scratch for n rows (no larger than a block)."""
+    capacity = max(1, min(n, _BLOCK))
+    return lambda: _Scratch(capacity)
+
+
+def _matmul(A, X, out):
+    """out = A @ X for a small constant matrix A and a (k, m) block X, in column chunks.
+
+    OpenBLAS starts its own threads for products above about 1e6 multiply-adds; those threads spin
+    while waiting and take the cores from the block threads, so the chunks stay below that size.
+    """
+    step = max(1024, _BLAS_CHUNK // A.size)
+    m = X.shape[1]
+    if m <= step:
+        return np.matmul(A, X, out=out)
+    for start in range(0, m, step):
+        np.matmul(A, X[:, start:start + step], out=out[:, start:start + step])
+    return out
+
+
+def _sin_cos_deg(angles_deg, sin_out, cos_out, t, den):
+    """sin and cos of angles in degrees, through the tangent of the half angle, into (k, m) arrays.
+
+    ``angles_deg`` is a sequence of k arrays of length m; ``t`` and ``den`` are (k, m) scratch.
     numpy evaluates tan with SIMD instructions but not sin or cos; this is several times faster and
-    accurate to a few 1e-16 (absolute) for any angle.
+    accurate to a few 1e-16 (absolute) for any angle: with t = tan(angle/2), sin = 2t/(1 + t^2) and
+    cos = (1 - t^2)/(1 + t^2). The k rows go through each step together, in fewer numpy calls.
     """
-    t = np.tan(np.asarray(angle_deg, dtype=float) * (math.pi / 360.0))
-    t2 = t * t
-    inv = 1.0 / (1.0 + t2)
-    return 2.0 * t * inv, (1.0 - t2) * inv
-
-
-def _workspace(n, block=_BLOCK):
-    """Scratch arrays reused by every block of one call (fresh large temporaries would cost page faults)."""
-    m = min(n, block)
-    work = {"r": np.empty((4, m)), "v": np.empty((4, m)), "pos": np.empty((6, m)), "vel": np.empty((6, m))}
-    work["r"][3] = work["v"][3] = 1.0
-    return work
-
-
-def _forward_block(sa, ca, sd, cd, d, pmra, pmdec, rv, geo, pos_out, vel_out, scalars, work):
-    """Positions, velocities and derived quantities of one block of stars, written into the outputs.
-
-    ``pos_out`` and ``vel_out`` are (6, n) views for _POSITION_ROWS and _VELOCITY_ROWS; ``scalars``
-    maps _SCALARS to (n,) views; ``work`` comes from :func:`_workspace`. Distance in kpc, proper
-    motions in mas/yr, velocities in km/s; angles in radians.
-    """
-    n = sa.shape[0]
-    r, v, pos, vel = (work[k][:, :n] for k in ("r", "v", "pos", "vel"))  # rows 3 of r and v hold 1
-    np.multiply(cd, ca, out=r[0])
-    np.multiply(cd, sa, out=r[1])
-    r[2] = sd
-    g = ICRS_TO_GALACTIC @ r[:3]  # direction in Galactic axes, needs no distance
-    r[:3] *= d
-    # Heliocentric velocity in ICRS: v_r r_hat + k d (mu_a* e_ra + mu_d e_dec).
-    kd = _K * d
-    t_ra, t_dec = kd * pmra, kd * pmdec
-    w = rv * cd - t_dec * sd
-    np.subtract(ca * w, t_ra * sa, out=v[0])
-    np.add(sa * w, t_ra * ca, out=v[1])
-    np.add(rv * sd, t_dec * cd, out=v[2])
-    np.matmul(geo.position_map, r, out=pos)  # [X Y Z x y z], the offset through the row of ones
-    np.matmul(geo.velocity_map, v, out=vel)
-    pos_out[...] = pos
-    vel_out[...] = vel
-    x, y, vx, vy = pos[3], pos[4], vel[3], vel[4]
-    R = np.sqrt(x * x + y * y, out=scalars["R"])
-    with np.errstate(invalid="ignore", divide="ignore"):
-        inv_R = 1.0 / R
-    np.arctan2(y, -x, out=scalars["phi"])
-    np.multiply(x * vx + y * vy, inv_R, out=scalars["v_R"])
-    np.multiply(y * vx - x * vy, inv_R, out=scalars["v_phi"])
-    lon = np.arctan2(g[1], g[0], out=scalars["l"])
-    lon[lon < 0] += 2.0 * math.pi
-    np.arctan2(g[2], np.sqrt(g[0] * g[0] + g[1] * g[1]), out=scalars["b"])
+    for row, angle in zip(t, angles_deg):
+        np.multiply(angle, math.pi / 360.0, row)
+    np.tan(t, t)
+    np.multiply(t, t, den)
+    np.subtract(1.0, den, cos_out)
+    np.add(den, 1.0, den)
+    np.divide(cos_out, den, cos_out)
+    np.add(t, t, sin_out)
+    np.divide(sin_out, den, sin_out)
+    return sin_out, cos_out
 
 
 def _allocate(n):
-    """Output arrays: position and velocity blocks (6, n) and the scalar columns; returns (blocks, columns)."""
-    pos, vel = np.empty((6, n)), np.empty((6, n))
+    """Output arrays: position and velocity blocks (6, n) and the scalar columns; returns (blocks, columns).
+
+    All are rows of one array: one large allocation is backed by huge pages where the system offers
+    them, which makes the first writes cheaper than into many separate arrays.
+    """
+    rows = np.empty((12 + len(_SCALARS), n))
+    pos, vel = rows[:6], rows[6:12]
     columns = {name: pos[i] for i, name in enumerate(_POSITION_ROWS)}
     columns.update({name: vel[i] for i, name in enumerate(_VELOCITY_ROWS)})
-    columns.update({name: np.empty(n) for name in _SCALARS})
+    columns.update({name: rows[12 + i] for i, name in enumerate(_SCALARS)})
     return (pos, vel), columns
 
 
+class _Forward:
+    """The forward conversion of rows [start, stop), written into preallocated output arrays.
+
+    ``inputs`` holds full-length arrays: ``ra`` and ``dec`` in deg (or ``sa ca sd cd``, their sines
+    and cosines), ``d`` (kpc), ``pmra`` and ``pmdec`` (mas/yr), ``rv`` (km/s). ``pos`` and ``vel``
+    are the (6, n) outputs for _POSITION_ROWS and _VELOCITY_ROWS, ``columns`` the (n,) outputs of
+    _SCALARS; with ``degrees`` the angles are written in degrees (l in [0, 360)), else in radians
+    (l in [0, 2 pi)). With ``trig`` (dict of full-length arrays sa, ca, sd, cd) the sines and cosines
+    are kept there. ``then`` is called as ``then(start, stop, scratch, block_values)`` after the
+    block, with the block's trigonometry and a few intermediate values (see :meth:`__call__`).
+    """
+
+    def __init__(self, inputs, geo, pos, vel, columns, degrees=True, trig=None, then=None):
+        self.inputs, self.geo, self.pos, self.vel = inputs, geo, pos, vel
+        self.columns, self.degrees, self.trig, self.then = columns, degrees, trig, then
+
+    def __call__(self, start, stop, ws):
+        m = stop - start
+        sl = slice(start, stop)
+        inp, geo = self.inputs, self.geo
+        d, pmra, pmdec, rv = inp["d"][sl], inp["pmra"][sl], inp["pmdec"][sl], inp["rv"][sl]
+        t1, t2 = ws.vec("t1", m), ws.vec("t2", m)
+        if "ra" in inp:
+            sin, cos = ws.mat("sin", 2, m), ws.mat("cos", 2, m)
+            _sin_cos_deg((inp["ra"][sl], inp["dec"][sl]), sin, cos, ws.mat("trig_t", 2, m), ws.mat("trig_den", 2, m))
+            sa, sd = sin
+            ca, cd = cos
+            if self.trig is not None:  # kept for the Monte Carlo draws
+                for name, values in zip(("sa", "ca", "sd", "cd"), (sa, ca, sd, cd)):
+                    np.copyto(self.trig[name][sl], values)
+        else:
+            sa, ca, sd, cd = (inp[k][sl] for k in ("sa", "ca", "sd", "cd"))
+
+        # Position: r = d r_hat in ICRS, the last row of ones brings in the constant offset.
+        r = ws.mat("r", 4, m, fill_last=1.0)
+        np.multiply(cd, ca, r[0])
+        np.multiply(cd, sa, r[1])
+        np.copyto(r[2], sd)
+        g = ws.mat("g", 3, m)
+        _matmul(ICRS_TO_GALACTIC, r[:3], g)  # direction in Galactic axes, needs no distance
+        r[:3] *= d
+        pos, vel = self.pos[:, sl], self.vel[:, sl]
+        _matmul(geo.position_map, r, pos)  # [X Y Z x y z]
+
+        # Heliocentric velocity in ICRS: v_r r_hat + k d (mu_a* e_ra + mu_d e_dec).
+        kd, t_ra, t_dec = ws.vec("kd", m), ws.vec("t_ra", m), ws.vec("t_dec", m)
+        np.multiply(d, _K, kd)
+        np.multiply(kd, pmra, t_ra)
+        np.multiply(kd, pmdec, t_dec)
+        v = ws.mat("v", 4, m, fill_last=1.0)
+        w = ws.vec("w", m)
+        np.multiply(rv, cd, w)
+        np.multiply(t_dec, sd, t1)
+        np.subtract(w, t1, w)
+        np.multiply(ca, w, v[0])
+        np.multiply(t_ra, sa, t1)
+        np.subtract(v[0], t1, v[0])
+        np.multiply(sa, w, v[1])
+        np.multiply(t_ra, ca, t1)
+        np.add(v[1], t1, v[1])
+        np.multiply(rv, sd, v[2])
+        np.multiply(t_dec, cd, t1)
+        np.add(v[2], t1, v[2])
+        _matmul(geo.velocity_map, v, vel)  # [U V W vx vy vz]
+
+        # Cylindrical.
+        cols = {k: self.columns[k][sl] for k in _SCALARS}
+        x, y, vx, vy = pos[3], pos[4], vel[3], vel[4]
+        R, inv_R = cols["R"], ws.vec("inv_R", m)
+        np.multiply(x, x, t1)
+        np.multiply(y, y, t2)
+        np.add(t1, t2, R)
+        np.sqrt(R, R)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            np.divide(1.0, R, inv_R)
+        np.negative(x, t1)
+        np.arctan2(y, t1, cols["phi"])
+        np.multiply(x, vx, t1)
+        np.multiply(y, vy, t2)
+        np.add(t1, t2, t1)
+        np.multiply(t1, inv_R, cols["v_R"])
+        np.multiply(y, vx, t1)
+        np.multiply(x, vy, t2)
+        np.subtract(t1, t2, t1)
+        np.multiply(t1, inv_R, cols["v_phi"])
+
+        # Galactic longitude and latitude; cos^2 b is kept for the uncertainties.
+        lon, lat, cos2_b = cols["l"], cols["b"], ws.vec("cos2_b", m)
+        np.arctan2(g[1], g[0], lon)
+        np.multiply(g[0], g[0], t1)
+        np.multiply(g[1], g[1], t2)
+        np.add(t1, t2, cos2_b)
+        np.sqrt(cos2_b, t1)
+        np.arctan2(g[2], t1, lat)
+        if self.degrees:
+            for col in (cols["phi"], lon, lat):
+                col *= _DEG
+        # l in [0, 360) deg: add a full turn where arctan2 gave a negative angle (a product with the
+        # mask is several times faster than a masked add).
+        np.multiply(np.less(lon, 0.0, out=ws.mask("negative", m)), 360.0 if self.degrees else 2.0 * math.pi, t1)
+        np.add(lon, t1, lon)
+        if self.then is not None:
+            self.then(start, stop, ws, dict(sa=sa, ca=ca, sd=sd, cd=cd, kd=kd, inv_R=inv_R, cos2_b=cos2_b))
+
+
 def _forward_all(sa, ca, sd, cd, d, pmra, pmdec, rv, geo):
-    """:func:`_forward_block` over arrays of any length; returns {column: array} (angles in radians)."""
+    """The forward conversion of arrays of any length; returns {column: array} (angles in radians)."""
     n = sa.shape[0]
     (pos, vel), columns = _allocate(n)
-    work = _workspace(n)
-    for start in range(0, n, _BLOCK):
-        sl = slice(start, start + _BLOCK)
-        _forward_block(sa[sl], ca[sl], sd[sl], cd[sl], d[sl], pmra[sl], pmdec[sl], rv[sl], geo,
-                       pos[:, sl], vel[:, sl], {k: columns[k][sl] for k in _SCALARS}, work)
+    inputs = dict(sa=sa, ca=ca, sd=sd, cd=cd, d=d, pmra=pmra, pmdec=pmdec, rv=rv)
+    run_blocks(n, _BLOCK, _Forward(inputs, geo, pos, vel, columns, degrees=False), _scratch_for(n))
     columns["v_z"] = columns["vz"]
     columns["distance"] = d
     return columns
@@ -271,9 +453,12 @@ def _as_arrays(names_values):
 def _observables_forward(ra_deg, dec_deg, distance_kpc, pmra, pmdec, rv_kms, frame):
     ra, dec, d, pa, pd, rv = _as_arrays({"ra_deg": ra_deg, "dec_deg": dec_deg, "distance_kpc": distance_kpc,
                                          "pmra": pmra, "pmdec": pmdec, "rv_kms": rv_kms})
-    sa, ca = _sin_cos_deg(ra)
-    sd, cd = _sin_cos_deg(dec)
-    return _forward_all(sa, ca, sd, cd, d, pa, pd, rv, _Geometry.of(_frame_or_default(frame)))
+    n = ra.shape[0]
+    (pos, vel), columns = _allocate(n)
+    inputs = dict(ra=ra, dec=dec, d=d, pmra=pa, pmdec=pd, rv=rv)
+    geo = _Geometry.of(_frame_or_default(frame))
+    run_blocks(n, _BLOCK, _Forward(inputs, geo, pos, vel, columns, degrees=False), _scratch_for(n))
+    return columns
 
 
 def galactocentric_from_observables(ra_deg, dec_deg, distance_kpc, pmra, pmdec, rv_kms, frame=None):
@@ -405,237 +590,427 @@ def _nonzero(value):
     return not (isinstance(value, float) and value == 0.0)
 
 
-def _sum_terms(terms):
-    """Sum of arrays (or 0.0 when there are none), without an initial array of zeros."""
-    total = 0.0
-    for t in terms:
-        total = total + t
-    return total
+def _combine(out, tmp, terms, alias=False):
+    """out = the sum of ``terms``; returns out, or None when no term is left.
 
-
-def _times(value, sigma):
-    """value * sigma, or 0.0 when sigma is the float 0.0 (a parameter without uncertainty)."""
-    return value * sigma if _nonzero(sigma) else 0.0
-
-
-def _local_covariance(H, rho):
-    """Covariance H rho H^T for sparse rows H (list of {parameter: array}) and correlations rho.
-
-    ``rho`` maps (k, l) with k < l to the correlation of parameters k and l (absent = 0; the diagonal
-    is 1). Returns {(i, j): array or 0.0} for i <= j. Only non-zero terms are evaluated.
+    A term is an array, or a pair (a, b) standing for a * b, or a triple (a, b, -1) for -a * b.
+    None terms, and pairs or triples with a None factor (a parameter without uncertainty, an absent
+    correlation), are left out. Products are evaluated first, a positive one first of all, so that
+    no operation is spent on copies or signs; ``out`` must not be one of the factors. With
+    ``alias``, a sum of a single array is that array itself (nothing is written to ``out``).
     """
-    G = []
-    for row in H:
-        g = {}
-        for k, h in row.items():
-            for col in range(6):
-                if k == col:
-                    term = h
-                else:
-                    c = rho.get((min(k, col), max(k, col)))
-                    if c is None:
-                        continue
-                    term = h * c
-                g[col] = g[col] + term if col in g else term
-        G.append(g)
-    return {(i, j): _sum_terms(G[i][col] * h for col, h in H[j].items() if col in G[i])
-            for i in range(6) for j in range(i, 6)}
-
-
-def _lin(*pairs):
-    """sum of a * b over the pairs whose factors are both non-zero (arrays, numbers or the float 0.0)."""
-    return _sum_terms(a * b for a, b in pairs if _nonzero(a) and _nonzero(b))
-
-
-class _PlaneRotation:
-    """Rotation by an angle with cosine c and sine s in the plane of axes (i, j), for congruences."""
-
-    def __init__(self, c, s, i, j):
-        self.c, self.s, self.i, self.j = c, s, i, j
-        self.c2, self.s2, self.cs = c * c, s * s, c * s
-        self.two_cs, self.c2_s2 = 2.0 * self.cs, self.c2 - self.s2
-
-    def symmetric(self, P):
-        """G P G^T for symmetric P given as {(a, b): value} with a <= b; the same form back."""
-        i, j, c, s = self.i, self.j, self.c, self.s
-        Q = dict(P)
-        pii, pij, pjj = P[i, i], P[min(i, j), max(i, j)], P[j, j]
-        Q[i, i] = _lin((self.c2, pii), (-self.two_cs, pij), (self.s2, pjj))
-        Q[j, j] = _lin((self.s2, pii), (self.two_cs, pij), (self.c2, pjj))
-        diff = _lin((1.0, pii), (-1.0, pjj))
-        Q[min(i, j), max(i, j)] = _lin((self.cs, diff), (self.c2_s2, pij))
-        for k in {0, 1, 2} - {i, j}:
-            pik, pjk = P[min(i, k), max(i, k)], P[min(j, k), max(j, k)]
-            Q[min(i, k), max(i, k)] = _lin((c, pik), (-s, pjk))
-            Q[min(j, k), max(j, k)] = _lin((s, pik), (c, pjk))
-        return Q
-
-    def general(self, X):
-        """G X G^T for any 3x3 X given as {(a, b): value}; the same form back."""
-        i, j, c, s = self.i, self.j, self.c, self.s
-        Y = dict(X)
-        for k in range(3):  # rows
-            Y[i, k] = _lin((c, X[i, k]), (-s, X[j, k]))
-            Y[j, k] = _lin((s, X[i, k]), (c, X[j, k]))
-        Z = dict(Y)
-        for k in range(3):  # columns
-            Z[k, i] = _lin((c, Y[k, i]), (-s, Y[k, j]))
-            Z[k, j] = _lin((s, Y[k, i]), (c, Y[k, j]))
-        return Z
-
-
-def _rows(block, entries, n):
-    """Stack the entries of a block into an array of shape (len(entries), n)."""
-    out = np.empty((len(entries), n))
-    for row, key in enumerate(entries):
-        out[row] = block[key]
+    plus, minus, plain = [], [], []
+    for term in terms:
+        if term is None:
+            continue
+        if isinstance(term, tuple):
+            if term[0] is not None and term[1] is not None:
+                (minus if len(term) == 3 else plus).append(term)
+        else:
+            plain.append(term)
+    if not (plus or minus):
+        if not plain:
+            return None
+        if alias and len(plain) == 1:
+            return plain[0]
+        if len(plain) == 1:
+            np.copyto(out, plain[0])
+            return out
+        np.add(plain[0], plain[1], out)
+        plain = plain[2:]
+    elif plus:
+        np.multiply(plus[0][0], plus[0][1], out)
+        plus = plus[1:]
+    elif plain:  # only negative products and arrays: out = array - a b
+        np.multiply(minus[0][0], minus[0][1], tmp)
+        np.subtract(plain[0], tmp, out)
+        minus, plain = minus[1:], plain[1:]
+    else:
+        np.multiply(minus[0][0], minus[0][1], out)
+        np.negative(out, out)
+        minus = minus[1:]
+    for a, b in plus:
+        np.multiply(a, b, tmp)
+        np.add(out, tmp, out)
+    for a, b, _ in minus:
+        np.multiply(a, b, tmp)
+        np.subtract(out, tmp, out)
+    for a in plain:
+        np.add(out, a, out)
     return out
 
 
-def _linear_block(sa, ca, sd, cd, d, dd_dp, pmra, pmdec, rv, sig, rho, nominal, maps, sigma_out, cov_out):
-    """Linear uncertainties of one block of stars, written into ``sigma_out`` (and ``cov_out``).
+def _rotation(c, s, ws, name, m):
+    """(c, s, cos 2t, sin 2t, cos(2t)/2, sin(2t)/2) of a plane rotation by t, in scratch arrays."""
+    out = ws.mat(name, 4, m)
+    C, S, C_half, S_half = out
+    np.multiply(c, c, C)
+    np.multiply(s, s, S_half)
+    np.subtract(C, S_half, C)  # cos 2t = c^2 - s^2
+    np.multiply(c, s, S_half)  # sin(2t)/2 = c s
+    np.add(S_half, S_half, S)
+    np.multiply(C, 0.5, C_half)
+    return c, s, C, S, C_half, S_half
 
-    ``sig`` holds the six standard deviations (ra* and dec in rad, parallax in mas or distance in kpc,
-    proper motions in mas/yr, rv in km/s), the float 0.0 for a parameter without uncertainty;
-    ``dd_dp`` is the derivative of the distance with respect to the third parameter.
+
+def _rotate_in_place(P, Z, rot, i, j, ws, m):
+    """P -> G P G^T and Z -> G Z G^T in place, for the plane rotation G in the plane of axes i < j.
+
+    P is a (k, 6, m) stack of symmetric 3x3 matrices (unique entries in _SYM order), Z a (3, m)
+    antisymmetric matrix (entries 01, 02, 12). With T = (P_ii + P_jj)/2, D2 = P_ii - P_jj and the
+    double angle 2t, Q_ii = T + E, Q_jj = T - E with E = cos(2t) D2/2 - sin(2t) P_ij and
+    Q_ij = sin(2t) D2/2 + cos(2t) P_ij: 11 operations instead of 14. The in-plane entry of an
+    antisymmetric matrix does not change, and off-plane pairs turn like vectors.
+    """
+    c, s, C, S, C_half, S_half = rot
+    k = 3 - i - j
+    e = {key: p for p, key in enumerate(_SYM)}
+    Pii, Pjj, Pij = P[:, e[i, i]], P[:, e[j, j]], P[:, e[i, j]]
+    Pik, Pjk = P[:, e[min(i, k), max(i, k)]], P[:, e[min(j, k), max(j, k)]]
+    n_blocks = P.shape[0]
+    t2, d2, big_e, tmp = (ws.mat(f"rot_{name}", n_blocks, m) for name in ("t2", "d2", "e", "tmp"))
+    np.add(Pii, Pjj, t2)
+    np.subtract(Pii, Pjj, d2)
+    np.multiply(d2, C_half, big_e)
+    np.multiply(Pij, S, tmp)
+    np.subtract(big_e, tmp, big_e)  # (Q_ii - Q_jj)/2
+    np.multiply(Pij, C, Pij)
+    np.multiply(d2, S_half, tmp)
+    np.add(Pij, tmp, Pij)  # Q_ij
+    np.multiply(t2, 0.5, t2)
+    np.add(t2, big_e, Pii)
+    np.subtract(t2, big_e, Pjj)
+    _turn_pair(Pik, Pjk, c, s, tmp, t2)
+    # Antisymmetric part: Z_ij stays and (Z_ik, Z_jk) turn like (P_ik, P_jk). Only entries above the
+    # diagonal are stored (Z_ki = -Z_ik), so when exactly one of the two lies below it the turn
+    # goes the other way.
+    z = {(0, 1): 0, (0, 2): 1, (1, 2): 2}
+    _turn_pair(Z[z[min(i, k), max(i, k)]], Z[z[min(j, k), max(j, k)]], c, s, tmp[0], t2[0],
+               flip=(i < k) != (j < k))
+
+
+def _turn_pair(a, b, c, s, tmp, tmp2, flip=False):
+    """(a, b) -> (c a - s b, s a + c b) in place (s -> -s with ``flip``)."""
+    np.multiply(a, s, tmp2)
+    np.multiply(b, s, tmp)
+    np.multiply(a, c, a)
+    (np.add if flip else np.subtract)(a, tmp, a)
+    np.multiply(b, c, b)
+    (np.subtract if flip else np.add)(b, tmp2, b)
+
+
+class _Linear:
+    """Linear uncertainties of rows [start, stop), run after :class:`_Forward` on the same block.
+
+    ``sig`` maps the six parameters ("ra", "dec", "p", "pmra", "pmdec", "rv") to full-length
+    standard deviations (ra* and dec in mas, the third parameter -- parallax in mas or distance in
+    kpc -- proper motions in mas/yr, rv in km/s) or None for a parameter without uncertainty;
+    ``rho`` maps parameter index pairs (k, l), k < l, to full-length correlations (absent = 0).
 
     The Jacobian is written in each star's local basis (r_hat, e_ra, e_dec), where it is sparse. The
-    covariance there goes to ICRS axes with the per-star basis E, then to the Galactocentric and
-    Galactic axes with constant matrices acting on the covariance entries (matrix products).
+    covariance there -- position block, velocity block, and the position-velocity block split into
+    its symmetric and antisymmetric parts, which turn like a covariance and like a vector -- goes
+    to ICRS axes with two plane rotations per star (E = Rz(ra) B(dec)), then to the Galactocentric
+    and Galactic axes with constant matrices acting on the entries (matrix products).
     """
-    s_a, s_d, s_p, s_ma, s_md, s_v = sig
-    n = sa.shape[0]
-    kd = _K * d
-    with np.errstate(invalid="ignore", divide="ignore"):
-        tan_dec = sd / cd
-    a_sp = _times(dd_dp, s_p)
-    # Jacobian rows (position along r_hat, e_ra, e_dec; velocity along the same) times the standard
-    # deviation of each parameter (ra*, dec, parallax or distance, pmra, pmdec, rv). The tan(dec) terms
-    # come from the turning of e_ra and e_dec when the position moves in ra.
-    H = [
-        {2: a_sp},
-        {0: _times(d, s_a)},
-        {1: _times(d, s_d)},
-        {0: _times(-kd * pmra, s_a), 1: _times(-kd * pmdec, s_d), 5: s_v},
-        {0: _times(rv - kd * tan_dec * pmdec, s_a), 2: _times(_K * pmra, a_sp), 3: _times(kd, s_ma)},
-        {0: _times(kd * tan_dec * pmra, s_a), 1: _times(rv, s_d), 2: _times(_K * pmdec, a_sp),
-         4: _times(kd, s_md)},
-    ]
-    H = [{k: h for k, h in row.items() if _nonzero(h)} for row in H]
-    S = _local_covariance(H, rho)
-    # Local basis to ICRS: E = [r_hat, e_ra, e_dec] = Rz(ra) B(dec), two plane rotations, so that
-    # E P E^T costs two cheap congruences.
-    to_icrs = (_PlaneRotation(cd, sd, 0, 2), _PlaneRotation(ca, sa, 0, 1))
-    blocks = {}
-    for name, (i0, j0), entries in (("rr", (0, 0), _SYM), ("vv", (3, 3), _SYM), ("rv", (0, 3), _FULL)):
-        if name == "rv":
-            P = {(a, b): S[i0 + a, j0 + b] for a, b in _FULL}
-            for rot in to_icrs:
-                P = rot.general(P)
+
+    def __init__(self, sig, rho, parallax, maps, inputs, columns, sigmas, covs):
+        self.sig, self.rho, self.parallax, self.maps = sig, rho, parallax, maps
+        self.inputs, self.columns, self.sigmas, self.covs = inputs, columns, sigmas, covs
+
+    def __call__(self, start, stop, ws, bv):
+        m = stop - start
+        sl = slice(start, stop)
+        inp = self.inputs
+        d, pmra, pmdec, rv = inp["d"][sl], inp["pmra"][sl], inp["pmdec"][sl], inp["rv"][sl]
+        sa, ca, sd, cd, kd = bv["sa"], bv["ca"], bv["sd"], bv["cd"], bv["kd"]
+        sig = {k: (None if v is None else v[sl]) for k, v in self.sig.items()}
+        rho = {k: v[sl] for k, v in self.rho.items()}
+        tmp = ws.vec("t1", m)
+        out = {name: col[sl] for name, col in self.sigmas.items()}
+
+        def mul(name, a, b):
+            return None if a is None or b is None else np.multiply(a, b, ws.vec(name, m))
+
+        # Jacobian rows times the standard deviation of each parameter (0 ra*, 1 dec, 2 parallax or
+        # distance, 3 pmra, 4 pmdec, 5 rv), in the local basis. The tan(dec) terms come from the
+        # turning of e_ra and e_dec when the position moves in ra.
+        s_a = mul("s_a", sig["ra"], _MAS_TO_RAD)
+        s_d = mul("s_d", sig["dec"], _MAS_TO_RAD)
+        pa, pd = mul("pa", d, s_a), mul("pd", d, s_d)  # d sigma(ra*), d sigma(dec)
+        if self.parallax:  # d(distance)/d(parallax) = -d^2
+            a = mul("a", d, d)
+            a = None if sig["p"] is None else np.negative(np.multiply(a, sig["p"], a), a)
         else:
-            P = {(a, b): S[i0 + a, j0 + b] for a, b in _SYM}
-            for rot in to_icrs:
-                P = rot.symmetric(P)
-        blocks[name] = maps[name] @ _rows(P, entries, n)
-    rr, vv, rv_ = blocks["rr"], blocks["vv"], blocks["rv"]
-    var = {}
-    for i, p in enumerate(_SYM_DIAG):
-        var[_CARTESIAN[i]], var[_CARTESIAN[i + 3]] = rr[p], vv[p]
-    helio_diag = [6 + p for p in _SYM_DIAG] if cov_out is not None else [6, 7, 8]
-    for i, p in enumerate(helio_diag):
-        var[_HELIO[i]], var[_HELIO[i + 3]] = rr[p], vv[p]
+            a = sig["p"]
+        kma, kmd = mul("kma", pmra, _K), mul("kmd", pmdec, _K)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            kt = np.divide(sd, cd, ws.vec("kt", m))
+        np.multiply(kt, kd, kt)  # k d tan(dec)
+        h30 = _combine(ws.vec("h30", m), tmp, [(kma, pa, -1)])
+        h31 = _combine(ws.vec("h31", m), tmp, [(kmd, pd, -1)])
+        h40 = h50 = None
+        if s_a is not None:
+            h40 = np.multiply(kt, pmdec, ws.vec("h40", m))
+            np.subtract(rv, h40, h40)
+            np.multiply(h40, s_a, h40)
+            h50 = np.multiply(kt, pmra, ws.vec("h50", m))
+            np.multiply(h50, s_a, h50)
+        H = [
+            {2: a}, {0: pa}, {1: pd},
+            {0: h30, 1: h31, 5: sig["rv"]},
+            {0: h40, 2: mul("h42", kma, a), 3: mul("h43", kd, sig["pmra"])},
+            {0: h50, 1: mul("h51", rv, s_d), 2: mul("h52", kmd, a), 4: mul("h54", kd, sig["pmdec"])},
+        ]
+        H = [{k: h for k, h in row.items() if h is not None} for row in H]
+        P, Z = self._local_covariance(H, rho, ws, m, tmp)
 
-    # Cylindrical. With (c, s) = (x, y)/R, the rotated offsets p = (dR, R dphi) = (c dx + s dy,
-    # s dx - c dy) and w = (c dvx + s dvy, s dvx - c dvy) give dv_R = w0 + (v_phi/R) p1 and
-    # dv_phi = w1 - (v_R/R) p1.
-    x, y, v_R, v_phi, R = (nominal[k] for k in ("x", "y", "v_R", "v_phi", "R"))
-    with np.errstate(invalid="ignore", divide="ignore"):
-        inv_R = 1.0 / R
-    cyl = _PlaneRotation(x * inv_R, y * inv_R, 0, 1)
-    c, s = cyl.c, cyl.s
-    var_p0 = cyl.c2 * rr[0] + cyl.two_cs * rr[1] + cyl.s2 * rr[3]
-    var_p1 = cyl.s2 * rr[0] - cyl.two_cs * rr[1] + cyl.c2 * rr[3]
-    var_w0 = cyl.c2 * vv[0] + cyl.two_cs * vv[1] + cyl.s2 * vv[3]
-    var_w1 = cyl.s2 * vv[0] - cyl.two_cs * vv[1] + cyl.c2 * vv[3]
-    # rv_ rows: (x,vx) (x,vy) (x,vz) (y,vx) (y,vy) ...
-    cov_p1_w0 = cyl.cs * (rv_[0] - rv_[4]) + cyl.s2 * rv_[1] - cyl.c2 * rv_[3]
-    cov_p1_w1 = cyl.s2 * rv_[0] - cyl.cs * (rv_[1] + rv_[3]) + cyl.c2 * rv_[4]
-    f_R, f_phi = v_phi * inv_R, v_R * inv_R
-    var["R"] = var_p0
-    var["phi"] = var_p1 * (inv_R * inv_R)
-    var["v_R"] = var_w0 + f_R * (2.0 * cov_p1_w0 + f_R * var_p1)
-    var["v_phi"] = var_w1 - f_phi * (2.0 * cov_p1_w1 - f_phi * var_p1)
+        # Local basis -> ICRS (in place), then constant maps to the Galactocentric and Galactic axes.
+        for lo in range(0, m, _ROTATION_CHUNK):  # in chunks that stay in the cache for both turns
+            c = slice(lo, min(lo + _ROTATION_CHUNK, m))
+            k = c.stop - c.start
+            Pc, Zc = P[:, :, c], Z[:, c]
+            _rotate_in_place(Pc, Zc, _rotation(cd[c], sd[c], ws, "rot_dec", k), 0, 2, ws, k)
+            _rotate_in_place(Pc, Zc, _rotation(ca[c], sa[c], ws, "rot_ra", k), 0, 1, ws, k)
+        maps, rows = self.maps
+        rr = _matmul(maps["sym"], P[0], ws.mat("rr", maps["sym"].shape[0], m))
+        vv = _matmul(maps["sym"], P[1], ws.mat("vv", maps["sym"].shape[0], m))
+        yy = _matmul(maps["cross_sym"], P[2], ws.mat("yy", maps["cross_sym"].shape[0], m))
+        zz = _matmul(maps["cross_anti"], Z, ws.mat("zz", maps["cross_anti"].shape[0], m))
+        sym, ysym, zanti = rows["sym"], rows["cross_sym"], rows["cross_anti"]
 
-    # Galactic longitude and latitude depend on (ra*, dec) alone. With the Galactic pole n (ICRS), the
-    # Galactic north at the star is (n - (n.r_hat) r_hat) / cos b, so its components along e_ra and
-    # e_dec are p / cos b and q / cos b; east is the perpendicular direction.
-    n_gp = ICRS_TO_GALACTIC[2]
-    p = -n_gp[0] * sa + n_gp[1] * ca
-    q = -sd * (n_gp[0] * ca + n_gp[1] * sa) + n_gp[2] * cd
-    sin_b = n_gp[0] * cd * ca + n_gp[1] * cd * sa + n_gp[2] * sd
-    with np.errstate(invalid="ignore", divide="ignore"):
-        inv_cb2 = 1.0 / (1.0 - sin_b * sin_b)
-    r_ad = rho.get((0, 1), 0.0)
-    for name, (ja, jd), scale in (("l", (q, -p), inv_cb2 * inv_cb2), ("b", (p, q), inv_cb2)):
-        ja, jd = _times(ja, s_a), _times(jd, s_d)
-        var[name] = _sum_terms([ja * ja, jd * jd, 2.0 * r_ad * ja * jd]) * scale
+        with np.errstate(invalid="ignore"):
+            for i, axis in enumerate("xyz"):
+                np.sqrt(rr[sym[axis + axis]], out[_CARTESIAN[i]])
+                np.sqrt(vv[sym[axis + axis]], out[_CARTESIAN[i + 3]])
+                helio = axis.upper() * 2
+                np.sqrt(rr[sym[helio]], out[_HELIO[i]])
+                np.sqrt(vv[sym[helio]], out[_HELIO[i + 3]])
+            self._cylindrical([rr[sym[k]] for k in ("xx", "xy", "yy")], [vv[sym[k]] for k in ("xx", "xy", "yy")],
+                              [yy[ysym[k]] for k in ("xx", "xy", "yy")], zz[zanti["xy"]], sl, bv["inv_R"], ws, m,
+                              tmp, out)
+            self._galactic(sa, ca, sd, cd, bv["cos2_b"], s_a, s_d, rho.get((0, 1)), ws, m, tmp, out)
+        if a is None:
+            out["distance"][...] = 0.0
+        else:
+            np.abs(a, out["distance"])
+        if self.covs is not None:  # the maps then give every entry, Galactocentric first
+            for key, f in (("cov_galactocentric", 0), ("cov_heliocentric", 1)):
+                _fill_covariance(self.covs[key][sl], rr[6 * f:6 * f + 6], vv[6 * f:6 * f + 6],
+                                 yy[6 * f:6 * f + 6], zz[3 * f:3 * f + 3])
 
-    with np.errstate(invalid="ignore"):
-        for name, v in var.items():
-            np.sqrt(v, out=sigma_out[name])
-    for name in _ANGLES:
-        sigma_out[name] *= _DEG
-    np.abs(a_sp, out=sigma_out["distance"])
-    if cov_out is not None:
-        for target, rows in ((cov_out["cov_galactocentric"], slice(0, 6)), (cov_out["cov_heliocentric"], slice(6, 12))):
-            _fill_covariance(target, rr[rows], rv_[(slice(0, 9) if rows.start == 0 else slice(9, 18))], vv[rows])
+    @staticmethod
+    def _local_covariance(H, rho, ws, m, tmp):
+        """Covariance H rho H^T in the local basis, as P (3, 6, m) and Z (3, m).
+
+        P holds the position block, the velocity block and Y = X + X^T (X the position-velocity block
+        Cov(position_i, velocity_j)), each symmetric, in _SYM order; Z = X - X^T (entries 01, 02, 12).
+        With W_j = rho H_j^T (only the entries needed), H_i rho H_j^T = sum over the parameters l of
+        row i of H_il W_jl; rows 0-2 (position) have one parameter each.
+        """
+        P = ws.arr("S_sym", (3, 6), m)
+        Z = ws.mat("S_anti", 3, m)
+        memo = {}
+
+        def r(k, l):
+            return rho.get((min(k, l), max(k, l)))
+
+        def W(j, l):
+            if (j, l) not in memo:
+                terms = [h if k == l else (r(k, l), h) for k, h in H[j].items()]
+                memo[j, l] = _combine(ws.vec(f"W{j}{l}", m), tmp, terms, alias=True)
+            return memo[j, l]
+
+        def entry(i, j, target):
+            if j < 3:  # position-position
+                if not H[i] or not H[j]:
+                    return None
+                (k, hi), = H[i].items()
+                (l, hj), = H[j].items()
+                if i == j:
+                    return np.multiply(hi, hi, target)
+                c = r(k, l)
+                return None if c is None else np.multiply(np.multiply(hi, hj, target), c, target)
+            return _combine(target, tmp, [(h, W(j, l)) for l, h in H[i].items()])
+
+        for block, i0 in ((0, 0), (1, 3)):
+            for p, (a, b) in enumerate(_SYM):
+                if entry(i0 + a, i0 + b, P[block, p]) is None:
+                    P[block, p] = 0.0
+        # Position-velocity block X_ab = Cov(position a, velocity b): Y = X + X^T, Z = X - X^T.
+        x_ab, x_ba = ws.vec("x_ab", m), ws.vec("x_ba", m)
+        for p, (a, b) in enumerate(_SYM):
+            y = P[2, p]
+            if a == b:
+                if entry(a, 3 + a, y) is None:
+                    y[...] = 0.0
+                else:
+                    np.add(y, y, y)
+                continue
+            ab = entry(a, 3 + b, x_ab)
+            ba = entry(b, 3 + a, x_ba)
+            z = Z[{(0, 1): 0, (0, 2): 1, (1, 2): 2}[a, b]]
+            if ab is not None and ba is not None:
+                np.add(ab, ba, y)
+                np.subtract(ab, ba, z)
+            elif ab is not None:
+                np.copyto(y, ab)
+                np.copyto(z, ab)
+            elif ba is not None:
+                np.copyto(y, ba)
+                np.negative(ba, z)
+            else:
+                y.fill(0.0)
+                z.fill(0.0)
+        return P, Z
+
+    def _cylindrical(self, rr, vv, yy, zxy, sl, inv_R, ws, m, tmp, out):
+        """sigma of R, phi, v_R, v_phi from the Galactocentric covariance entries.
+
+        With (c, s) = (x, y)/R, the rotated offsets p = (dR, R dphi) = (c dx + s dy, s dx - c dy) and
+        w = (c dvx + s dvy, s dvx - c dvy) give dv_R = w0 + (v_phi/R) p1 and dv_phi = w1 - (v_R/R) p1.
+        rr, vv and yy (= X + X^T of the position-velocity block X): the xx, xy, yy entries; zxy the
+        xy entry of X - X^T. Then 2 cov(p1, w0) = c s (Yxx - Yyy) - (c^2 - s^2) Yxy + Zxy and
+        2 cov(p1, w1) = s^2 Yxx - 2 c s Yxy + c^2 Yyy.
+        """
+        cols = self.columns
+        c = np.multiply(cols["x"][sl], inv_R, ws.vec("cyl_c", m))
+        s = np.multiply(cols["y"][sl], inv_R, ws.vec("cyl_s", m))
+        c2, s2, cs, two_cs, cos2 = (ws.vec(k, m) for k in ("cyl_c2", "cyl_s2", "cyl_cs", "cyl_2cs", "cyl_cos2"))
+        np.multiply(c, c, c2)
+        np.multiply(s, s, s2)
+        np.multiply(c, s, cs)
+        np.add(cs, cs, two_cs)
+        np.subtract(c2, s2, cos2)
+        var_p1, var_w0, var_w1 = (ws.vec(k, m) for k in ("var_p1", "var_w0", "var_w1"))
+        cov0, cov1 = ws.vec("cov_p1_w0", m), ws.vec("cov_p1_w1", m)
+        half = ws.vec("cyl_half", m)
+        # Along and across the radius: T +- (cos 2phi D + sin 2phi xy) with T, D the half sum and difference.
+        for (xx, xy, yy_), along, across in ((rr, out["R"], var_p1), (vv, var_w0, var_w1)):
+            np.add(xx, yy_, half)
+            np.multiply(half, 0.5, half)
+            np.subtract(xx, yy_, tmp)
+            np.multiply(tmp, 0.5, tmp)
+            np.multiply(tmp, cos2, tmp)
+            np.multiply(xy, two_cs, across)
+            np.add(tmp, across, tmp)
+            np.add(half, tmp, along)
+            np.subtract(half, tmp, across)
+        np.sqrt(out["R"], out["R"])
+        yxx, yxy, yyy = yy
+        np.subtract(yxx, yyy, cov0)
+        np.multiply(cov0, cs, cov0)
+        np.multiply(yxy, cos2, tmp)
+        np.subtract(cov0, tmp, cov0)
+        np.add(cov0, zxy, cov0)  # 2 cov(p1, w0)
+        _combine(cov1, tmp, [(s2, yxx), (two_cs, yxy, -1), (c2, yyy)])  # 2 cov(p1, w1)
+        # var(v_R) = var_w0 + f (2 cov(p1, w0) + f var_p1) with f = v_phi / R; var(v_phi) likewise with -v_R / R.
+        for name, f_of, cov, sign, base in (("v_R", "v_phi", cov0, 1.0, var_w0), ("v_phi", "v_R", cov1, -1.0, var_w1)):
+            f = np.multiply(cols[f_of][sl], inv_R, ws.vec("cyl_f", m))
+            if sign < 0:
+                np.negative(f, f)
+            np.multiply(f, var_p1, tmp)
+            np.add(tmp, cov, tmp)
+            np.multiply(tmp, f, tmp)
+            np.add(tmp, base, out[name])
+            np.sqrt(out[name], out[name])
+        np.sqrt(var_p1, out["phi"])
+        np.multiply(out["phi"], inv_R, out["phi"])
+        out["phi"] *= _DEG
+
+    @staticmethod
+    def _galactic(sa, ca, sd, cd, cos2_b, s_a, s_d, r_ad, ws, m, tmp, out):
+        """sigma of l and b, which depend on (ra*, dec) alone.
+
+        With the Galactic pole n (ICRS), the Galactic north at the star is (n - (n.r_hat) r_hat) / cos b,
+        so its components along e_ra and e_dec are p / cos b and q / cos b; east is the
+        perpendicular direction. sigma_l is in degrees of longitude (sigma of l cos b over cos b).
+        """
+        n_gp = ICRS_TO_GALACTIC[2]
+        p = _combine(ws.vec("gal_p", m), tmp, [(sa, -n_gp[0]), (ca, n_gp[1])])
+        q = _combine(ws.vec("gal_q", m), tmp, [(ca, n_gp[0]), (sa, n_gp[1])])
+        np.multiply(q, sd, q)
+        np.multiply(cd, n_gp[2], tmp)
+        np.subtract(tmp, q, q)  # q = n_z cos(dec) - sin(dec) (n_x cos(ra) + n_y sin(ra))
+        with np.errstate(divide="ignore"):
+            inv_cb2 = np.divide(1.0, cos2_b, ws.vec("inv_cb2", m))
+        ja, jd = ws.vec("gal_ja", m), ws.vec("gal_jd", m)
+        for name, (u_a, u_d) in (("l", (q, p)), ("b", (p, q))):
+            # l: the east direction (q, -p), variance over cos^4 b; b: the north direction (p, q), over cos^2 b.
+            ja_ = None if s_a is None else np.multiply(u_a, s_a, ja)
+            jd_ = None if s_d is None else np.multiply(u_d, s_d, jd)
+            if jd_ is not None and name == "l":
+                np.negative(jd_, jd_)
+            cross = None
+            if ja_ is not None and jd_ is not None and r_ad is not None:
+                cross = ws.vec("gal_x", m)
+                np.multiply(ja_, jd_, cross)
+                np.multiply(cross, r_ad, cross)
+                np.add(cross, cross, cross)
+            total = _combine(out[name], tmp, [(ja_, ja_), (jd_, jd_), cross])
+            if total is None:
+                out[name][...] = 0.0
+                continue
+            np.multiply(total, inv_cb2, total)
+            if name == "l":
+                np.multiply(total, inv_cb2, total)
+            np.sqrt(total, total)
+            total *= _DEG
 
 
-def _fill_covariance(cov, rr, rv, vv):
-    """(n, 6, 6) covariance from the unique entries of the position, cross and velocity blocks.
+def _fill_covariance(cov, rr, vv, yy, zz):
+    """(m, 6, 6) covariance block from the unique entries of its parts.
 
-    The 36 entries are stacked along the last axis in one pass (row by row of the 6x6 matrix).
+    rr, vv: position and velocity blocks; yy = X + X^T and zz = X - X^T (entries 01, 02, 12) of the
+    position-velocity block X; all (6, m) in _SYM order, zz (3, m).
     """
     sym = {key: p for p, key in enumerate(_SYM)}
-    entries = []
-    for i in range(6):
-        for j in range(6):
-            if i < 3 and j < 3:
-                entries.append(rr[sym[min(i, j), max(i, j)]])
-            elif i >= 3 and j >= 3:
-                entries.append(vv[sym[min(i, j) - 3, max(i, j) - 3]])
-            elif i < 3:
-                entries.append(rv[3 * i + (j - 3)])
-            else:
-                entries.append(rv[3 * j + (i - 3)])
-    # (measured: stacking into a new array and copying beats np.stack(..., out=cov) several times)
-    cov[...] = np.stack(entries, axis=1).reshape(-1, 6, 6)
+    anti = {(0, 1): 0, (0, 2): 1, (1, 2): 2}
+    flat = cov.reshape(cov.shape[0], 36)
+    for i in range(3):
+        for j in range(3):
+            e = sym[min(i, j), max(i, j)]
+            flat[:, 6 * i + j] = rr[e]
+            flat[:, 6 * (i + 3) + j + 3] = vv[e]
+            x = 0.5 * yy[e]  # X_ij = (Y_ij + Z_ij) / 2
+            if i != j:
+                z = 0.5 * zz[anti[min(i, j), max(i, j)]]
+                x = x + z if i < j else x - z
+            flat[:, 6 * i + j + 3] = x
+            flat[:, 6 * (j + 3) + i] = x
 
 
-def _error_inputs(table, res, d):
-    """Standard deviations, correlations and d(distance)/d(parameter) for the propagation.
+def _error_columns(table, res):
+    """Standard deviations {parameter: array or None} and correlations {(k, l): array} of a table.
 
-    A missing uncertainty column gives the float 0.0 (so its terms are skipped), a missing correlation
-    column no entry.
+    A missing uncertainty column gives None (its terms are skipped), a missing correlation column no
+    entry; ra_error and dec_error stay in mas. The radial velocity is uncorrelated with the astrometry.
     """
-    def err(name, unit, scale=None):
-        if name not in table.colnames:
-            return 0.0
-        values = _column_values(table, name, unit)
-        return values if scale is None else values * scale
+    def err(name, unit):
+        return _column_values(table, name, unit) if name in table.colnames else None
 
     p_err = res.parameter_error
     if p_err is not None and not np.any(p_err):
-        p_err = 0.0
-    sig = [err("ra_error", u.mas, _MAS_TO_RAD), err("dec_error", u.mas, _MAS_TO_RAD),
-           0.0 if p_err is None else p_err,
-           err("pmra_error", MASYR), err("pmdec_error", MASYR), err("radial_velocity_error", KMS)]
+        p_err = None
+    sig = {"ra": err("ra_error", u.mas), "dec": err("dec_error", u.mas), "p": p_err,
+           "pmra": err("pmra_error", MASYR), "pmdec": err("pmdec_error", MASYR),
+           "rv": err("radial_velocity_error", KMS)}
     rho = {}
     for key, name in _CORRELATIONS.items():
         if res.parameter != "parallax" and 2 in key:
             continue  # a distance column is independent of the astrometric solution
         if name in table.colnames:
             rho[key] = _column_values(table, name, u.dimensionless_unscaled)
+    return sig, rho
+
+
+def _error_inputs(table, res, d):
+    """Standard deviations (list, ra* and dec in rad; the float 0.0 for a missing column),
+    correlations and d(distance)/d(parameter), for the Monte Carlo draws."""
+    sig, rho = _error_columns(table, res)
+    scale = {"ra": _MAS_TO_RAD, "dec": _MAS_TO_RAD}
+    sig = [0.0 if sig[k] is None else (sig[k] * scale[k] if k in scale else sig[k])
+           for k in ("ra", "dec", "p", "pmra", "pmdec", "rv")]
     dd_dp = -d * d if res.parameter == "parallax" else np.ones_like(d)
     return sig, rho, dd_dp
 
@@ -773,10 +1148,14 @@ def _montecarlo(table, res, d, has_position, inp, n_samples, seed, levels, geo):
 
 # ====================================================================== table level
 def _standard_table(stars):
-    """The input as a checked table with standard column names (through mwkin.catalog)."""
-    from .catalog import read_catalog  # imported here: catalog is a sibling with its own job
+    """The input as a checked table with standard column names (through mwkin.catalog).
 
-    return read_catalog(stars)
+    The standard columns may share the input's memory: nothing here writes to them, and the result
+    table holds only arrays of our own.
+    """
+    from .catalog import _read_catalog  # imported here: catalog is a sibling with its own job
+
+    return _read_catalog(stars, copy=False)
 
 
 def _flags(reason_arrays, n):
@@ -916,11 +1295,25 @@ def to_galactocentric(stars, frame=None, *, errors="none", distance=None, n_samp
     pmdec = _column_values(table, "pmdec", MASYR)
     rv = _column_values(table, "radial_velocity", KMS)
 
-    no_sky = np.isnan(ra) | np.isnan(dec)
+    nan_counts = table.meta["nan_counts"]  # made by the catalogue reader in this very call
+
+    def missing(**columns):
+        """Rows where any of the columns is NaN (no pass over the data when the reader counted none)."""
+        arrays = [values for name, values in columns.items() if nan_counts.get(name, 1)]
+        if not arrays:
+            return np.zeros(n, dtype=bool)
+        mask = np.isnan(arrays[0])
+        for values in arrays[1:]:
+            mask |= np.isnan(values)
+        return mask
+
+    no_sky = missing(ra=ra, dec=dec)
     reasons = {_SKY_REASON: no_sky}
-    reasons.update({name: res.reason_code == i for i, name in enumerate(res.reason_names, start=1)})
-    reasons["no_proper_motion"] = np.isnan(pmra) | np.isnan(pmdec)
-    reasons["no_radial_velocity"] = np.isnan(rv)
+    counts = getattr(res, "counts", {})
+    reasons.update({name: (res.reason_code == i) if counts.get(name, 1) else np.zeros(n, dtype=bool)
+                    for i, name in enumerate(res.reason_names, start=1)})
+    reasons["no_proper_motion"] = missing(pmra=pmra, pmdec=pmdec)
+    reasons["no_radial_velocity"] = missing(radial_velocity=rv)
     has_position = res.usable & ~no_sky
     has_velocity = has_position & ~reasons["no_proper_motion"] & ~reasons["no_radial_velocity"]
     d = res.distance_kpc  # NaN where the distance is unusable
@@ -929,34 +1322,23 @@ def to_galactocentric(stars, frame=None, *, errors="none", distance=None, n_samp
 
     geo = _Geometry.of(frame)
     (pos, vel), columns = _allocate(n)
+    inputs = dict(ra=ra, dec=dec, d=d, pmra=pmra, pmdec=pmdec, rv=rv)
     linear = errors == "linear"
-    block = _BLOCK  # measured best for both paths (larger blocks fall out of the cache)
-    work = _workspace(n, block)
+    montecarlo = errors == "montecarlo"
+    then = trig = None
     if linear:
-        sig_all, rho_all, dd_dp_all = _error_inputs(table, res, d)
-        maps = geo.covariance_maps(full_helio=return_covariance)
-        sigmas = {name: np.empty(n) for name in OUTPUT_COLUMNS if name != "v_z"}
+        sig, rho = _error_columns(table, res)
+        maps = geo.covariance_maps(full=return_covariance)
+        names = [name for name in OUTPUT_COLUMNS if name != "v_z"]
+        sigmas = dict(zip(names, np.empty((len(names), n))))  # rows of one array, see _allocate
         covs = ({k: np.empty((n, 6, 6)) for k in ("cov_galactocentric", "cov_heliocentric")}
                 if return_covariance else None)
-    montecarlo = errors == "montecarlo"
+        then = _Linear(sig, rho, res.parameter == "parallax", maps, inputs, columns, sigmas, covs)
     if montecarlo:
         trig = {k: np.empty(n) for k in ("sa", "ca", "sd", "cd")}
-    for start in range(0, n, block):
-        sl = slice(start, start + block)
-        sa, ca = _sin_cos_deg(ra[sl])
-        sd, cd = _sin_cos_deg(dec[sl])
-        scalars = {k: columns[k][sl] for k in _SCALARS}
-        _forward_block(sa, ca, sd, cd, d[sl], pmra[sl], pmdec[sl], rv[sl], geo, pos[:, sl], vel[:, sl], scalars,
-                       work)
-        if linear:
-            nominal = {k: columns[k][sl] for k in ("x", "y", "R", "v_R", "v_phi")}
-            _linear_block(sa, ca, sd, cd, d[sl], dd_dp_all[sl], pmra[sl], pmdec[sl], rv[sl],
-                          [_take(s, sl) for s in sig_all], {k: v[sl] for k, v in rho_all.items()},
-                          nominal, maps, {k: v[sl] for k, v in sigmas.items()},
-                          None if covs is None else {k: v[sl] for k, v in covs.items()})
-        elif montecarlo:
-            for k, v in zip(("sa", "ca", "sd", "cd"), (sa, ca, sd, cd)):
-                trig[k][sl] = v
+    # The Monte Carlo percentiles are taken in radians; otherwise the angles come out in degrees.
+    run_blocks(n, _BLOCK, _Forward(inputs, geo, pos, vel, columns, degrees=not montecarlo, trig=trig, then=then),
+               _scratch_for(n))
     columns["v_z"] = columns["vz"]
     columns["distance"] = d
     extra = {}
@@ -965,11 +1347,11 @@ def to_galactocentric(stars, frame=None, *, errors="none", distance=None, n_samp
                    nominal_l=columns["l"].copy())
         levels = tuple(float(q) for q in np.ravel(percentiles))
         mc_columns, mc_meta = _montecarlo(table, res, d, has_position, inp, n_samples, seed, levels, geo)
-    for name in _ANGLES:
-        columns[name] *= _DEG
-    # l and b need only the direction; stars without ra/dec have none.
-    columns["l"][no_sky] = np.nan
-    columns["b"][no_sky] = np.nan
+        for name in _ANGLES:
+            columns[name] *= _DEG
+    if no_sky.any():  # l and b need only the direction; stars without ra/dec have none.
+        columns["l"][no_sky] = np.nan
+        columns["b"][no_sky] = np.nan
 
     meta = {
         "frame": frame.to_dict(),
