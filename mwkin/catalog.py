@@ -43,7 +43,6 @@ from __future__ import annotations
 
 import math
 import os
-from collections.abc import Mapping
 
 import numpy as np
 import astropy.units as u

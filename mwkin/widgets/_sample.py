@@ -381,8 +381,23 @@ def apply_sample_config(widget, config):
 class SampleInput:
     """Mixin for widgets that take a star sample: the ``sample`` property and its source.
 
-    The widget implements ``_set_sample(stars, source)``.
+    The widget implements ``_set_sample(stars, source)`` and sets ``_quiet`` while several of its
+    controls change at once, so that loading a config recomputes once, at the end.
     """
+
+    def refresh(self):
+        if self._quiet:
+            return
+        super().refresh()
+
+    def load_config(self, config):
+        """Apply a dict produced by :attr:`config`; recomputes once at the end."""
+        self._quiet = True
+        try:
+            super().load_config(config)
+        finally:
+            self._quiet = False
+        self.refresh()
 
     @property
     def sample(self):

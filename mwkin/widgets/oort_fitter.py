@@ -333,20 +333,6 @@ class OortFitter(SampleInput, AnalysisWidget):
         self.status_line.show_error(error_text(exc) + kept)
 
     # ------------------------------------------------------------------ AnalysisWidget hooks
-    def refresh(self):
-        if self._quiet:
-            return
-        super().refresh()
-
-    def load_config(self, config):
-        """Apply a dict produced by :attr:`config`; recomputes once at the end."""
-        self._quiet = True
-        try:
-            super().load_config(config)
-        finally:
-            self._quiet = False
-        self.refresh()
-
     def wait(self, timeout=60.0, include_bins=True):
         """Block until the fit (and, with ``include_bins``, the distance-bin fits) is done; returns self."""
         super().wait(timeout)

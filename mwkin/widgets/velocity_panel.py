@@ -221,20 +221,6 @@ class VelocityPanel(SampleInput, AnalysisWidget):
                                       f"panel.selection)</small>" if self.n_selected else "")
 
     # ------------------------------------------------------------------ AnalysisWidget hooks
-    def refresh(self):
-        if self._quiet:
-            return
-        super().refresh()
-
-    def load_config(self, config):
-        """Apply a dict produced by :attr:`config`; recomputes once at the end."""
-        self._quiet = True
-        try:
-            super().load_config(config)
-        finally:
-            self._quiet = False
-        self.refresh()
-
     def _request(self):
         if self._stars is None:
             raise ValueError("no sample: pass sample=... (a table, DataFrame or path) or load a file"
