@@ -120,7 +120,7 @@ def is_local_url(url: str) -> bool:
     return parts.scheme in {"http", "https", "ws", "wss"} and parts.hostname in LOCAL_HOSTS
 
 
-def _free_port() -> int:
+def free_port() -> int:
     with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as sock:
         sock.bind(("127.0.0.1", 0))
         return sock.getsockname()[1]
@@ -173,7 +173,7 @@ def start_lab() -> Lab:
     _write_user_settings(settings_dir)
     _write_kernelspec(home / "data")
 
-    port = _free_port()
+    port = free_port()
     token = secrets.token_hex(16)
     env = dict(os.environ)
     env.update(
@@ -384,3 +384,40 @@ def screenshot(locator_or_page, name: str) -> pathlib.Path:
     path = OUTPUT_DIR / (name if name.endswith(".png") else name + ".png")
     locator_or_page.screenshot(path=str(path))
     return path
+
+
+def execute_in_kernel(page, code, timeout_ms=60_000):
+    """Run ``code`` in the current notebook's kernel (not in a cell); returns its printed text."""
+    result = page.evaluate(
+        """async ([code, timeout]) => {
+          const nb = window.jupyterapp.shell.currentWidget;
+          const kernel = nb.sessionContext.session.kernel;
+          const future = kernel.requestExecute({ code, store_history: false });
+          let text = '';
+          future.onIOPub = (msg) => {
+            const t = msg.header.msg_type;
+            if (t === 'stream') text += msg.content.text;
+            if (t === 'error') text += msg.content.ename + ': ' + msg.content.evalue;
+          };
+          const timer = new Promise((_, reject) => setTimeout(() => reject(new Error('timeout')), timeout));
+          const reply = await Promise.race([future.done, timer]);
+          return { status: reply.content.status, text };
+        }""",
+        [code, timeout_ms],
+    )
+    assert result["status"] == "ok", result["text"]
+    return result["text"]
+
+
+def wait_for_kernel_value(page, expr, predicate, timeout_s=30.0):
+    """Poll ``json.dumps(expr)`` in the kernel until ``predicate`` holds; returns the value.
+
+    ipywidgets sends a model's updates one at a time (the next waits for the kernel to finish the
+    previous), so a value set in the browser can reach the kernel after a later execute request.
+    """
+    deadline = time.monotonic() + timeout_s
+    while True:
+        value = json.loads(execute_in_kernel(page, f"import json as _j; print(_j.dumps({expr}))"))
+        if predicate(value) or time.monotonic() > deadline:
+            return value
+        time.sleep(0.1)

@@ -20,7 +20,6 @@ import statistics
 
 import labtools
 import pytest
-from test_views_browser import execute_in_kernel, wait_for_kernel_value
 
 pytestmark = pytest.mark.browser
 
@@ -77,7 +76,7 @@ _RECORDER_JS = """(el) => {
 
 
 def kernel_state(page, predicate=lambda s: True, timeout_s=60.0):
-    state = wait_for_kernel_value(page, STATE_EXPR, predicate, timeout_s=timeout_s)
+    state = labtools.wait_for_kernel_value(page, STATE_EXPR, predicate, timeout_s=timeout_s)
     assert predicate(state), f"kernel state never satisfied the test's condition: {state}"
     return state
 
@@ -206,7 +205,7 @@ def test_dragging_the_velocity_arrow_changes_the_orbit(lab, page):
     assert back["rapo"] == pytest.approx(first["rapo"], rel=1e-12)
     assert back["original"] is None
     wait_track_end(page, first["end"])
-    assert int(execute_in_kernel(page, "print(ex.galaxy_view.draw_count)")) > count_before
+    assert int(labtools.execute_in_kernel(page, "print(ex.galaxy_view.draw_count)")) > count_before
     assert not errors, errors
 
 
@@ -307,7 +306,7 @@ def test_saved_widget_state_draws_the_views_once_trusted_with_a_fresh_kernel(lab
     assert "r_apo" in page.locator(".t-saved-orbit .mwkin-orbit-parameters").inner_text()
     # Nothing ran in the kernel JupyterLab started: what is drawn came from the notebook's metadata.
     labtools.wait_idle(page)
-    assert execute_in_kernel(page, "print('ex' in globals(), 'mwkin' in __import__('sys').modules)").split() \
+    assert labtools.execute_in_kernel(page, "print('ex' in globals(), 'mwkin' in __import__('sys').modules)").split() \
         == ["False", "False"]
     labtools.screenshot(page.locator(".t-saved-orbit"), "saved_state_restored")
 

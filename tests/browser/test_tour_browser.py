@@ -156,27 +156,6 @@ _ARM_JS = "() => {" + _FIND_JS + """
 _MOVE_DONE_JS = "() => !!(window.__tourMove && window.__tourMove.done)"
 
 
-def execute_in_kernel(page, code, timeout_ms=60_000):
-    """Run ``code`` in the notebook's kernel (not in a cell) and return what it printed."""
-    result = page.evaluate(
-        """async ([code, timeout]) => {
-          const kernel = window.jupyterapp.shell.currentWidget.sessionContext.session.kernel;
-          const future = kernel.requestExecute({ code, store_history: false });
-          let text = '';
-          future.onIOPub = (msg) => {
-            if (msg.header.msg_type === 'stream') text += msg.content.text;
-            if (msg.header.msg_type === 'error') text += msg.content.ename + ': ' + msg.content.evalue;
-          };
-          const timer = new Promise((_, reject) => setTimeout(() => reject(new Error('timeout')), timeout));
-          const reply = await Promise.race([future.done, timer]);
-          return { status: reply.content.status, text };
-        }""",
-        [code, timeout_ms],
-    )
-    assert result["status"] == "ok", result["text"]
-    return result["text"]
-
-
 def r0_shown(page):
     """R0 as the frame controls' text box shows it, kpc."""
     return float(page.locator(".tour-frame .mwkin-R0 input").input_value())
@@ -267,7 +246,7 @@ def test_tour_runs_and_the_r0_slider_redraws_its_plots(lab, page):
             "(want) => Math.abs(Number(document.querySelector('.tour-frame .mwkin-R0 input').value) - want) < 1e-9",
             arg=r0_start + (i + 1) * R0_STEP_KPC)
     r0_after_moves = r0_start + N_MOVES * R0_STEP_KPC
-    kernel_r0 = float(execute_in_kernel(page, "print(repr(frame_state.R0))"))
+    kernel_r0 = float(labtools.execute_in_kernel(page, "print(repr(frame_state.R0))"))
     assert kernel_r0 == pytest.approx(r0_after_moves, abs=1e-9)
 
     record = summarise(moves, first_render_s)
@@ -291,7 +270,7 @@ def test_tour_runs_and_the_r0_slider_redraws_its_plots(lab, page):
     print(f"R0 typed ({R0_TYPED_KPC} kpc), Enter -> " + ", ".join(
         f"{key} {value:.0f} ms" for key, value in typed["ms"].items()))
     screenshots(page, "after")
-    seen = json.loads(execute_in_kernel(page, (
+    seen = json.loads(labtools.execute_in_kernel(page, (
         "import json\n"
         "print(json.dumps({'state': frame_state.R0, 'orbit': orbit.view.frame.R0,\n"
         "                  'velocities': velocities.result.meta['frame']['R0_kpc'],\n"
@@ -325,7 +304,7 @@ def test_showing_the_tour_leaves_the_shared_state_as_the_notebook_set_it(lab, pa
     from mwkin.widgets import FrameState, PotentialState
 
     open_tour(lab, page)
-    got = json.loads(execute_in_kernel(page, (
+    got = json.loads(labtools.execute_in_kernel(page, (
         "import json\n"
         "print(json.dumps({'frame': frame_state.config, 'potential': potential_state.config,\n"
         "                  'oort_distance_range': oort.config['distance_range']}))")))

@@ -67,43 +67,6 @@ SCATTER_CELLS = [
 ]
 
 
-def execute_in_kernel(page, code, timeout_ms=60_000):
-    """Run ``code`` in the current notebook's kernel (not in a cell); returns its printed text."""
-    result = page.evaluate(
-        """async ([code, timeout]) => {
-          const nb = window.jupyterapp.shell.currentWidget;
-          const kernel = nb.sessionContext.session.kernel;
-          const future = kernel.requestExecute({ code, store_history: false });
-          let text = '';
-          future.onIOPub = (msg) => {
-            const t = msg.header.msg_type;
-            if (t === 'stream') text += msg.content.text;
-            if (t === 'error') text += msg.content.ename + ': ' + msg.content.evalue;
-          };
-          const timer = new Promise((_, reject) => setTimeout(() => reject(new Error('timeout')), timeout));
-          const reply = await Promise.race([future.done, timer]);
-          return { status: reply.content.status, text };
-        }""",
-        [code, timeout_ms],
-    )
-    assert result["status"] == "ok", result["text"]
-    return result["text"]
-
-
-def wait_for_kernel_value(page, expr, predicate, timeout_s=30.0):
-    """Poll ``json.dumps(expr)`` in the kernel until ``predicate`` holds; returns the value.
-
-    ipywidgets sends a model's updates one at a time (the next waits for the kernel to finish the
-    previous), so a value set in the browser can reach the kernel after a later execute request.
-    """
-    deadline = time.monotonic() + timeout_s
-    while True:
-        value = json.loads(execute_in_kernel(page, f"import json as _j; print(_j.dumps({expr}))"))
-        if predicate(value) or time.monotonic() > deadline:
-            return value
-        time.sleep(0.1)
-
-
 def wait_for_file(path, timeout_s=60.0, predicate=lambda data: True):
     """Wait until ``path`` holds JSON satisfying ``predicate``; returns the JSON."""
     deadline = time.monotonic() + timeout_s
@@ -156,7 +119,7 @@ def test_scatter_renders_brush_selects_the_right_stars_hover_and_pan(lab, page):
     labtools.screenshot(page.locator(".t-dense"), "views_scatter_density")
 
     # the draw counter reached Python: JS -> kernel
-    assert int(execute_in_kernel(page, "print(w.draw_count)")) >= 1
+    assert int(labtools.execute_in_kernel(page, "print(w.draw_count)")) >= 1
 
     rect = json.loads(dataset(view, "plotRect"))
     domain = json.loads(dataset(view, "domain"))
@@ -217,17 +180,17 @@ def test_scatter_renders_brush_selects_the_right_stars_hover_and_pan(lab, page):
     page.mouse.move(hx + 100, hy, steps=5)
     page.mouse.up()
     wait_draw_count_above(page, ".t-scatter", before)
-    shifted = wait_for_kernel_value(page, "w.view_range", lambda v: v[0] != -120)
+    shifted = labtools.wait_for_kernel_value(page, "w.view_range", lambda v: v[0] != -120)
     assert shifted[0] == pytest.approx(-120 - 100 * px_x, abs=1.01 * px_x)
     assert shifted[2:] == pytest.approx([-110, 70], abs=1e-9)
 
     # ---- the wheel zooms about the pointer ----
     span = shifted[1] - shifted[0]
     page.mouse.wheel(0, -200)  # the view zooms by exp(-200 * 0.002)
-    zoomed = wait_for_kernel_value(page, "w.view_range", lambda v: v[1] - v[0] < 0.9 * span)
+    zoomed = labtools.wait_for_kernel_value(page, "w.view_range", lambda v: v[1] - v[0] < 0.9 * span)
     assert zoomed[1] - zoomed[0] == pytest.approx(span * np.exp(-0.4), rel=1e-6)
     assert zoomed[3] - zoomed[2] == pytest.approx(180 * np.exp(-0.4), rel=1e-6)
-    execute_in_kernel(page, "w.reset_view()")
+    labtools.execute_in_kernel(page, "w.reset_view()")
     page.wait_for_function("el => el.dataset.domain === '[-120,120,-110,70]'", arg=view.element_handle())
 
     # ---- lasso: a triangle drawn with the mouse; checked against matplotlib's point-in-polygon ----
@@ -256,7 +219,7 @@ def test_scatter_renders_brush_selects_the_right_stars_hover_and_pan(lab, page):
 
     # ---- selection set from Python is drawn ----
     before = int(dataset(view, "drawCount"))
-    execute_in_kernel(page, "w.selected_indices = np.arange(100, 200)")
+    labtools.execute_in_kernel(page, "w.selected_indices = np.arange(100, 200)")
     wait_draw_count_above(page, ".t-scatter", before)
     assert "100 selected" in status.inner_text()
     assert not errors, errors
@@ -313,7 +276,7 @@ def test_galaxy_view_drag_changes_the_orbit(lab, page):
     box = canvas.bounding_box()
     tip = json.loads(dataset(view, "tip"))
     k = float(dataset(view, "pxPerKpc"))  # CSS px per kpc along x (y has the same scale, flipped)
-    scale = float(execute_in_kernel(page, "print(g.arrow_scale)"))
+    scale = float(labtools.execute_in_kernel(page, "print(g.arrow_scale)"))
     tx, ty = box["x"] + tip[0], box["y"] + tip[1]
     dx, dy = -60.0, 35.0  # screen pixels: left and down = lower vx and vy
     page.mouse.move(tx, ty)
@@ -330,18 +293,12 @@ def test_galaxy_view_drag_changes_the_orbit(lab, page):
     page.wait_for_function("([el, end]) => JSON.stringify(JSON.parse(el.dataset.trackEnd)) ==="
                            " JSON.stringify(end)", arg=[view.element_handle(), final["end"]])
     assert "v_x = " in view.locator(".mwkin-galaxy-readout").inner_text()
-    assert wait_for_kernel_value(page, "g.dragging", lambda v: v is False) is False
+    assert labtools.wait_for_kernel_value(page, "g.dragging", lambda v: v is False) is False
     labtools.screenshot(view, "views_galaxy_dragged")
     assert not errors, errors
 
 
 # ---- Voila ---------------------------------------------------------------------------------------
-
-def _free_port():
-    with socket.socket() as sock:
-        sock.bind(("127.0.0.1", 0))
-        return sock.getsockname()[1]
-
 
 def _wait_tcp(port, process, timeout_s=120.0):
     deadline = time.monotonic() + timeout_s
@@ -384,7 +341,7 @@ def test_views_render_in_voila(page, tmp_path):
     (spec / "kernel.json").write_text(json.dumps({
         "argv": [sys.executable, "-m", "ipykernel_launcher", "-f", "{connection_file}"],
         "display_name": "Python 3", "language": "python"}))
-    port = _free_port()
+    port = labtools.free_port()
     log = open(tmp_path / "voila.log", "wb")  # noqa: SIM115
     process = subprocess.Popen(
         [str(voila), "--no-browser", f"--port={port}", "--Voila.ip=127.0.0.1", "views.ipynb"],
