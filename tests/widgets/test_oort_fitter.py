@@ -8,11 +8,8 @@ import json
 
 import numpy as np
 import pytest
-import astropy.units as u
-from astropy.coordinates import ICRS, CartesianDifferential, CartesianRepresentation, SkyCoord
-from astropy.table import QTable
 
-import mwkin as mk
+from disc_mock import flat_disc_sample
 from mwkin.oort import OortFit
 from mwkin.widgets import FrameState, OortFitter, PotentialState
 from mwkin.widgets.oort_fitter import first_order_model, parse_bins
@@ -22,44 +19,9 @@ R0 = 8.122  # kpc, the astropy v4.0 frame the mock is made in
 
 
 def flat_rotation_sample(n=12000, seed=11, rv_fraction=0.5, r_max=1.0):
-    """Stars within r_max kpc of the Sun on a flat rotation curve, made with astropy's Galactocentric frame.
-
-    Mean flow v_phi = 230 km/s everywhere, dispersions (30, 20, 15) km/s, Gaussian parallax and
-    proper-motion noise, radial velocities for ``rv_fraction`` of the stars.
-    """
-    rng = np.random.default_rng(seed)
-    gc_frame = mk.SolarFrame.preset("astropy v4.0").to_astropy()
-    r = r_max * np.sqrt(rng.uniform(0.0025, 1.0, n))
-    theta = rng.uniform(0, 2 * np.pi, n)
-    x = -R0 + r * np.cos(theta)
-    y = r * np.sin(theta)
-    z = rng.normal(0.0, 0.1, n)
-    R = np.hypot(x, y)
-    v_phi = V_FLAT + rng.normal(0, 20, n)
-    v_R = rng.normal(0, 30, n)
-    v_z = rng.normal(0, 15, n)
-    vx = v_R * x / R + v_phi * y / R  # e_phi = (y, -x) / R: phi increases with rotation
-    vy = v_R * y / R - v_phi * x / R
-    gc = SkyCoord(CartesianRepresentation(x, y, z, unit=u.kpc,
-                                          differentials=CartesianDifferential(vx, vy, v_z, unit=u.km / u.s)),
-                  frame=gc_frame)
-    icrs = gc.transform_to(ICRS())
-    t = QTable()
-    t["ra"] = icrs.ra.to(u.deg)
-    t["dec"] = icrs.dec.to(u.deg)
-    err = rng.uniform(0.02, 0.05, n)
-    t["parallax"] = (1.0 / icrs.distance.to_value(u.kpc) + rng.normal(0, 1, n) * err) * u.mas
-    t["parallax_error"] = err * u.mas
-    pm_err = rng.uniform(0.02, 0.06, n)
-    t["pmra"] = icrs.pm_ra_cosdec.to(u.mas / u.yr) + rng.normal(0, 1, n) * pm_err * u.mas / u.yr
-    t["pmdec"] = icrs.pm_dec.to(u.mas / u.yr) + rng.normal(0, 1, n) * pm_err * u.mas / u.yr
-    t["pmra_error"] = pm_err * u.mas / u.yr
-    t["pmdec_error"] = pm_err * u.mas / u.yr
-    rv = icrs.radial_velocity.to_value(u.km / u.s) + rng.normal(0, 1, n)
-    rv[rng.uniform(size=n) > rv_fraction] = np.nan
-    t["radial_velocity"] = rv * u.km / u.s
-    t["radial_velocity_error"] = np.where(np.isfinite(rv), 1.0, np.nan) * u.km / u.s
-    return t
+    """Stars within r_max kpc of the Sun on a flat rotation curve, made with astropy's Galactocentric frame."""
+    return flat_disc_sample(n, seed, v_flat=V_FLAT, r_max=r_max, z_scale=0.1, plx_error=(0.02, 0.05),
+                            pm_error=(0.02, 0.06), rv_fraction=rv_fraction)
 
 
 @pytest.fixture(scope="module")

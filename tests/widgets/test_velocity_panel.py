@@ -9,10 +9,11 @@ import json
 import numpy as np
 import pytest
 import astropy.units as u
-from astropy.coordinates import ICRS, CartesianDifferential, CartesianRepresentation, SkyCoord
-from astropy.table import QTable, Table
+from astropy.coordinates import SkyCoord
+from astropy.table import Table
 
 import mwkin as mk
+from disc_mock import flat_disc_sample
 from mwkin.widgets import FrameState, PotentialState, VelocityPanel
 from mwkin.widgets._plots import PointCloud
 
@@ -20,45 +21,8 @@ N = 1500
 
 
 def astropy_sample(n=N, seed=3, plx_error=(0.02, 0.06), rv_fraction=0.6):
-    """Disc-like stars within ~1 kpc of the Sun, made with astropy's Galactocentric frame (not mwkin's code).
-
-    Flat rotation at 230 km/s with (30, 20, 15) km/s dispersions; Gaussian parallax and proper-motion noise;
-    a radial velocity for ``rv_fraction`` of the stars.
-    """
-    rng = np.random.default_rng(seed)
-    gc_frame = mk.SolarFrame.preset("astropy v4.0").to_astropy()
-    r = 1.0 * np.sqrt(rng.uniform(0.0025, 1.0, n))
-    theta = rng.uniform(0, 2 * np.pi, n)
-    x = -8.122 + r * np.cos(theta)
-    y = r * np.sin(theta)
-    z = rng.normal(0.0, 0.15, n)
-    R = np.hypot(x, y)
-    v_phi = 230.0 + rng.normal(0, 20, n)
-    v_R = rng.normal(0, 30, n)
-    v_z = rng.normal(0, 15, n)
-    # phi = atan2(y, -x) increases with rotation: e_R = (x, y)/R, e_phi = (y, -x)/R
-    vx = v_R * x / R + v_phi * y / R
-    vy = v_R * y / R - v_phi * x / R
-    gc = SkyCoord(CartesianRepresentation(x, y, z, unit=u.kpc,
-                                          differentials=CartesianDifferential(vx, vy, v_z, unit=u.km / u.s)),
-                  frame=gc_frame)
-    icrs = gc.transform_to(ICRS())
-    t = QTable()
-    t["ra"] = icrs.ra.to(u.deg)
-    t["dec"] = icrs.dec.to(u.deg)
-    err = rng.uniform(*plx_error, n)
-    t["parallax"] = (1.0 / icrs.distance.to_value(u.kpc) + rng.normal(0, 1, n) * err) * u.mas
-    t["parallax_error"] = err * u.mas
-    pm_err = rng.uniform(0.02, 0.05, n)
-    t["pmra"] = icrs.pm_ra_cosdec.to(u.mas / u.yr) + rng.normal(0, 1, n) * pm_err * u.mas / u.yr
-    t["pmdec"] = icrs.pm_dec.to(u.mas / u.yr) + rng.normal(0, 1, n) * pm_err * u.mas / u.yr
-    t["pmra_error"] = pm_err * u.mas / u.yr
-    t["pmdec_error"] = pm_err * u.mas / u.yr
-    rv = icrs.radial_velocity.to_value(u.km / u.s) + rng.normal(0, 1, n)
-    rv[rng.uniform(size=n) > rv_fraction] = np.nan
-    t["radial_velocity"] = rv * u.km / u.s
-    t["radial_velocity_error"] = np.where(np.isfinite(rv), 1.0, np.nan) * u.km / u.s
-    return t
+    """Disc-like stars within ~1 kpc of the Sun, made with astropy's Galactocentric frame (not mwkin's code)."""
+    return flat_disc_sample(n, seed, plx_error=plx_error, rv_fraction=rv_fraction)
 
 
 @pytest.fixture(scope="module")
