@@ -98,12 +98,10 @@ class OrbitCancelled(Exception):
 # --------------------------------------------------------------------------------------- geometry
 def _cylindrical(xyz):
     """(N, 6) Cartesian x..vz (astropy axes) -> (N, 6) R, phi, z, v_R, v_phi, v_z (our conventions)."""
-    x, y, z, vx, vy, vz = (xyz[:, i] for i in range(6))
-    R = np.hypot(x, y)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        v_R = (x * vx + y * vy) / R
-        v_phi = (y * vx - x * vy) / R
-    return np.column_stack([R, np.arctan2(y, -x), z, v_R, v_phi, vz])
+    from .kinematics import cylindrical_from_cartesian
+
+    cyl = cylindrical_from_cartesian(*(xyz[:, i] for i in range(6)))
+    return np.column_stack([cyl[k] for k in ("R", "phi", "z", "v_R", "v_phi", "v_z")])
 
 
 def _cartesian(R, phi, z, v_R, v_phi, v_z):
