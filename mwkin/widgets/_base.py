@@ -19,7 +19,7 @@ import ipywidgets as widgets
 import traitlets
 
 from ._live import LiveRunner
-from .state import FrameState, PotentialState
+from .state import ConfigError, FrameState, PotentialState, frame_from_config, require_mapping, validated_potential_config
 
 __all__ = ["AnalysisWidget", "StatusLine", "Panel"]
 
@@ -124,18 +124,60 @@ class AnalysisWidget(widgets.VBox):
                 "potential": self.potential_state.config, **self._config()}
 
     def load_config(self, config):
-        """Apply a dict produced by :attr:`config` (frame, potential and the widget's own settings)."""
-        config = dict(config)
-        kind = config.pop("widget", type(self).__name__)
-        if kind != type(self).__name__:
-            raise ValueError(f"this config is for a {kind}, not a {type(self).__name__}")
-        with self.hold_trait_notifications():
-            if "frame" in config:
-                self.frame_state.load_config(config.pop("frame"))
-            if "potential" in config:
-                self.potential_state.load_config(config.pop("potential"))
-            self._load_config(config)
+        """Apply a dict produced by :attr:`config` (frame, potential and the widget's own settings).
+
+        All or nothing: the frame and potential parts are validated first, then the widget's own settings
+        are applied; if anything fails, the widget's settings are put back as they were, the shared
+        frame and potential states are left untouched, the status line says why and the error is raised.
+
+        Raises
+        ------
+        ConfigError
+            A config that is not a dict, is for another widget, or has a bad key or value (named).
+        """
+        try:
+            config = require_mapping(config, "the widget config")
+            kind = config.pop("widget", type(self).__name__)
+            if kind != type(self).__name__:
+                raise ConfigError(f"this config is for a {kind}, not a {type(self).__name__}")
+            frame = (frame_from_config(require_mapping(config.pop("frame"), "config['frame']"))
+                     if "frame" in config else None)
+            potential = (validated_potential_config(require_mapping(config.pop("potential"), "config['potential']"))
+                         if "potential" in config else None)
+            snapshot = self._snapshot()
+            try:
+                with self.hold_trait_notifications():
+                    self._load_config(config)
+            except Exception:
+                self._restore(snapshot)
+                raise
+        except Exception as exc:
+            self.status_line.show_error(f"error: config not applied (nothing changed): {str(exc) or type(exc).__name__}")
+            raise
+        # Only now, with everything validated and applied, do the shared states change.
+        if frame is not None:
+            self.frame_state.set_frame(frame)
+        if potential is not None:
+            self.potential_state.load_config(potential)
         self.refresh()
+
+    #: Private attributes that hold the widget's sample (restored as they were when a config fails).
+    _SNAPSHOT_ATTRIBUTES = ("_stars", "_source", "_geometry", "_note", "_bins_cache", "_original", "_seed")
+
+    def _snapshot(self):
+        """Everything :meth:`_restore` needs to undo a half-applied config."""
+        attributes = {name: getattr(self, name) for name in self._SNAPSHOT_ATTRIBUTES if hasattr(self, name)}
+        return attributes, self._config()
+
+    def _restore(self, snapshot):
+        attributes, own = snapshot
+        for name, value in attributes.items():
+            setattr(self, name, value)
+        controls = getattr(self, "distance_controls", None)
+        if controls is not None:
+            controls.set_sample(attributes.get("_stars"))
+        with self.hold_trait_notifications():
+            self._load_config(own)
 
     def save_config(self, path):
         """Write :attr:`config` as JSON to ``path``."""
@@ -155,6 +197,10 @@ class AnalysisWidget(widgets.VBox):
         try:
             request = self._request()
         except Exception as exc:  # noqa: BLE001 - shown on screen, inputs kept as typed
+            # The current inputs are the newest request even though they cannot be computed: anything
+            # still running from older inputs must not land on top of this error.
+            for runner in self._runners():
+                runner.supersede()
             self._fail(exc, None)
             return
         self.status_line.show_busy("computing...")
@@ -188,7 +234,20 @@ class AnalysisWidget(widgets.VBox):
         if busy:
             self.status_line.show_busy("computing...")
 
+    def _runners(self):
+        """Every LiveRunner whose results depend on the inputs (the main one, plus any of the subclass)."""
+        return [self._runner]
+
+    def _result_views(self):
+        """Widgets that show the result; hidden while the current inputs give an error."""
+        return []
+
+    def _show_results(self, visible):
+        for view in self._result_views():
+            view.layout.visibility = "visible" if visible else "hidden"
+
     def _deliver(self, result, request, seconds):
+        self._show_results(True)
         self._result = result
         self._last_request = request
         self._show(result, request)
@@ -199,6 +258,12 @@ class AnalysisWidget(widgets.VBox):
             self.code_area.value = self._code(request)
 
     def _fail(self, exc, request):
+        # The current inputs have no result: whatever is on screen was computed from other inputs, so
+        # it is hidden and .result no longer offers it.
+        self._result = None
+        self._show_results(False)
+        self._provenance = ""
+        self.provenance_label.value = "<small>no result for the current inputs (see the error above)</small>"
         self.status_line.show_error(error_text(exc))
 
     def _toggle_code(self):

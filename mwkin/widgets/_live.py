@@ -5,6 +5,11 @@ worker thread, always on the newest request: requests that arrive while it is bu
 and a result is delivered only if no newer request was made in the meantime, so a stale result never
 overwrites a newer one. Errors are handed to a callback (the widget's status line) instead of vanishing
 into the kernel log.
+
+A request that fails before it can be submitted (its inputs do not validate) must still count as the
+newest one: :meth:`LiveRunner.supersede` makes every computation in flight stale, so a result computed from
+older, valid inputs can never land on top of the error the current inputs produced. Delivery and
+superseding share one lock, so "is this still the newest request?" and "show it" happen as one step.
 """
 
 from __future__ import annotations
@@ -39,7 +44,9 @@ class LiveRunner:
         self._on_error = on_error
         self._on_busy = on_busy or (lambda busy: None)
         self._threaded = threaded
-        self._lock = threading.Condition()
+        # Condition over an RLock: the result callback runs with the lock held (so nothing can supersede
+        # a result between the newest-check and its display) and may itself submit or supersede.
+        self._lock = threading.Condition(threading.RLock())
         self._pending = None
         self._generation = 0
         self._delivered = 0
@@ -78,6 +85,20 @@ class LiveRunner:
                 self._on_busy(False)
         return generation
 
+    def supersede(self):
+        """Make every computation queued or in flight stale, without submitting a new one.
+
+        Called when the current inputs fail validation: their error is the newest outcome, so an older
+        request finishing later must not be shown. Returns the new generation.
+        """
+        with self._lock:
+            self._generation += 1
+            self._pending = None
+            # Nothing new will run for this generation: count it as processed so wait() and idle hold.
+            self._delivered = max(self._delivered, self._generation)
+            self._lock.notify_all()
+            return self._generation
+
     def _run_one(self):
         with self._lock:
             if self._pending is None:
@@ -93,20 +114,18 @@ class LiveRunner:
             error.__mwkin_traceback__ = traceback.format_exc()
         seconds = time.perf_counter() - start
         with self._lock:
-            newest = generation == self._generation
-        if newest:
-            self.last_seconds = seconds
-            try:
-                if error is None:
-                    self._on_result(result, request, seconds)
-                else:
-                    self._on_error(error, request)
-            except Exception as exc:  # noqa: BLE001
+            if generation == self._generation:
+                self.last_seconds = seconds
                 try:
-                    self._on_error(exc, request)
-                except Exception:  # noqa: BLE001
-                    traceback.print_exc()
-        with self._lock:
+                    if error is None:
+                        self._on_result(result, request, seconds)
+                    else:
+                        self._on_error(error, request)
+                except Exception as exc:  # noqa: BLE001
+                    try:
+                        self._on_error(exc, request)
+                    except Exception:  # noqa: BLE001
+                        traceback.print_exc()
             self._delivered = max(self._delivered, generation)
             self._lock.notify_all()
         return True

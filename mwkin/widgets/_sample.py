@@ -13,12 +13,14 @@ import hashlib
 import os
 import pathlib
 import tempfile
-from dataclasses import asdict, dataclass
+import warnings
+from dataclasses import asdict, dataclass, fields
 
 import ipywidgets as widgets
 import numpy as np
 
 from ..catalog import CatalogError, read_catalog
+from .state import ConfigError, require_mapping
 
 __all__ = [
     "SampleSource",
@@ -32,7 +34,53 @@ __all__ = [
     "apply_sample_config",
     "UPLOAD_SUFFIXES",
     "LOW_SNR",
+    "SampleWarning",
+    "allow_sample_folder",
+    "allowed_sample_folders",
 ]
+
+
+class SampleWarning(UserWarning):
+    """A sample given to a widget could not be used; the widget's status line says why."""
+
+
+#: Folders, besides the working directory, from which a widget config may read its sample file.
+_EXTRA_SAMPLE_FOLDERS: list[pathlib.Path] = []
+
+
+def allow_sample_folder(folder):
+    """Let widget configs read sample files under ``folder`` (besides the working directory).
+
+    A config can come from someone else's notebook; by default it may only name files under the
+    working directory (the notebook's folder in Jupyter). Call this to trust another folder.
+    """
+    path = pathlib.Path(folder).expanduser().resolve()
+    if path not in _EXTRA_SAMPLE_FOLDERS:
+        _EXTRA_SAMPLE_FOLDERS.append(path)
+    return path
+
+
+def allowed_sample_folders():
+    """The folders a widget config may read a sample from: the working directory, then the allowed ones."""
+    return [pathlib.Path.cwd().resolve(), *_EXTRA_SAMPLE_FOLDERS]
+
+
+def _config_sample_path(path):
+    """Resolve a sample path named in a config, refusing anything outside the allowed folders."""
+    if not isinstance(path, str) or not path:
+        raise ConfigError(f"config['sample']['path'] must be a non-empty file path, got {path!r:.80}")
+    resolved = pathlib.Path(path).expanduser()
+    if not resolved.is_absolute():
+        resolved = pathlib.Path.cwd() / resolved
+    resolved = resolved.resolve()
+    folders = allowed_sample_folders()
+    if not any(resolved.is_relative_to(folder) for folder in folders):
+        raise ConfigError(
+            f"config['sample']['path'] = {path!r} is outside the folders a config may read from "
+            f"({', '.join(str(f) for f in folders)}): a config from a shared notebook may only name files "
+            "under the notebook's folder. Copy the file there, or trust its folder with "
+            "mwkin.widgets.allow_sample_folder(...)")
+    return resolved
 
 #: File suffixes the upload button accepts (read_catalog tells the format from them).
 UPLOAD_SUFFIXES = (".csv", ".ecsv", ".fits", ".fit", ".fts", ".vot", ".votable", ".xml", ".parquet", ".pq")
@@ -83,7 +131,23 @@ class SampleSource:
 
     @classmethod
     def from_config(cls, config):
-        config = {k: v for k, v in config.items() if k != "note"}
+        """Inverse of :meth:`to_config`; a bad key, kind or value raises :class:`ConfigError` naming it."""
+        config = require_mapping(config, "config['sample']")
+        config.pop("note", None)
+        known = {f.name: f.type for f in fields(cls)}
+        unknown = set(config) - set(known)
+        if unknown:
+            raise ConfigError(f"config['sample'] has unknown keys {sorted(unknown)}; expected {sorted(known)}")
+        kinds = ("none", "path", "table", "dataframe", "upload")
+        kind = config.get("kind", "none")
+        if kind not in kinds:
+            raise ConfigError(f"config['sample']['kind'] must be one of {kinds}, got {kind!r:.80}")
+        for key in ("path", "name", "fingerprint"):
+            if not isinstance(config.get(key, ""), str):
+                raise ConfigError(f"config['sample'][{key!r}] must be a string, got {config[key]!r:.80}")
+        n_rows = config.get("n_rows", 0)
+        if isinstance(n_rows, bool) or not isinstance(n_rows, int) or n_rows < 0:
+            raise ConfigError(f"config['sample']['n_rows'] must be a whole number >= 0, got {n_rows!r:.80}")
         return cls(**config)
 
     def describe(self):
@@ -276,7 +340,9 @@ class DistanceControls(widgets.VBox):
         self.method = widgets.ToggleButtons(options=[self.METHODS[0]], value=self.METHODS[0],
                                             description="distance", style={"button_width": "135px"},
                                             tooltip="how each star's distance is obtained")
-        self.min_snr = widgets.BoundedFloatText(value=min_snr, min=0.0, max=1e4, step=1.0,
+        # A plain box: the core's InverseParallax refuses a negative cut by name; a bounded box would
+        # clamp it to 0 silently (no cut at all).
+        self.min_snr = widgets.FloatText(value=min_snr, step=1.0,
                                                 description="min parallax/error", style={"description_width": "9em"},
                                                 layout=widgets.Layout(width="15em"), continuous_update=False)
         self.zero_point = widgets.FloatText(value=zero_point_mas, step=0.005, description="zero point [mas]",
@@ -334,12 +400,18 @@ class DistanceControls(widgets.VBox):
                 "zero_point_mas": float(self.zero_point.value)}
 
     def load_config(self, config):
+        config = require_mapping(config, "config['distance']")
         unknown = set(config) - {"method", "min_snr", "zero_point_mas"}
         if unknown:
-            raise ValueError(f"unknown distance settings {sorted(unknown)}")
+            raise ConfigError(f"unknown distance settings {sorted(unknown)}; expected "
+                              "['method', 'min_snr', 'zero_point_mas']")
         method = config.get("method", self.method.value)
         if method not in self.METHODS:
-            raise ValueError(f"distance method must be one of {self.METHODS}, got {method!r}")
+            raise ConfigError(f"config['distance']['method'] must be one of {self.METHODS}, got {method!r:.80}")
+        for key, unit in (("min_snr", ""), ("zero_point_mas", " mas")):
+            value = config.get(key, 0.0)
+            if isinstance(value, bool) or not isinstance(value, (int, float)) or not np.isfinite(value):
+                raise ConfigError(f"config['distance'][{key!r}] must be a finite number{unit}, got {value!r:.80}")
         self._quiet = True  # the owner recomputes once, after the whole config is applied
         try:
             if method not in self.method.options:
@@ -363,8 +435,16 @@ def apply_sample_config(widget, config):
     """
     source = SampleSource.from_config(config)
     if source.kind == "path":
-        if widget._source.kind != "path" or widget._source.path != source.path:
-            stars, new_source = load_sample(source.path)
+        path = str(_config_sample_path(source.path))
+        if widget._source.kind != "path" or widget._source.path != path:
+            if not os.path.isfile(path):
+                raise ConfigError(f"config['sample']['path']: there is no file {path}")
+            try:
+                stars, new_source = load_sample(path)
+            except Exception as exc:  # noqa: BLE001 - reworded: never echo the file's content
+                raise ConfigError(
+                    f"config['sample']['path']: {path} could not be read as a star table "
+                    f"({type(exc).__name__}); read it with mwkin.read_catalog({path!r}) to see why") from None
             widget._stars, widget._source = stars, new_source
             widget.distance_controls.set_sample(stars)
         return ""
@@ -406,8 +486,29 @@ class SampleInput:
 
     @sample.setter
     def sample(self, sample):
-        stars, source = load_sample(sample)
+        try:
+            stars, source = load_sample(sample)
+        except Exception as exc:  # noqa: BLE001 - shown in the status line, the cell gets a warning
+            self._sample_failed(exc)
+            return
         self._set_sample(stars, source)
+
+    def _upload_failed(self, exc):
+        """An uploaded file could not be read: say why in the status line and keep the previous sample."""
+        from ._base import error_text
+
+        kept = f" (kept the previous sample: {self._source.describe()})" if self._stars is not None else ""
+        self.status_line.show_error(error_text(exc) + kept)
+
+    def _sample_failed(self, exc):
+        """Show why a sample could not be used; keep the previous one; warn the cell that gave it."""
+        from ._base import error_text
+
+        kept = (f" (kept the previous sample: {self._source.describe()})" if self._stars is not None
+                else " (no sample)")
+        text = error_text(exc) + kept
+        self.status_line.show_error(text)
+        warnings.warn(f"{type(self).__name__}: the sample was not used: {text}", SampleWarning, stacklevel=3)
 
     @property
     def sample_source(self):

@@ -13,6 +13,7 @@ import math
 
 import ipywidgets as widgets
 import numpy as np
+import traitlets
 
 from ..galactic import K_KMS_PER_MASYR_KPC
 from ._base import AnalysisWidget, Panel, error_text
@@ -20,6 +21,7 @@ from ._live import LiveRunner
 from ._plots import (COLOURS, SampleView, band_mark, binned_quantiles, error_bar_mark, legend_html, line_mark,
                      points_mark, set_error_bars, small_figure)
 from ._sample import DistanceControls, SampleInput, SampleLoader, SampleSource, apply_sample_config, inverse_parallax_caveat
+from .state import ConfigError
 
 __all__ = ["OortFitter", "first_order_model", "parameter_table_html", "parse_bins", "DEFAULT_BINS_KPC", "L_BIN_DEG"]
 
@@ -42,6 +44,9 @@ _AGAINST = ("l", "distance")
 BINS_NOTE = ("The first-order (linear) velocity field holds only near the Sun: where A and B drift from bin "
              "to bin beyond their errors, the model has stopped holding (its mu_l* error is ~0.1 mas/yr at "
              "0.2 kpc and ~0.5 mas/yr at 1 kpc for a disc model).")
+
+#: Largest bootstrap the live widget runs (the core has no limit; past this a live fit takes seconds).
+MAX_LIVE_BOOTSTRAP = 5000
 
 _SETTINGS = ("distance_range", "max_pm_error", "max_abs_b", "use", "robust", "bootstrap", "seed", "bins",
              "residual", "residual_against")
@@ -214,7 +219,9 @@ class OortFitter(SampleInput, AnalysisWidget):
                                                        continuous_update=True, style={"description_width": "9em"},
                                                        layout=widgets.Layout(width="30em"))
         self.distance_range.add_class("mwkin-distance-range")
-        self.max_pm_error = widgets.BoundedFloatText(value=0.0, min=0.0, max=1e3, step=0.05,
+        # Plain number boxes, checked in _settings(): a bounded box would silently clamp a value typed
+        # out of range (bootstrap 10**9 became 5000) instead of saying it is out of range.
+        self.max_pm_error = widgets.FloatText(value=0.0, step=0.05,
                                                      description="max pm error [mas/yr]",
                                                      tooltip="largest max(pmra_error, pmdec_error); 0: no cut",
                                                      style={"description_width": "12.5em"},
@@ -226,7 +233,7 @@ class OortFitter(SampleInput, AnalysisWidget):
                                          style={"button_width": "135px"})
         self.use.add_class("mwkin-use")
         self.robust = widgets.Checkbox(value=False, description="reject outliers (4-sigma clipping)", indent=False)
-        self.bootstrap = widgets.BoundedIntText(value=0, min=0, max=5000, step=50, description="bootstrap N",
+        self.bootstrap = widgets.IntText(value=0, step=50, description="bootstrap N",
                                                 continuous_update=False, layout=widgets.Layout(width="14em"))
         self.seed = 1
         self.bins_text = widgets.Text(value=", ".join(f"{e:g}" for e in bins), description="bin edges [kpc]",
@@ -259,12 +266,15 @@ class OortFitter(SampleInput, AnalysisWidget):
             widgets.HBox([self.max_pm_error, self.max_abs_b]), self.use,
             widgets.HBox([self.robust, self.bootstrap]), self.bins_text,
         ])
+        self._mu_box = widgets.HBox([self.mu_view, widgets.VBox([self.mu_fig, self.mu_legend])])
+        self._residual_box = widgets.HBox([
+            widgets.VBox([widgets.HBox([self.residual, self.residual_against]), self.residual_view]),
+            widgets.VBox([self.bins_fig, self.bins_legend, self.bins_status, self.bins_note])])
         self.children = [
             widgets.HBox([settings, self.table_html]),
-            widgets.HBox([self.mu_view, widgets.VBox([self.mu_fig, self.mu_legend])]),
+            self._mu_box,
             self.vr_box,
-            widgets.HBox([widgets.VBox([widgets.HBox([self.residual, self.residual_against]), self.residual_view]),
-                          widgets.VBox([self.bins_fig, self.bins_legend, self.bins_status, self.bins_note])]),
+            self._residual_box,
             self.counts_label, self.caveat_label, self.notes_html, self.status_line, self.provenance_label,
             widgets.HBox([self.code_button]), self.code_area,
         ]
@@ -328,9 +338,12 @@ class OortFitter(SampleInput, AnalysisWidget):
         self.distance_controls.set_sample(stars)
         self.refresh()
 
-    def _upload_failed(self, exc):
-        kept = f" (kept the previous sample: {self._source.describe()})" if self._stars is not None else ""
-        self.status_line.show_error(error_text(exc) + kept)
+    def _result_views(self):
+        return [self.table_html, self._mu_box, self.vr_box, self._residual_box, self.counts_label,
+                self.caveat_label, self.notes_html]
+
+    def _runners(self):
+        return [self._runner, self._bins_runner]
 
     # ------------------------------------------------------------------ AnalysisWidget hooks
     def wait(self, timeout=60.0, include_bins=True):
@@ -341,6 +354,13 @@ class OortFitter(SampleInput, AnalysisWidget):
         return self
 
     def _settings(self):
+        n_boot = self.bootstrap.value
+        if not 0 <= n_boot <= MAX_LIVE_BOOTSTRAP:
+            raise ValueError(f"bootstrap N = {n_boot}: give 0 (no bootstrap) to {MAX_LIVE_BOOTSTRAP} resamples "
+                             "in the widget (use mwkin.fit_oort directly for more)")
+        max_pm_error = self.max_pm_error.value
+        if not (math.isfinite(max_pm_error) and max_pm_error >= 0):
+            raise ValueError(f"max pm error = {max_pm_error} mas/yr: give 0 (no cut) or a positive error in mas/yr")
         # The front end snaps the range to the slider's step and echoes values like 0.49999999999999994;
         # rounding far below the step keeps the settings (and the config) at what the user chose.
         return {"distance_range": [round(float(v), 9) for v in self.distance_range.value],
@@ -557,7 +577,8 @@ class OortFitter(SampleInput, AnalysisWidget):
         config = dict(config)
         unknown = set(config) - set(_SETTINGS) - {"sample", "distance"}
         if unknown:
-            raise ValueError(f"unknown settings {sorted(unknown)} for OortFitter")
+            raise ConfigError(f"unknown settings {sorted(unknown)} for OortFitter; expected {sorted(_SETTINGS)}")
+        _check_setting_types(config)
         if "use" in config and config["use"] not in _USES.values():
             raise ValueError(f"use must be one of {sorted(_USES.values())}, got {config['use']!r}")
         if "bins" in config:
@@ -576,9 +597,16 @@ class OortFitter(SampleInput, AnalysisWidget):
             self.distance_range.value = (lo, hi)
         for key, control in simple.items():
             if key in config:
-                control.value = config[key]
+                try:
+                    control.value = config[key]
+                except traitlets.TraitError as exc:
+                    raise ConfigError(f"OortFitter config[{key!r}] = {config[key]!r:.80}: {exc}") from None
         if "seed" in config:
             self.seed = config["seed"]
+        try:
+            self._settings()   # range checks (bootstrap, pm error) of the values just applied
+        except ValueError as exc:
+            raise ConfigError(f"OortFitter config: {exc}") from None
 
     def _code(self, request):
         s = request["settings"]
@@ -656,6 +684,29 @@ class OortFitter(SampleInput, AnalysisWidget):
             panels.append(Panel("A and B in distance bins", "distance [kpc]", "[km/s/kpc]", layers,
                                 notes=["where A and B drift with distance, the first-order model stops holding"]))
         return panels
+
+
+#: Types of the OortFitter config values (bool is not taken for a number).
+_SETTING_TYPES = {"max_pm_error": (int, float), "max_abs_b": (int, float), "use": (str,), "robust": (bool,),
+                  "bootstrap": (int,), "seed": (int, type(None)), "bins": (str,), "residual": (str,),
+                  "residual_against": (str,)}
+
+
+def _check_setting_types(config):
+    for key, types in _SETTING_TYPES.items():
+        if key not in config:
+            continue
+        value = config[key]
+        if (isinstance(value, bool) and bool not in types) or not isinstance(value, types):
+            names = " or ".join("None" if t is type(None) else t.__name__ for t in types)
+            raise ConfigError(f"OortFitter config[{key!r}] must be {names}, got {type(value).__name__} {value!r:.80}")
+    if "distance_range" in config:
+        value = config["distance_range"]
+        if (not isinstance(value, (list, tuple)) or len(value) != 2
+                or any(isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) for v in value)
+                or not 0 <= value[0] < value[1]):
+            raise ConfigError(f"OortFitter config['distance_range'] must be [min, max] in kpc with "
+                              f"0 <= min < max, got {value!r:.80}")
 
 
 def _binned_legend(median_distance):

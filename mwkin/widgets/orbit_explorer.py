@@ -18,6 +18,7 @@ from __future__ import annotations
 import html
 import math
 import threading
+import warnings
 from dataclasses import dataclass, field
 
 import ipywidgets as widgets
@@ -25,7 +26,7 @@ import numpy as np
 
 from ._base import AnalysisWidget, Panel
 from .controls import NumberField
-from .state import potential_from_config
+from .state import ConfigError, potential_from_config, require_mapping
 from .views import GalaxyView
 
 __all__ = ["OrbitExplorer", "OrbitView", "DEFAULT_STAR"]
@@ -191,8 +192,8 @@ class OrbitExplorer(AnalysisWidget):
             distance_input = "parallax"
 
         self._build_inputs(obs, phase, distance_input, t_forward, t_backward, n_points, n_cloud)
-        if stars is not None:
-            self.set_stars(stars, row=row, refresh=False)
+        table_refused = stars is not None and not self.set_stars(stars, row=row, refresh=False)
+        if stars is not None and not table_refused:
             source = "table"
         self.source.value = source
         self._source_changed(None)
@@ -217,13 +218,15 @@ class OrbitExplorer(AnalysisWidget):
                              layout=widgets.Layout(width=f"{_FACE_PX + 10}px", flex="0 0 auto"))
         # Fixed widths: a column that shrank or grew with its content (the note shown at the first drag)
         # would move the face-on view under the pointer in the middle of a drag.
+        self._plots_box = plots
         self.children = [widgets.HBox([left, plots]), self.status_line,
                          widgets.HBox([self.code_button]), self.code_area, self.provenance_label]
         self.add_class("mwkin-orbit-explorer")
 
         self.frame_state.observe(self._inputs_changed, ["R0", "z_sun", "v_sun"])
         self.potential_state.observe(self._inputs_changed, ["preset", "parameters", "match_frame_vc", "solar_V"])
-        self.refresh()
+        if not table_refused:   # else the status line keeps saying why the table was not used
+            self.refresh()
 
     # ================================================================== inputs
     def _build_inputs(self, obs, phase, distance_input, t_forward, t_backward, n_points, n_cloud):
@@ -288,13 +291,29 @@ class OrbitExplorer(AnalysisWidget):
         self._distance_input_changed(None)
 
     def set_stars(self, stars, row=0, refresh=True):
-        """Use row ``row`` of a table (anything :func:`mwkin.read_catalog` reads) as the star."""
-        from ..catalog import read_catalog
+        """Use row ``row`` of a table (anything :func:`mwkin.read_catalog` reads) as the star.
 
-        self._stars = read_catalog(stars)
+        A table that cannot be read, has no rows or has no row ``row`` is not used: the status line says
+        why, a :class:`~mwkin.widgets.SampleWarning` is issued and the previous star stays. Returns True
+        when the table was taken.
+        """
+        from ..catalog import read_catalog
+        from ._base import error_text
+        from ._sample import SampleWarning
+
+        try:
+            table = read_catalog(stars)
+            if len(table) == 0:
+                raise ValueError("the star table has no rows")
+            if isinstance(row, bool) or not isinstance(row, (int, np.integer)) or not 0 <= row < len(table):
+                raise ValueError(f"row = {row!r}: the star table has rows 0 to {len(table) - 1}")
+        except Exception as exc:  # noqa: BLE001 - on screen, and a warning for the cell that gave it
+            text = f"{error_text(exc)} (the star table was not used)"
+            self.status_line.show_error(text)
+            warnings.warn(f"OrbitExplorer: {text}", SampleWarning, stacklevel=2)
+            return False
+        self._stars = table
         n = len(self._stars)
-        if n == 0:
-            raise ValueError("the star table has no rows")
         with self.hold_sync():
             self.source.options = [(_SOURCES[k], k) for k in ("table", "observables", "phase_space")]
             self.row_selector.max = n - 1
@@ -307,6 +326,7 @@ class OrbitExplorer(AnalysisWidget):
         self._show_row_label()
         if refresh:
             self.refresh()
+        return True
 
     def _show_row_label(self):
         if self._stars is None:
@@ -829,6 +849,9 @@ class OrbitExplorer(AnalysisWidget):
                      legend_outside=True)
 
     # ================================================================== sharing
+    def _result_views(self):
+        return [self._plots_box]
+
     def _config(self):
         star = self._star_config()
         if self._original is not None:
@@ -865,7 +888,8 @@ class OrbitExplorer(AnalysisWidget):
         known = {"star", "t_forward_gyr", "t_backward_gyr", "n_points", "cloud", "n_cloud", "seed"}
         unknown = set(config) - known
         if unknown:
-            raise ValueError(f"unknown OrbitExplorer settings {sorted(unknown)}; expected {sorted(known)}")
+            raise ConfigError(f"unknown OrbitExplorer settings {sorted(unknown)}; expected {sorted(known)}")
+        _check_config_types(config)
         self._loading = True
         star = config.get("star", {})
         self._apply_star_config(star)
@@ -956,6 +980,47 @@ _UNITS_CODE = {"observables": "ra, dec in deg, parallax in mas (distance in kpc)
 
 
 # ====================================================================== helpers (no widget access)
+def _is_number(value):
+    return not isinstance(value, bool) and isinstance(value, (int, float)) and math.isfinite(value)
+
+
+def _check_config_types(config):
+    """Name the key of any value in an OrbitExplorer config that has the wrong type (nothing applied yet)."""
+    for key in ("t_forward_gyr", "t_backward_gyr"):
+        if key in config and not _is_number(config[key]):
+            raise ConfigError(f"OrbitExplorer config[{key!r}] must be a finite number of Gyr, got {config[key]!r:.80}")
+    for key in ("n_points", "n_cloud", "seed"):
+        if key in config and (isinstance(config[key], bool) or not isinstance(config[key], int)):
+            raise ConfigError(f"OrbitExplorer config[{key!r}] must be a whole number, got {config[key]!r:.80}")
+    if "cloud" in config and not isinstance(config["cloud"], bool):
+        raise ConfigError(f"OrbitExplorer config['cloud'] must be true or false, got {config['cloud']!r:.80}")
+    star = require_mapping(config.get("star", {}), "OrbitExplorer config['star']")
+    known = {"source", "observables", "errors", "distance_input", "phase_space", "row", "row_values", "note",
+             "original"}
+    unknown = set(star) - known
+    if unknown:
+        raise ConfigError(f"OrbitExplorer config['star'] has unknown keys {sorted(unknown)}; expected {sorted(known)}")
+    fields_by_part = {"observables": DEFAULT_STAR, "errors": None, "phase_space": DEFAULT_PHASE_SPACE,
+                      "row_values": None}
+    for part, names in fields_by_part.items():
+        values = require_mapping(star.get(part, {}), f"OrbitExplorer config['star'][{part!r}]")
+        for name, value in values.items():
+            if part != "row_values" and names is not None and name not in names:
+                raise ConfigError(f"OrbitExplorer config['star'][{part!r}] has an unknown field {name!r}; "
+                                  f"expected {sorted(names)}")
+            if not (isinstance(value, (int, float)) and not isinstance(value, bool)):
+                raise ConfigError(f"OrbitExplorer config['star'][{part!r}][{name!r}] must be a number, "
+                                  f"got {value!r:.80}")
+    if "source" in star and star["source"] not in _SOURCES:
+        raise ConfigError(f"OrbitExplorer config['star']['source'] must be one of {sorted(_SOURCES)}, "
+                          f"got {star['source']!r:.80}")
+    if "distance_input" in star and star["distance_input"] not in ("parallax", "distance"):
+        raise ConfigError("OrbitExplorer config['star']['distance_input'] must be 'parallax' or 'distance', "
+                          f"got {star['distance_input']!r:.80}")
+    if "row" in star and (isinstance(star["row"], bool) or not isinstance(star["row"], int) or star["row"] < 0):
+        raise ConfigError(f"OrbitExplorer config['star']['row'] must be a whole number >= 0, got {star['row']!r:.80}")
+
+
 def _set_xy(mark, x, y):
     with mark.hold_sync():
         mark.x = np.asarray(x, dtype=float)

@@ -9,13 +9,35 @@ from __future__ import annotations
 
 import copy
 import json
+import math
 
 import traitlets
 
 from ..frames import FrameError, SolarFrame
 
 __all__ = ["FrameState", "PotentialState", "DEFAULT_FRAME_PRESET", "DEFAULT_POTENTIAL_PRESET",
-           "potential_from_config", "default_three_component_parameters"]
+           "potential_from_config", "default_three_component_parameters", "ConfigError", "require_mapping",
+           "frame_from_config", "validated_potential_config"]
+
+
+class ConfigError(ValueError):
+    """A widget or state config that cannot be applied; the message names the key and the value."""
+
+
+def require_mapping(config, what):
+    """A shallow copy of ``config`` as a dict, or a :class:`ConfigError` naming ``what`` if it is not one."""
+    if not isinstance(config, dict):
+        raise ConfigError(f"{what} must be a dict (a JSON object), got {type(config).__name__}: {config!r:.80}")
+    return dict(config)
+
+
+def frame_from_config(config):
+    """The :class:`~mwkin.frames.SolarFrame` a :attr:`FrameState.config` describes (validated, named errors)."""
+    config = require_mapping(config, "the frame config")
+    try:
+        return SolarFrame.from_dict(config)
+    except (KeyError, TypeError) as exc:  # keep every failure a ValueError that names the problem
+        raise ConfigError(f"frame config: {exc}") from None
 
 DEFAULT_FRAME_PRESET = "astropy v4.0"
 DEFAULT_POTENTIAL_PRESET = "MWPotential2014"
@@ -50,15 +72,27 @@ class FrameState(traitlets.HasTraits):
 
     @traitlets.validate("R0")
     def _check_R0(self, proposal):
-        if not proposal["value"] > 0:
-            raise traitlets.TraitError(f"R0 must be positive, got {proposal['value']} kpc")
-        return proposal["value"]
+        value = proposal["value"]
+        if not (math.isfinite(value) and value > 0):
+            raise traitlets.TraitError(f"R0 must be a finite distance > 0 kpc, got {value} kpc")
+        return value
 
     @traitlets.validate("z_sun")
     def _check_z_sun(self, proposal):
-        if abs(proposal["value"]) >= 1000.0 * self.R0:
-            raise traitlets.TraitError(f"|z_sun| = {abs(proposal['value'])} pc must be smaller than R0")
-        return proposal["value"]
+        value = proposal["value"]
+        if not math.isfinite(value):
+            raise traitlets.TraitError(f"z_sun must be a finite height in pc, got {value} pc")
+        if abs(value) >= 1000.0 * self.R0:
+            raise traitlets.TraitError(f"|z_sun| = {abs(value)} pc must be smaller than R0")
+        return value
+
+    @traitlets.validate("v_sun")
+    def _check_v_sun(self, proposal):
+        value = tuple(proposal["value"])
+        bad = [f"{axis} = {v}" for axis, v in zip(("vx", "vy", "vz"), value) if not math.isfinite(v)]
+        if bad:
+            raise traitlets.TraitError(f"v_sun must be finite, got {', '.join(bad)} km/s")
+        return value
 
     @traitlets.observe("R0", "z_sun", "v_sun")
     def _mark_edited(self, change):
@@ -92,8 +126,8 @@ class FrameState(traitlets.HasTraits):
         return self.frame.to_dict()
 
     def load_config(self, config):
-        """Inverse of :attr:`config`."""
-        self.set_frame(SolarFrame.from_dict(config))
+        """Inverse of :attr:`config`; a bad config raises :class:`ConfigError` and changes nothing."""
+        self.set_frame(frame_from_config(config))
 
 
 class PotentialState(traitlets.HasTraits):
@@ -157,16 +191,69 @@ class PotentialState(traitlets.HasTraits):
                 "match_frame_vc": self.match_frame_vc, "solar_V": self.solar_V}
 
     def load_config(self, config):
-        """Inverse of :attr:`config`."""
-        unknown = set(config) - {"preset", "parameters", "match_frame_vc", "solar_V"}
-        if unknown:
-            raise ValueError(f"unknown potential-state keys {sorted(unknown)}")
+        """Inverse of :attr:`config`; a bad config raises :class:`ConfigError` and changes nothing."""
+        config = validated_potential_config(config)
         with self.hold_trait_notifications():
             for key, value in config.items():
                 setattr(self, key, value)
 
 
 _COMPONENTS = ("bulge", "disc", "halo")
+
+
+_POTENTIAL_KEYS = {"preset": str, "parameters": dict, "match_frame_vc": bool, "solar_V": float}
+
+
+def validated_potential_config(config):
+    """Check a :attr:`PotentialState.config`-like dict without applying it; returns a clean copy.
+
+    Keys, types (``True`` is not a number, a number is not a name), the preset name and, when no preset
+    is named, the three-component parameters (through the core's own validation) are checked, each
+    failure naming the key and the value.
+
+    Raises
+    ------
+    ConfigError
+    """
+    config = require_mapping(config, "the potential config")
+    unknown = set(config) - set(_POTENTIAL_KEYS)
+    if unknown:
+        raise ConfigError(f"unknown potential-state keys {sorted(unknown)}; expected {sorted(_POTENTIAL_KEYS)}")
+    out = {}
+    for key, value in config.items():
+        kind = _POTENTIAL_KEYS[key]
+        if kind is float:
+            if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+                raise ConfigError(f"potential config: {key} must be a finite number (km/s), got {value!r}")
+            value = float(value)
+        elif not isinstance(value, kind):
+            raise ConfigError(f"potential config: {key} must be a {kind.__name__}, got "
+                              f"{type(value).__name__} {value!r:.80}")
+        out[key] = copy.deepcopy(value)
+    preset = out.get("preset")
+    if preset:
+        from ..potentials import Potential
+
+        if preset not in Potential.presets():
+            raise ConfigError(f"potential config: unknown preset {preset!r}; known: {sorted(Potential.presets())}")
+    elif "parameters" in out or preset == "":
+        from ..potentials import Potential
+
+        parameters = out.get("parameters", default_three_component_parameters())
+        unknown = set(parameters) - set(_COMPONENTS)
+        if unknown:
+            raise ConfigError(f"potential config: parameters has unknown components {sorted(unknown)}; "
+                              f"expected {list(_COMPONENTS)}")
+        for name, part in parameters.items():
+            if not isinstance(part, dict):
+                raise ConfigError(f"potential config: parameters[{name!r}] must be a dict, got {part!r:.80}")
+        try:
+            Potential.three_component(**copy.deepcopy(parameters))   # the core names the bad parameter
+        except ValueError as exc:
+            raise ConfigError(f"potential config: {exc}") from None
+        except TypeError as exc:
+            raise ConfigError(f"potential config: parameters: {exc}") from None
+    return out
 
 
 def default_three_component_parameters():

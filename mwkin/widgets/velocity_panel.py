@@ -16,6 +16,7 @@ import numpy as np
 import traitlets
 
 from ._base import AnalysisWidget, Panel, error_text
+from .state import ConfigError
 from ._plots import COLOURS, SampleView
 from ._sample import (DistanceControls, SampleInput, SampleLoader, SampleSource, apply_sample_config, inverse_parallax_caveat)
 
@@ -138,7 +139,8 @@ class VelocityPanel(SampleInput, AnalysisWidget):
 
         settings = widgets.VBox([self.loader, self.distance_controls,
                                  widgets.HBox([self.errors_control, self.colour_control])])
-        self.children = [settings, widgets.HBox(list(self._views), layout=widgets.Layout(flex_flow="row wrap")), self.counts_label, self.lsr_label,
+        self._views_box = widgets.HBox(list(self._views), layout=widgets.Layout(flex_flow="row wrap"))
+        self.children = [settings, self._views_box, self.counts_label, self.lsr_label,
                          self.caveat_label, self.selection_label, self.status_line, self.provenance_label,
                          widgets.HBox([self.code_button]), self.code_area]
 
@@ -163,9 +165,8 @@ class VelocityPanel(SampleInput, AnalysisWidget):
     def _uploaded(self, stars, source):
         self._set_sample(stars, source)
 
-    def _upload_failed(self, exc):
-        kept = f" (kept the previous sample: {self._source.describe()})" if self._stars is not None else ""
-        self.status_line.show_error(error_text(exc) + kept)
+    def _result_views(self):
+        return [self._views_box, self.counts_label, self.lsr_label, self.caveat_label]
 
     # ------------------------------------------------------------------ selection
     @property
@@ -325,11 +326,13 @@ class VelocityPanel(SampleInput, AnalysisWidget):
         errors = config.pop("errors", None)
         colour = config.pop("colour_by", None)
         if config:
-            raise ValueError(f"unknown settings {sorted(config)} for VelocityPanel")
+            raise ConfigError(f"unknown settings {sorted(config)} for VelocityPanel; expected "
+                              "['colour_by', 'distance', 'errors', 'sample']")
         if errors is not None and errors not in _ERROR_METHODS:
-            raise ValueError(f"errors must be one of {_ERROR_METHODS}, got {errors!r}")
+            raise ConfigError(f"VelocityPanel config['errors'] must be one of {_ERROR_METHODS}, got {errors!r:.80}")
         if colour is not None and colour not in COLOUR_COLUMNS:
-            raise ValueError(f"colour_by must be one of {list(COLOUR_COLUMNS)}, got {colour!r}")
+            raise ConfigError(f"VelocityPanel config['colour_by'] must be one of {list(COLOUR_COLUMNS)}, "
+                              f"got {colour!r:.80}")
         if sample is not None:
             self._note = apply_sample_config(self, sample)
         if distance is not None:

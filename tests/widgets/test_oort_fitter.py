@@ -154,18 +154,22 @@ def test_potential_change_updates_the_values_alongside(sample):
     assert "McMillan17" in w.result.potential_description
 
 
-def test_a_range_without_stars_shows_the_error_and_keeps_the_fit(sample):
+def test_a_range_without_stars_shows_the_error_and_hides_the_old_fit(sample):
     w = fitter(sample)
     fit, mu = w.result, y_of(w.mu_view)
+    assert fit is not None
     w.distance_range.value = (2.5, 3.0)
     w.wait()
     assert w.status.startswith("error") and "no star is left" in w.status
-    assert w.result is fit
+    # The fit on screen was made for other inputs: no longer offered as the result, and hidden.
+    assert w.result is None
+    assert all(view.layout.visibility == "hidden" for view in w._result_views())
     np.testing.assert_array_equal(y_of(w.mu_view), mu)
     assert w.distance_range.value == (2.5, 3.0)  # the input stays as set
     w.distance_range.value = (0.0, 0.4)
     w.wait()
     assert w.status.startswith("ready") and w.result.distance_range == (0.0, 0.4)
+    assert all(view.layout.visibility == "visible" for view in w._result_views())
 
 
 def test_bad_bins_and_broken_upload_show_errors(sample):
@@ -173,7 +177,8 @@ def test_bad_bins_and_broken_upload_show_errors(sample):
     fit = w.result
     w.bins_text.value = "0, 0.5, 0.2"
     assert w.status.startswith("error") and "increasing" in w.status
-    assert w.result is fit
+    assert w.result is None and fit is not None  # the fit was for other settings: no longer offered
+    assert all(view.layout.visibility == "hidden" for view in w._result_views())
     w.bins_text.value = "0, 0.25, 0.5"
     assert w.status.startswith("ready") and len(w.result.bins) == 2
     fit = w.result
@@ -201,7 +206,7 @@ def test_quality_cuts_leave_stars_out_with_the_reason(sample):
     v = fitter(bare, threaded=False)
     fit = v.result
     v.max_pm_error.value = 0.04
-    assert v.status.startswith("error") and "no pmra_error" in v.status and v.result is fit
+    assert v.status.startswith("error") and "no pmra_error" in v.status and v.result is None and fit is not None
 
 
 def test_residual_view_follows_the_choice(sample):

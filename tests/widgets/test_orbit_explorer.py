@@ -103,12 +103,14 @@ def test_a_negative_parallax_is_an_error_on_screen_and_the_inputs_stay():
     assert ex.status.startswith("error") and "parallax = -0.5 mas" in ex.status
     assert "mwkin-status-error" in ex.status_line.value          # shown on screen, in red
     assert ex.observable_fields["parallax"].value == -0.5         # the typed value stays
-    assert ex.result is before                                    # the last good result is kept
+    assert before is not None and ex.result is None               # the orbit was for other inputs
+    assert ex._plots_box.layout.visibility == "hidden"            # ... and is not shown
     assert frame.R0 == pytest.approx(8.122)
     ex.distance_input.value = "distance"                         # the fix the message suggests
     ex.observable_fields["distance"].text.value = 1.0
     ex.wait()
     assert ex.status.startswith("ready")
+    assert ex._plots_box.layout.visibility == "visible"
     assert ex.observable_fields["parallax"].value == -0.5
 
 

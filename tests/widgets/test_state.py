@@ -34,9 +34,17 @@ def test_editing_a_value_clears_the_preset_and_preset_restores_it():
 
 def test_frame_state_refuses_unphysical_values_and_keeps_the_old_one():
     state = FrameState()
-    with pytest.raises(traitlets.TraitError, match="R0 must be positive"):
+    with pytest.raises(traitlets.TraitError, match="R0 must be a finite distance > 0 kpc"):
         state.R0 = -1.0
     assert state.R0 == pytest.approx(8.122)
+    for bad in (float("inf"), float("nan")):
+        with pytest.raises(traitlets.TraitError, match="R0 must be a finite distance > 0 kpc"):
+            state.R0 = bad
+        assert state.R0 == pytest.approx(8.122)
+    with pytest.raises(traitlets.TraitError, match="v_sun must be finite, got vy = inf km/s"):
+        state.v_sun = (12.9, float("inf"), 7.78)
+    with pytest.raises(traitlets.TraitError, match="z_sun must be a finite height"):
+        state.z_sun = float("nan")
     with pytest.raises(traitlets.TraitError, match="z_sun"):
         state.z_sun = 1e5
     assert state.z_sun == pytest.approx(20.8)
