@@ -7,8 +7,10 @@ Everything here binds the core (which never imports this package) to plots. Widg
 from .controls import FrameControls, PotentialControls
 from .oort_fitter import OortFitter
 from .orbit_explorer import OrbitExplorer
-from .state import FrameState, PotentialState
+from ._sample import SampleWarning, allow_sample_folder, allowed_sample_folders
+from .state import ConfigError, FrameState, PotentialState
 from .velocity_panel import VelocityPanel
 
 __all__ = ["FrameState", "PotentialState", "FrameControls", "PotentialControls", "OrbitExplorer",
-           "VelocityPanel", "OortFitter"]
+           "VelocityPanel", "OortFitter", "ConfigError", "SampleWarning", "allow_sample_folder",
+           "allowed_sample_folders"]

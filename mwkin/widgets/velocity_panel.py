@@ -328,9 +328,9 @@ class VelocityPanel(SampleInput, AnalysisWidget):
         if config:
             raise ConfigError(f"unknown settings {sorted(config)} for VelocityPanel; expected "
                               "['colour_by', 'distance', 'errors', 'sample']")
-        if errors is not None and errors not in _ERROR_METHODS:
+        if errors is not None and (not isinstance(errors, str) or errors not in _ERROR_METHODS):
             raise ConfigError(f"VelocityPanel config['errors'] must be one of {_ERROR_METHODS}, got {errors!r:.80}")
-        if colour is not None and colour not in COLOUR_COLUMNS:
+        if colour is not None and (not isinstance(colour, str) or colour not in COLOUR_COLUMNS):
             raise ConfigError(f"VelocityPanel config['colour_by'] must be one of {list(COLOUR_COLUMNS)}, "
                               f"got {colour!r:.80}")
         if sample is not None:
