@@ -4,6 +4,7 @@ The core (this package outside :mod:`mwkin.widgets`) is pure numpy / astropy / g
 widget library, so it runs in scripts and batch jobs. See the README for the conventions.
 """
 
+from ._version import __version__
 from .frames import SolarFrame
 from .catalog import CatalogError, read_catalog
 from .distances import DistanceColumn, InverseParallax
@@ -12,8 +13,6 @@ from . import demo
 from .potentials import Potential
 from .orbits import OrbitSet, integrate_orbits, orbit_parameters
 from .oort import OortFit, fit_in_distance_bins, fit_oort
-
-__version__ = "0.1.0"
 
 __all__ = ["SolarFrame", "read_catalog", "CatalogError", "Potential", "integrate_orbits", "orbit_parameters",
            "OrbitSet", "to_galactocentric", "from_galactocentric", "InverseParallax", "DistanceColumn",
