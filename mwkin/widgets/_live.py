@@ -36,9 +36,14 @@ class LiveRunner:
         ``on_busy(bool)`` when the runner starts or stops having work.
     threaded : bool, optional
         False runs everything synchronously in :meth:`submit` (scripts and debugging).
+    stall_seconds : float, optional
+        A computation running longer than this is abandoned when a newer request arrives: the newer one
+        starts at once on a fresh worker thread, and the abandoned one's outcome is dropped whenever it
+        ends. A thread cannot be stopped from outside, so this keeps a widget responsive behind a
+        computation that never returns; the core's own guards are what end such computations.
     """
 
-    def __init__(self, compute, on_result, on_error, on_busy=None, threaded=True):
+    def __init__(self, compute, on_result, on_error, on_busy=None, threaded=True, stall_seconds=20.0):
         self._compute = compute
         self._on_result = on_result
         self._on_error = on_error
@@ -51,6 +56,8 @@ class LiveRunner:
         self._generation = 0
         self._delivered = 0
         self._thread = None
+        self._running_since = None
+        self._stall_seconds = float(stall_seconds)
         self.last_seconds = None
 
     @property
@@ -72,7 +79,7 @@ class LiveRunner:
             self._pending = (generation, request)
             if not self._threaded:
                 pass
-            elif self._thread is None or not self._thread.is_alive():
+            elif self._thread is None or not self._thread.is_alive() or self._stalled():
                 self._thread = threading.Thread(target=self._work, name="mwkin-live", daemon=True)
                 self._thread.start()
             else:
@@ -99,12 +106,20 @@ class LiveRunner:
             self._lock.notify_all()
             return self._generation
 
+    def _stalled(self):
+        since = self._running_since
+        return since is not None and time.monotonic() - since > self._stall_seconds
+
+    def _is_current_worker(self):
+        return not self._threaded or threading.current_thread() is self._thread
+
     def _run_one(self):
         with self._lock:
-            if self._pending is None:
+            if self._pending is None or not self._is_current_worker():
                 return False
             generation, request = self._pending
             self._pending = None
+            self._running_since = time.monotonic()
         start = time.perf_counter()
         try:
             result = self._compute(request)
@@ -114,6 +129,9 @@ class LiveRunner:
             error.__mwkin_traceback__ = traceback.format_exc()
         seconds = time.perf_counter() - start
         with self._lock:
+            if not self._is_current_worker():
+                return False    # abandoned as stalled: a fresh worker has taken over
+            self._running_since = None
             if generation == self._generation:
                 self.last_seconds = seconds
                 try:
@@ -133,10 +151,13 @@ class LiveRunner:
     def _work(self):
         while True:
             with self._lock:
+                if not self._is_current_worker():
+                    return
                 if self._pending is None:
                     self._lock.wait(timeout=5.0)
                     if self._pending is None:
-                        self._thread = None
+                        if self._is_current_worker():
+                            self._thread = None
                         return
             self._on_busy(True)
             try:
