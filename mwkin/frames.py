@@ -20,10 +20,15 @@ from __future__ import annotations
 
 import dataclasses
 import math
+import types
 from dataclasses import dataclass, field
 
 import numpy as np
 
+import astropy.units as u
+
+from ._validate import (check_keys, is_plain, real_number, real_vector, require_mapping, text,
+                        warn_implausible)
 from .galactic import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC, _rot, tangent_basis
 from .units import KMS, to_value
 
@@ -40,6 +45,44 @@ class FrameError(ValueError):
     """Raised for solar-frame parameters that make no physical sense."""
 
 
+_V_SUN_COMPONENTS = ("vx", "vy", "vz")
+
+#: to_dict key -> (field name, unit as written in messages); the one list of the serialised keys.
+_DICT_FIELDS = {"R0_kpc": ("R0", "kpc"), "z_sun_pc": ("z_sun", "pc"), "v_sun_kms": ("v_sun", "km/s"),
+                "roll_deg": ("roll", "deg"), "galcen_ra_deg": ("galcen_ra", "deg"),
+                "galcen_dec_deg": ("galcen_dec", "deg"), "label": ("label", "")}
+_DICT_KEYS = {key: unit for key, (name, unit) in _DICT_FIELDS.items() if name != "label"}
+_FIELD_UNITS = {name: u.Unit(unit) for name, unit in _DICT_FIELDS.values() if name != "label"}
+
+#: Plausibility limits for plain numbers (common practice (no source): the Sun is 7-9 kpc from the
+#: centre, 0-30 pc above the plane, and moves at about 250 km/s). Outside them a value is most likely
+#: in another unit, and an ImplausibleValueWarning says which unit it was taken in.
+R0_PLAUSIBLE_KPC = (1.0, 100.0)
+Z_SUN_MIN_PLAUSIBLE_PC = 1.0
+MAX_PLAUSIBLE_SPEED_KMS = 1000.0
+
+
+def _warn_if_implausible(R0_given, z_sun_given, v_sun_given, R0, z_sun, v_sun):
+    """Warn about plain numbers (no unit stated) that look like a unit slip; Quantities are trusted."""
+    low, high = R0_PLAUSIBLE_KPC
+    if is_plain(R0_given) and not low <= R0 < high:
+        hint = "pc" if R0 >= high else "Mpc"
+        warn_implausible(f"R0 = {R0:g} kpc (plain number, taken in kpc) is implausible for the Sun-centre "
+                         f"distance (expected about 8 kpc); was it given in {hint}? Pass a Quantity to "
+                         f"state the unit.")
+    # z_sun = 0 exactly is a deliberate choice (the Sun in the plane), not a slip.
+    if is_plain(z_sun_given) and 0.0 < abs(z_sun) < Z_SUN_MIN_PLAUSIBLE_PC:
+        warn_implausible(f"z_sun = {z_sun:g} pc (plain number, taken in pc) is implausibly small for the "
+                         f"Sun's height above the mid-plane (expected about 20 pc); was it given in kpc "
+                         f"({z_sun:g} kpc = {1000 * z_sun:g} pc)? Pass a Quantity to state the unit.")
+    if is_plain(v_sun_given):
+        for i, (axis, value) in enumerate(zip(_V_SUN_COMPONENTS, v_sun)):
+            if abs(value) > MAX_PLAUSIBLE_SPEED_KMS:
+                warn_implausible(f"v_sun[{i}] ({axis}) = {value:g} km/s (plain number, taken in km/s) is "
+                                 f"implausibly large for the solar velocity (expected |v| < "
+                                 f"{MAX_PLAUSIBLE_SPEED_KMS:g} km/s); was it given in m/s?")
+
+
 @dataclass(frozen=True)
 class Preset:
     """A named, published solar-frame parameter set."""
@@ -48,6 +91,12 @@ class Preset:
     description: str
     citation: str
     params: dict
+
+    def __post_init__(self):
+        # Read-only parameters (v_sun a tuple), so a Preset handed out by SolarFrame.presets() cannot
+        # change the preset for the rest of the process.
+        params = {k: (tuple(v) if isinstance(v, (list, tuple)) else v) for k, v in dict(self.params).items()}
+        object.__setattr__(self, "params", types.MappingProxyType(params))
 
 
 @dataclass(frozen=True)
@@ -88,7 +137,15 @@ class SolarFrame:
     Raises
     ------
     FrameError
-        If R0 is not positive, z_sun is not smaller than R0, or a value is not finite.
+        If a value is not a real number (strings, booleans, None and nested lists are refused, as is a
+        ``v_sun`` without exactly three components), is not finite, R0 is not positive, or z_sun is
+        not smaller than R0. Each message names the parameter, the value and the unit.
+
+    Warns
+    -----
+    ImplausibleValueWarning
+        For plain numbers that look like a unit slip: R0 < 1 or >= 100 (kpc), 0 < |z_sun| < 1 (pc;
+        probably kpc), a v_sun component above 1000 km/s. Quantities state their unit and are trusted.
 
     Examples
     --------
@@ -106,26 +163,21 @@ class SolarFrame:
     label: str = field(default="", compare=False)
 
     def __post_init__(self):
-        R0 = to_value(self.R0, "kpc", "R0")
-        z_sun = to_value(self.z_sun, "pc", "z_sun")
-        v_sun = to_value(self.v_sun, KMS, "v_sun")
-        v_sun = tuple(float(v) for v in np.atleast_1d(v_sun))
-        roll = to_value(self.roll, "deg", "roll")
-        ra = to_value(self.galcen_ra, "deg", "galcen_ra")
-        dec = to_value(self.galcen_dec, "deg", "galcen_dec")
-        if len(v_sun) != 3:
-            raise FrameError(f"v_sun must have three components (vx, vy, vz) in km/s, got {len(v_sun)}")
-        values = {"R0 [kpc]": R0, "z_sun [pc]": z_sun, "roll [deg]": roll, "galcen_ra [deg]": ra,
-                  "galcen_dec [deg]": dec, "v_sun [km/s]": v_sun}
-        for name, value in values.items():
-            if not np.all(np.isfinite(value)):
-                raise FrameError(f"{name} must be finite, got {value}")
+        # Types first (a string or a boolean is never a number here), then finiteness, then physics.
+        R0 = real_number(self.R0, "R0", "kpc", FrameError)
+        z_sun = real_number(self.z_sun, "z_sun", "pc", FrameError)
+        v_sun = real_vector(self.v_sun, "v_sun", "km/s", FrameError, components=_V_SUN_COMPONENTS)
+        roll = real_number(self.roll, "roll", "deg", FrameError)
+        ra = real_number(self.galcen_ra, "galcen_ra", "deg", FrameError)
+        dec = real_number(self.galcen_dec, "galcen_dec", "deg", FrameError)
+        text(self.label, "label", FrameError)
         if not R0 > 0:
             raise FrameError(f"R0 must be positive, got {R0} kpc")
         if abs(z_sun) >= 1000.0 * R0:
-            raise FrameError(f"|z_sun| = {abs(z_sun)} pc must be smaller than R0 = {R0} kpc")
+            raise FrameError(f"z_sun = {z_sun} pc: |z_sun| must be smaller than R0 = {R0} kpc")
         if not -90.0 <= dec <= 90.0:
             raise FrameError(f"galcen_dec must lie in [-90, 90] deg, got {dec} deg")
+        _warn_if_implausible(self.R0, self.z_sun, self.v_sun, R0, z_sun, v_sun)
         for name, value in (("R0", R0), ("z_sun", z_sun), ("v_sun", v_sun), ("roll", roll),
                             ("galcen_ra", ra), ("galcen_dec", dec)):
             object.__setattr__(self, name, value)
@@ -154,9 +206,15 @@ class SolarFrame:
         SolarFrame
             With ``v_sun = (U, vc + V, W)``.
         """
-        vc = to_value(vc, KMS, "vc")
-        U, V, W = (to_value(x, KMS, n) for x, n in ((U, "U"), (V, "V"), (W, "W")))
-        return cls(R0=R0, z_sun=z_sun, v_sun=(U, vc + V, W), **kwargs)
+        vc_value = real_number(vc, "vc", "km/s", FrameError)
+        U, V, W = (real_number(x, n, "km/s", FrameError) for x, n in ((U, "U"), (V, "V"), (W, "W")))
+        if is_plain(vc) and abs(vc_value) > MAX_PLAUSIBLE_SPEED_KMS:
+            warn_implausible(f"vc = {vc_value:g} km/s (circular velocity, taken in km/s) is implausibly "
+                             f"large for the Milky Way (expected about 200-260 km/s); was it given in m/s?")
+        v_sun = (U, vc_value + V, W)
+        if not all(is_plain(x) for x in (vc, U, V, W)):
+            v_sun = v_sun * KMS  # a stated unit is no slip: do not warn about the sum again
+        return cls(R0=R0, z_sun=z_sun, v_sun=v_sun, **kwargs)
 
     def lsr_motion(self, vc):
         """Solar motion (U, V, W) relative to an LSR of circular velocity ``vc`` (km/s); inverse of from_lsr."""
@@ -181,12 +239,24 @@ class SolarFrame:
 
     @staticmethod
     def presets():
-        """Dictionary of preset name -> :class:`Preset` (description, citation, parameters)."""
+        """Dictionary of preset name -> :class:`Preset` (description, citation, parameters).
+
+        A new dictionary on every call, so the caller may change it freely; the :class:`Preset`
+        entries are frozen and their ``params`` are read-only mappings, so no caller can change a
+        preset for the rest of the process.
+        """
         return dict(_PRESETS)
 
     def replace(self, **changes):
-        """A new frame with some parameters changed (the preset label is cleared unless given)."""
+        """A new frame with some parameters changed (the preset label is cleared unless given).
+
+        Unchanged values are passed on with their units, so only the changed ones are checked for
+        implausible plain numbers (see :class:`~mwkin.units.ImplausibleValueWarning`).
+        """
         changes.setdefault("label", "")
+        for name, unit in _FIELD_UNITS.items():
+            if name not in changes:
+                changes[name] = getattr(self, name) * unit
         return dataclasses.replace(self, **changes)
 
     # ----------------------------------------------------------------- astropy
@@ -230,15 +300,40 @@ class SolarFrame:
 
     @classmethod
     def from_dict(cls, data):
-        """Inverse of :meth:`to_dict`; unknown keys are an error (they are usually typos)."""
-        keys = {"R0_kpc": "R0", "z_sun_pc": "z_sun", "v_sun_kms": "v_sun", "roll_deg": "roll",
-                "galcen_ra_deg": "galcen_ra", "galcen_dec_deg": "galcen_dec", "label": "label"}
-        unknown = set(data) - set(keys)
-        if unknown:
-            raise FrameError(f"unknown solar-frame keys {sorted(unknown)}; expected {sorted(keys)}")
-        kwargs = {keys[k]: v for k, v in data.items()}
-        if "v_sun" in kwargs:
-            kwargs["v_sun"] = tuple(kwargs["v_sun"])
+        """Inverse of :meth:`to_dict`.
+
+        Parameters
+        ----------
+        data : dict
+            Every key :meth:`to_dict` writes: ``R0_kpc``, ``z_sun_pc``, ``v_sun_kms`` (three numbers),
+            ``roll_deg``, ``galcen_ra_deg``, ``galcen_dec_deg``, and optionally ``label`` (text).
+
+        Returns
+        -------
+        SolarFrame
+
+        Raises
+        ------
+        FrameError
+            If ``data`` is not a mapping; for unknown keys (usually typos); for a missing parameter
+            (there are no silent defaults); for a value of the wrong type -- a string, a boolean, a
+            nested list, a ``v_sun`` of the wrong length -- each naming the key, the value and the unit.
+        """
+        data = require_mapping(data, "solar frame", FrameError)
+        check_keys(data, "solar-frame", FrameError, optional=_DICT_FIELDS)
+        # The types of the values given are checked before any missing key is reported, so that
+        # {"v_sun_kms": "245"} is told about the string it holds, not only about what it lacks.
+        for key, (name, unit) in _DICT_FIELDS.items():
+            if key not in data:
+                continue
+            if name == "label":
+                text(data[key], key, FrameError)
+            elif name == "v_sun":
+                real_vector(data[key], key, unit, FrameError, components=_V_SUN_COMPONENTS, finite=False)
+            else:
+                real_number(data[key], key, unit, FrameError, finite=False)
+        check_keys(data, "solar-frame", FrameError, required=_DICT_KEYS, optional={"label": ""})
+        kwargs = {name: data[key] for key, (name, _unit) in _DICT_FIELDS.items() if key in data}
         return cls(**kwargs)
 
     # ----------------------------------------------------------------- geometry

@@ -17,6 +17,7 @@ Conventions
 from __future__ import annotations
 
 import math
+import types
 from dataclasses import dataclass
 
 import astropy.units as u
@@ -24,6 +25,7 @@ import numpy as np
 from astropy.table import QTable
 
 from . import _galpy
+from ._validate import check_keys, is_plain, real_number, require_mapping, text, warn_implausible
 from .units import KMS, to_value
 
 __all__ = ["Potential", "PotentialError", "UnknownPotentialError", "NotSerialisableError", "OortConstants",
@@ -81,9 +83,17 @@ assert set(_PRESETS) == set(_galpy.PRESET_BUILDERS)
 
 #: Defaults of :meth:`Potential.three_component`: MWPotential2014's components (Bovy 2015) written in
 #: physical units (galpy's definition with ro = 8 kpc, vo = 220 km/s), so the defaults give vc(8 kpc) = 220 km/s.
-DEFAULT_BULGE = {"model": "power_law_cutoff", "mass": 4.501365375e9, "alpha": 1.8, "cutoff": 1.9}
-DEFAULT_DISC = {"mass": 6.819390278e10, "a": 3.0, "b": 0.28}
-DEFAULT_HALO = {"mass": 4.368332485e11, "scale": 16.0}
+#: Read-only, so no caller can change the defaults for the rest of the process (``dict(...)`` copies).
+DEFAULT_BULGE = types.MappingProxyType(
+    {"model": "power_law_cutoff", "mass": 4.501365375e9, "alpha": 1.8, "cutoff": 1.9})
+DEFAULT_DISC = types.MappingProxyType({"mass": 6.819390278e10, "a": 3.0, "b": 0.28})
+DEFAULT_HALO = types.MappingProxyType({"mass": 4.368332485e11, "scale": 16.0})
+_DEFAULTS = {"bulge": DEFAULT_BULGE, "disc": DEFAULT_DISC, "halo": DEFAULT_HALO}
+_BULGE_MODELS = ("power_law_cutoff", "hernquist")
+
+#: common practice (no source): no Galactic circular speed comes near 1000 km/s; a larger plain number
+#: is most likely in m/s, and gets an ImplausibleValueWarning.
+MAX_PLAUSIBLE_VC_KMS = 1000.0
 
 # Parameter name -> (unit, lower bound, whether the bound is inclusive) for each component type.
 _PARAMETERS = {
@@ -95,23 +105,39 @@ _PARAMETERS = {
 
 
 def _component_params(kind, given, defaults, label):
-    """Validate one component's parameters; missing ones take the defaults of the same model."""
-    given = dict(given or {})
-    model = given.pop("model", defaults.get("model")) if label == "bulge" else None
-    if label == "bulge" and model not in ("power_law_cutoff", "hernquist"):
-        raise PotentialError(f"bulge model must be 'power_law_cutoff' or 'hernquist', got {model!r}")
+    """Validate one component's parameters.
+
+    ``defaults`` is the component's default mapping (missing parameters of the same model take its
+    values, as :meth:`Potential.three_component` documents), or None when every parameter is
+    required (:meth:`Potential.from_dict`: no silent defaults).
+    """
+    if given is None and defaults is not None:
+        given = {}
+    given = require_mapping(given, label, PotentialError)
+    if label == "bulge":
+        if "model" not in given and defaults is None:
+            raise PotentialError("bulge: missing required key(s) 'model' (one of "
+                                 f"{', '.join(repr(m) for m in _BULGE_MODELS)})")
+        model = given.pop("model", None if defaults is None else defaults.get("model"))
+        if not isinstance(model, str) or model not in _BULGE_MODELS:
+            raise PotentialError(f"bulge model must be 'power_law_cutoff' or 'hernquist', got {model!r}")
+    else:
+        model = None
     spec = _PARAMETERS[model if label == "bulge" else kind]
     unknown = set(given) - set(spec)
     if unknown:
         raise PotentialError(f"unknown {label} parameter(s) {sorted(unknown)}; expected {sorted(spec)}")
-    base = defaults if (label != "bulge" or model == defaults.get("model")) else {}
+    if defaults is None:
+        base = {}
+    else:
+        base = defaults if (label != "bulge" or model == defaults.get("model")) else {}
     out = {"model": model} if label == "bulge" else {}
     for name, (unit, low, inclusive) in spec.items():
         if name not in given and name not in base:
             raise PotentialError(f"{label} parameter {name!r} ({unit or 'dimensionless'}) is required")
         value = given.get(name, base.get(name))
-        value = to_value(value, unit or u.dimensionless_unscaled, f"{label}.{name}")
-        if np.ndim(value) != 0 or not math.isfinite(value) or not (value >= low if inclusive else value > low):
+        value = real_number(value, f"{label}.{name}", unit, PotentialError, finite=False)
+        if not math.isfinite(value) or not (value >= low if inclusive else value > low):
             bound = f">= {low}" if inclusive else f"> {low}"
             raise PotentialError(f"{label}.{name} must be a finite number {bound} {unit}, got {value!r}")
         out[name] = float(value)
@@ -227,7 +253,8 @@ class Potential:
         Raises
         ------
         PotentialError
-            For an unknown parameter or a value that is not finite and positive.
+            For an unknown parameter, a component that is not a dict, a value that is not a real
+            number (strings and booleans included) or not finite and positive.
 
         Notes
         -----
@@ -241,11 +268,14 @@ class Potential:
         Miyamoto & Nagai 1975, PASJ 27, 533; Navarro, Frenk & White 1997, ApJ 490, 493;
         Hernquist 1990, ApJ 356, 359; Bovy 2015, ApJS 216, 29.
         """
-        params = {
-            "bulge": _component_params("bulge", bulge, DEFAULT_BULGE, "bulge"),
-            "disc": _component_params("disc", disc, DEFAULT_DISC, "disc"),
-            "halo": _component_params("halo", halo, DEFAULT_HALO, "halo"),
-        }
+        return cls._three_component({"bulge": bulge, "disc": disc, "halo": halo}, name, _DEFAULTS)
+
+    @classmethod
+    def _three_component(cls, given, name, defaults):
+        """three_component with the defaults to use per component (None entries: all required)."""
+        name = text(name, "name", PotentialError)
+        params = {label: _component_params(label, given[label], defaults.get(label), label)
+                  for label in ("bulge", "disc", "halo")}
         model = _galpy.three_component_model(**params)
         return cls(model, name=name, citation="", kind="three_component",
                    component_names=("bulge", "disc", "halo"),
@@ -300,11 +330,25 @@ class Potential:
         -------
         Potential
             vc(R') scales by the same factor at every radius; orbital times scale inversely.
+
+        Raises
+        ------
+        PotentialError
+            If vc or R is not a positive, finite real number.
+
+        Warns
+        -----
+        ImplausibleValueWarning
+            For a plain-number ``vc`` above 1000 km/s (probably m/s).
         """
-        vc = to_value(vc, KMS, "vc")
-        R = to_value(R, "kpc", "R")
-        if not (np.ndim(vc) == 0 and np.ndim(R) == 0 and vc > 0 and R > 0 and math.isfinite(vc * R)):
+        vc_given = vc
+        vc = real_number(vc, "vc", "km/s", PotentialError, finite=False)
+        R = real_number(R, "R", "kpc", PotentialError, finite=False)
+        if not (vc > 0 and R > 0 and math.isfinite(vc * R)):
             raise PotentialError(f"scaled_to needs a positive vc (km/s) and R (kpc), got vc={vc}, R={R}")
+        if is_plain(vc_given) and vc > MAX_PLAUSIBLE_VC_KMS:
+            warn_implausible(f"vc = {vc:g} km/s (plain number, taken in km/s) is implausibly large for a "
+                             f"circular velocity (expected about 200-260 km/s); was it given in m/s?")
         base = self._unscaled_model()
         now2 = float(base.vc2_kms2(R))
         if not now2 > 0:
@@ -346,28 +390,40 @@ class Potential:
     def from_dict(cls, data):
         """Inverse of :meth:`to_dict`.
 
+        Parameters
+        ----------
+        data : dict
+            ``{"kind": "preset", "name": ...}`` or ``{"kind": "three_component", "name": ..., "bulge":
+            {...}, "disc": {...}, "halo": {...}}`` with every parameter of every component (the bulge
+            with its ``model``), and optionally ``"scaled_to": {"vc_kms": ..., "R_kpc": ...}``.
+
         Raises
         ------
         PotentialError
-            For an unknown kind or unknown keys.
+            For a ``data`` that is not a mapping, an unknown kind, unknown or missing keys, or a value
+            of the wrong type, each named. Unlike :meth:`three_component` there are no defaults: a
+            missing physical parameter is an error naming it.
         """
-        data = dict(data)
+        data = require_mapping(data, "potential", PotentialError)
+        if "kind" not in data:
+            raise PotentialError("potential: missing required key(s) 'kind' ('preset' or 'three_component')")
+        kind = data.pop("kind")
         scale = data.pop("scaled_to", None)
-        kind = data.pop("kind", None)
         if kind == "preset":
-            unknown = set(data) - {"name"}
-            if unknown:
-                raise PotentialError(f"unknown preset keys {sorted(unknown)}")
-            pot = cls.preset(data["name"])
+            check_keys(data, "preset", PotentialError, required=("name",))
+            pot = cls.preset(text(data["name"], "name", PotentialError))
         elif kind == "three_component":
-            unknown = set(data) - {"name", "bulge", "disc", "halo"}
-            if unknown:
-                raise PotentialError(f"unknown three_component keys {sorted(unknown)}")
-            pot = cls.three_component(**data)
+            check_keys(data, "three_component", PotentialError, required=("bulge", "disc", "halo"),
+                       optional=("name",))
+            name = data.pop("name", "bulge + disc + halo")
+            pot = cls._three_component(data, name, {})
         else:
             raise PotentialError(f"unknown potential kind {kind!r}; expected 'preset' or 'three_component'")
         if scale is not None:
-            pot = pot.scaled_to(scale["vc_kms"], scale["R_kpc"])
+            scale = require_mapping(scale, "scaled_to", PotentialError)
+            check_keys(scale, "scaled_to", PotentialError, required={"vc_kms": "km/s", "R_kpc": "kpc"})
+            pot = pot.scaled_to(real_number(scale["vc_kms"], "scaled_to.vc_kms", "km/s", PotentialError),
+                                real_number(scale["R_kpc"], "scaled_to.R_kpc", "kpc", PotentialError))
         return pot
 
     def describe(self):

@@ -10,7 +10,7 @@ from __future__ import annotations
 import numpy as np
 import astropy.units as u
 
-__all__ = ["UnitMismatchError", "to_value", "KMS", "MASYR"]
+__all__ = ["UnitMismatchError", "ImplausibleValueWarning", "to_value", "KMS", "MASYR"]
 
 KMS = u.km / u.s
 MASYR = u.mas / u.yr
@@ -18,6 +18,15 @@ MASYR = u.mas / u.yr
 
 class UnitMismatchError(ValueError):
     """A value carries a unit that cannot be converted to the one expected."""
+
+
+class ImplausibleValueWarning(UserWarning):
+    """A plain number far outside the physically plausible range for its documented unit.
+
+    Usually a unit slip (``z_sun=0.0208`` typed in kpc where pc is documented, ``R0=8122`` in pc where
+    kpc is). The value is used as given; the message names it and the unit it was taken in. Pass an
+    astropy Quantity to state the unit explicitly, or filter the warning if the value is meant.
+    """
 
 
 def to_value(value, unit, name):
