@@ -46,12 +46,16 @@ import os
 
 import numpy as np
 import astropy.units as u
+from astropy.constants import c as speed_of_light
 from astropy.table import QTable, Table
 from astropy.utils.masked import Masked
+
+from .distances import SUSPICIOUS_MEDIAN_KPC, warn_if_distances_look_like_pc
 
 __all__ = [
     "CatalogError",
     "read_catalog",
+    "RA_LIMIT_DEG",
     "STANDARD_UNITS",
     "CORRELATION_COLUMNS",
     "ERROR_COLUMNS",
@@ -274,6 +278,29 @@ _SUFFIXES = {
 _COMPRESSION_SUFFIXES = (".gz", ".bz2", ".xz")
 
 _N_SHOWN = 5  # offending rows quoted in an error message
+_BOM = "\ufeff"  # the byte order mark, as a character
+_TEXT_FORMATS = ("ascii.csv", "ascii.ecsv")  # the formats encoding= applies to
+_DEFAULT_ENCODING = "utf-8-sig"  # UTF-8, with a byte order mark (if any) removed
+
+RA_LIMIT_DEG = 1080.0
+"""Largest ``|ra|`` accepted (three full turns); values beyond are refused, not wrapped.
+
+Right ascensions in [-180, 180) or shifted by a turn are common and are wrapped into [0, 360), but a
+value beyond a few turns is no right ascension at all (a unit mix-up, a corrupted file), and wrapping
+it would hide that."""
+
+_C_KMS = float(speed_of_light.to_value(u.km / u.s))  # no radial velocity reaches it
+_TINY = np.finfo(np.float64).tiny  # smallest normal float64; nonzero values below it are subnormal
+
+
+def _key(name):
+    """The form of a column name used for matching: blanks and a leading byte order mark removed, lower case.
+
+    A byte order mark (U+FEFF) glued to the first column name is what a UTF-8 file written with a BOM
+    gives when it is read without stripping it (e.g. by pandas or by astropy without ``encoding``); the
+    name is still recognised, and the renaming is recorded in ``meta["renamed"]``.
+    """
+    return str(name).strip().lstrip(_BOM).strip().lower()
 
 
 def _alias_lookup(aliases):
@@ -286,7 +313,7 @@ def _alias_lookup(aliases):
                 f"aliases: {alias!r} is mapped to {std!r}, which is not a standard column name; "
                 f"standard names are: {', '.join(_STANDARD_NAMES)}"
             )
-        lookup[str(alias).strip().lower()] = std
+        lookup[_key(alias)] = std
     return lookup
 
 
@@ -315,15 +342,48 @@ def _column_label(std, original):
     return f"column {std!r}" if original == std else f"column {std!r} (input column {original!r})"
 
 
+def _is_blank(value):
+    return isinstance(value, (str, bytes)) and not value.strip()
+
+
 def _text_rows(data):
-    """Row numbers of entries that do not read as numbers; only used to build an error message."""
+    """Row numbers of entries that do not read as numbers (blank text is missing, not bad); only used
+    to build an error message."""
     bad = []
     for i, value in enumerate(data.tolist()):
+        if _is_blank(value):
+            continue
         try:
             float(value)
         except (TypeError, ValueError):
             bad.append(i)
     return bad
+
+
+def _parse_text(data):
+    """Float64 values of a column of numbers written as text, or None if an entry is not a number.
+
+    The rule is the one astropy's CSV reader applies to a CSV file, so that the same text gives the
+    same numbers whether it comes from a CSV file, a Parquet or FITS string column or a table in
+    memory: surrounding blanks are ignored, a blank entry is missing (NaN), anything else must read as
+    a number. Objects that are neither text nor numbers (None, for instance) are not numbers.
+    """
+    if data.dtype.kind == "O":
+        out = np.empty(data.shape, dtype=np.float64)
+        for i, value in enumerate(data.tolist()):
+            if _is_blank(value):
+                out[i] = np.nan
+                continue
+            try:
+                out[i] = float(value)
+            except (TypeError, ValueError):
+                return None
+        return out
+    try:
+        text = np.char.strip(np.char.decode(data, "ascii") if data.dtype.kind == "S" else data)
+        return np.where(text == "", "nan", text).astype(np.float64)
+    except (TypeError, ValueError):  # UnicodeDecodeError is a ValueError
+        return None
 
 
 def _as_float(col, label, copy):
@@ -354,7 +414,10 @@ def _as_float(col, label, copy):
             # One copy for in-memory input, so that editing the result never edits the input.
             values = np.array(data, dtype=np.float64, copy=True if copy else None)
         except (TypeError, ValueError):
-            pass
+            if kind == "O":
+                values = _parse_text(data)
+    else:  # text: one rule whatever the source (CSV, Parquet or FITS strings, an in-memory table)
+        values = _parse_text(data)
     if values is None:  # text, or objects that are not all numbers
         rows = [i for i in _text_rows(data) if mask is None or not mask[i]]
         if rows:
@@ -380,7 +443,7 @@ def _resolve_unit(std, original, unit, stated, label):
     if unit is not None and unit == u.dimensionless_unscaled:
         unit = None  # an empty unit string means "not stated"
     if unit is None:
-        return stated or ALIAS_UNITS.get(original.strip().lower()) or STANDARD_UNITS[std], None
+        return stated or ALIAS_UNITS.get(_key(original)) or STANDARD_UNITS[std], None
     if stated is not None and not (unit.is_equivalent(stated) and unit.to(stated) == 1.0):
         return None, (
             f"{label} carries the unit {unit.to_string()!r} but units= says {stated.to_string()!r}; "
@@ -393,27 +456,38 @@ _SCAN_BLOCK = 1 << 16  # values per block of _Summary (512 kB, fits the processo
 
 
 class _Summary:
-    """Lowest and highest value (ignoring NaN) and the NaN entries of a column, from one or two passes.
+    """Lowest and highest value (ignoring NaN), the NaN entries and whether there are subnormal values
+    of a column, from one or two passes.
 
     Most columns have no NaN and nothing out of range: two reductions then settle every check, and
-    the row-by-row checks run only for the columns that need them.
+    the row-by-row checks run only for the columns that need them. Subnormal numbers (nonzero, smaller
+    in size than the smallest normal float64, ~2.2e-308) need a third pass only over the blocks that
+    reach into that band around zero.
     """
 
-    __slots__ = ("lo", "hi", "n_nan", "isnan")
+    __slots__ = ("lo", "hi", "n_nan", "isnan", "subnormal")
 
     def __init__(self, values):
         self.isnan = None
+        self.subnormal = False
         if values.size == 0:
             self.lo = self.hi = math.nan
             self.n_nan = 0
             return
         lo, hi = math.inf, -math.inf
-        for start in range(0, values.size, _SCAN_BLOCK):  # both reductions while the block is in cache
+        scratch = None
+        for start in range(0, values.size, _SCAN_BLOCK):  # the reductions while the block is in cache
             block = values[start:start + _SCAN_BLOCK]
             b_lo, b_hi = float(block.min()), float(block.max())  # NaN if any value is NaN
             if math.isnan(b_lo) or math.isnan(b_hi):
                 break
             lo, hi = min(lo, b_lo), max(hi, b_hi)
+            if b_lo < _TINY and b_hi > -_TINY and not self.subnormal:  # the block reaches near zero
+                if scratch is None:
+                    scratch = np.empty(min(values.size, _SCAN_BLOCK))
+                size = np.abs(block, out=scratch[:block.size])
+                if float(size.min()) < _TINY:  # zero or subnormal: tell them apart
+                    self.subnormal = _has_subnormal(size)
         else:
             self.n_nan = 0
             self.lo, self.hi = lo, hi
@@ -421,13 +495,26 @@ class _Summary:
         self.isnan = np.isnan(values)
         self.n_nan = int(np.count_nonzero(self.isnan))
         self.lo, self.hi = float(np.fmin.reduce(values)), float(np.fmax.reduce(values))  # NaN only if all are
+        self.subnormal = (self.lo < _TINY and self.hi > -_TINY) and _has_subnormal(np.abs(values))
 
     def within(self, lo, hi, lo_open=False):
-        """True if every non-NaN value is finite and in [lo, hi] (lo excluded with ``lo_open``)."""
+        """True if every non-NaN value is finite, normal (or zero) and in [lo, hi] (lo excluded with
+        ``lo_open``)."""
         if math.isnan(self.lo):  # no rows, or only NaN, which always passes
             return True
         above = self.lo > lo if lo_open else self.lo >= lo
-        return bool(above and self.hi <= hi and math.isfinite(self.lo) and math.isfinite(self.hi))
+        return bool(above and self.hi <= hi and math.isfinite(self.lo) and math.isfinite(self.hi)
+                    and not self.subnormal)
+
+
+def _has_subnormal(size):
+    """True if any of the absolute values ``size`` is subnormal (NaN is not)."""
+    return bool(np.any((size > 0.0) & (size < _TINY)))
+
+
+def _subnormal_mask(values):
+    size = np.abs(values)
+    return (size > 0.0) & (size < _TINY)
 
 
 def _summaries(columns):
@@ -446,9 +533,12 @@ def _summaries(columns):
     return out
 
 
-# Range of the values each kind of column may take (beyond being finite), and whether the lower end
-# is excluded; used by _range_problems to skip the row-by-row checks when the column is clean.
+# Range of the values each kind of column may take (beyond being finite and not subnormal), and
+# whether the lower end is excluded; used by _range_problems to skip the row-by-row checks when the
+# column is clean.
 def _allowed_range(std):
+    if std == "ra":
+        return -RA_LIMIT_DEG, RA_LIMIT_DEG, False
     if std == "dec":
         return -90.0, 90.0, False
     if std in ERROR_COLUMNS:
@@ -457,15 +547,26 @@ def _allowed_range(std):
         return -1.0, 1.0, False
     if std == "distance":
         return 0.0, math.inf, True
+    if std == "radial_velocity":
+        return -math.nextafter(_C_KMS, 0.0), math.nextafter(_C_KMS, 0.0), False
     return -math.inf, math.inf, False
 
 
 def _range_problems(std, values, label, unit, summary=None):
-    """Checks of the values themselves (NaN always passes)."""
+    """Checks of the values themselves (NaN always passes).
+
+    Besides the physical ranges, subnormal numbers are refused in every column: no measurement
+    gives a value below ~2.2e-308 in these units, while a damaged file (a corrupted Parquet data
+    page, for instance) easily does.
+    """
     if summary is not None and summary.within(*_allowed_range(std)):
         return []
     checks = [(np.isinf(values), "infinite values at")]
-    if std == "dec":
+    if std == "ra":
+        checks.append((np.abs(values) > RA_LIMIT_DEG,
+                       f"values beyond +-{RA_LIMIT_DEG:g} deg (three turns; not wrapped: no right "
+                       f"ascension is written like that, check the unit or the file) at"))
+    elif std == "dec":
         checks.append(((values < -90.0) | (values > 90.0), "values outside [-90, 90] deg at"))
     elif std in ERROR_COLUMNS:
         checks.append((values < 0.0, "negative uncertainties at"))
@@ -473,6 +574,13 @@ def _range_problems(std, values, label, unit, summary=None):
         checks.append(((values < -1.0) | (values > 1.0), "correlations outside [-1, 1] at"))
     elif std == "distance":
         checks.append((values <= 0.0, "distances that are not positive at"))
+    elif std == "radial_velocity":
+        checks.append(((np.abs(values) >= _C_KMS) & np.isfinite(values),
+                       f"speeds of light ({_C_KMS:.6g} km/s) or more at"))
+    if summary is None or summary.subnormal:
+        checks.append((_subnormal_mask(values),
+                       "subnormal values (nonzero and below 2.2e-308 in size, which no measurement gives: "
+                       "is the file damaged?) at"))
     problems = []
     for bad, what in checks:
         if bad.any():
@@ -498,11 +606,16 @@ def _wrap_ra(values, summary=None, writable=True):
     return values, n
 
 
-def _load(source, format):
+def _load(source, format, encoding=None):
     """Return (table, description, owned, format used or None)."""
+    text_only = f"encoding= applies only to CSV and ECSV files (text), got encoding={encoding!r} for "
     if isinstance(source, Table):
+        if encoding is not None:
+            raise CatalogError(text_only + "an astropy Table")
         return source, "astropy Table", False, None
     if type(source).__module__.split(".")[0] == "pandas" and hasattr(source, "columns"):
+        if encoding is not None:
+            raise CatalogError(text_only + "a pandas DataFrame")
         duplicated = list(source.columns[source.columns.duplicated()])
         if duplicated:
             raise CatalogError(f"the DataFrame has more than one column named {duplicated}")
@@ -520,24 +633,163 @@ def _load(source, format):
             raise CatalogError(f"file not found: {path}")
         fmt = format or _format_from_suffix(path)
         astropy_format = _FORMATS.get(fmt, fmt)
-        if astropy_format == "ascii.csv" and _looks_like_ecsv(path):
+        if astropy_format == "ascii.csv" and _looks_like_ecsv(path, encoding):
             astropy_format = "ascii.ecsv"
-        return _read_file(path, astropy_format, path), path, True, astropy_format
+        if encoding is not None and astropy_format not in _TEXT_FORMATS:
+            raise CatalogError(text_only + f"{path} (read as {astropy_format})")
+        _check_header(path, astropy_format, encoding, path)
+        return _read_file(path, astropy_format, path, encoding), path, True, astropy_format
     if hasattr(source, "read"):
         if format is None:
             raise CatalogError("a file object needs format= (one of: " + ", ".join(_FORMATS) + ")")
-        return _read_file(source, _FORMATS.get(format, format), "file object"), "file object", True, format
+        astropy_format = _FORMATS.get(format, format)
+        if encoding is not None and astropy_format not in _TEXT_FORMATS:
+            raise CatalogError(text_only + f"a file object read as {astropy_format}")
+        if _seekable(source):  # look at the header, then go back to where the reader starts
+            position = source.tell()
+            try:
+                _check_header(source, astropy_format, encoding, "file object")
+            finally:
+                source.seek(position)
+        return _read_file(source, astropy_format, "file object", encoding), "file object", True, format
     raise CatalogError(
         f"cannot read a catalogue from a {type(source).__name__}; give a file path, an astropy Table "
         f"or QTable, or a pandas DataFrame"
     )
 
 
-def _read_file(source, astropy_format, description):
+def _seekable(fileobj):
     try:
-        return Table.read(source, format=astropy_format)
+        return bool(fileobj.seekable())
+    except (AttributeError, OSError, ValueError):
+        return False
+
+
+def _read_file(source, astropy_format, description, encoding=None):
+    kwargs = {}
+    if astropy_format in _TEXT_FORMATS:
+        kwargs["encoding"] = encoding or _DEFAULT_ENCODING
+    try:
+        return Table.read(source, format=astropy_format, **kwargs)
+    except UnicodeDecodeError as exc:
+        raise CatalogError(_decode_problem(description, exc, kwargs["encoding"], encoding is None)) from None
     except Exception as exc:
         raise CatalogError(f"could not read {description} as {astropy_format}: {exc}") from exc
+
+
+def _decode_problem(description, exc, used, default):
+    """Message for a text file that is not in the encoding it was read with."""
+    bad = exc.object[exc.start:exc.start + 4] if isinstance(exc.object, bytes) else b""
+    where = ""
+    if isinstance(exc.object, bytes) and len(exc.object) > exc.start:
+        line = exc.object.count(b"\n", 0, exc.start) + 1
+        where = f" at line {line} (byte {exc.start} of the text)"
+    if bad[:2] in (b"\xff\xfe", b"\xfe\xff") and exc.start == 0:
+        hint = "it starts with a UTF-16 byte order mark: pass encoding='utf-16'"
+    elif default:
+        hint = ("it is not UTF-8, so it is probably in a legacy 8-bit encoding such as Latin-1 "
+                "(ISO-8859-1) or Windows-1252: pass encoding='latin-1' (or the file's real encoding)")
+    else:
+        hint = "pass the file's real encoding as encoding="
+    return (f"could not read {description} as {used} text: byte {bad[:1]!r}{where} cannot be decoded "
+            f"({exc.reason}); {hint}")
+
+
+def _duplicates(names):
+    """{name: [0-based positions]} for every name given more than once (blanks around it ignored)."""
+    positions = {}
+    for i, name in enumerate(names):
+        positions.setdefault(str(name).strip().lstrip(_BOM), []).append(i)
+    return {name: where for name, where in positions.items() if len(where) > 1}
+
+
+def _header_names(source, astropy_format, encoding):
+    """Column names as written in the file (before any reader renames a repeated one), or None.
+
+    A reader that meets a repeated column name renames the later one (astropy's CSV, ECSV and
+    VOTable readers append ``_1``, ``_2``) or fails with an obscure message (Parquet, FITS), so the
+    names are taken from the header itself: the first line of a CSV file, the column line of an ECSV
+    file, the TTYPEn keywords of the first FITS table, the FIELDs of the first VOTable table (their
+    IDs where given, as astropy uses them), the Parquet schema.
+    """
+    if astropy_format in _TEXT_FORMATS:
+        return _text_header_names(source, astropy_format, encoding or _DEFAULT_ENCODING)
+    if astropy_format == "parquet":
+        import pyarrow.parquet as pq
+
+        return list(pq.read_schema(source).names)
+    if astropy_format == "fits":
+        from astropy.io import fits
+
+        with fits.open(source) as hdus:
+            for hdu in hdus:
+                if isinstance(hdu, (fits.BinTableHDU, fits.TableHDU)):
+                    header = hdu.header
+                    return [str(header.get(f"TTYPE{i}", "")) for i in range(1, header.get("TFIELDS", 0) + 1)]
+        return None
+    if astropy_format == "votable":
+        return _votable_field_names(source)
+    return None
+
+
+def _text_header_names(source, astropy_format, encoding):
+    """The column line of a CSV file (its first non-blank line; astropy's CSV reader knows no comment
+    lines) or of an ECSV file (the first line after the '#' header, split at the delimiter the
+    header states, a blank by default)."""
+    import csv
+
+    from astropy.utils.data import get_readable_fileobj
+
+    ecsv = astropy_format == "ascii.ecsv"
+    delimiter = " " if ecsv else ","
+    with get_readable_fileobj(source, encoding=encoding) as fh:
+        for line in fh:
+            if ecsv and line.lstrip().startswith("#"):
+                stated = line.lstrip().lstrip("#").strip()
+                if stated.startswith("delimiter:"):
+                    delimiter = stated.split(":", 1)[1].strip().strip("'\"") or " "
+                continue
+            if line.strip():
+                return next(csv.reader([line.rstrip("\r\n")], delimiter=delimiter, skipinitialspace=True))
+    return None
+
+
+def _votable_field_names(source):
+    """Names astropy gives the columns of the first VOTable table: each FIELD's ID, else its name."""
+    import xml.etree.ElementTree as ElementTree
+
+    from astropy.utils.data import get_readable_fileobj
+
+    names, depth = [], 0
+    with get_readable_fileobj(source, encoding="binary") as fh:
+        for event, element in ElementTree.iterparse(fh, events=("start", "end")):
+            tag = element.tag.rsplit("}", 1)[-1]
+            if tag == "TABLE":
+                depth += 1 if event == "start" else -1
+                if event == "end":
+                    break
+            elif tag == "FIELD" and event == "start" and depth == 1:
+                names.append(element.get("ID") or element.get("name") or "")
+            elif tag == "DATA" and event == "start":
+                break
+    return names
+
+
+def _check_header(source, astropy_format, encoding, description):
+    """Refuse a file whose header gives one column name twice (see :func:`_header_names`)."""
+    try:
+        names = _header_names(source, astropy_format, encoding)
+    except Exception:  # noqa: BLE001 - an unreadable file is reported by the reader itself, with its message
+        return
+    repeated = _duplicates(names or [])
+    if repeated:
+        text = "; ".join(f"{name!r} is columns {' and '.join(str(i + 1) for i in where)}"
+                         for name, where in repeated.items())
+        raise CatalogError(
+            f"{description}: the header gives a column name more than once ({text}, counting from 1); "
+            f"a reader would keep the first and silently rename the others. Rename or drop the "
+            f"repeated columns first"
+        )
 
 
 def _format_from_suffix(path):
@@ -554,18 +806,18 @@ def _format_from_suffix(path):
     return _SUFFIXES[ext]
 
 
-def _looks_like_ecsv(path):
+def _looks_like_ecsv(path, encoding=None):
     """Gaia archive 'CSV' downloads may really be ECSV, which keeps the units."""
     from astropy.utils.data import get_readable_fileobj
 
     try:
-        with get_readable_fileobj(path, encoding="utf-8") as fh:
+        with get_readable_fileobj(path, encoding=encoding or _DEFAULT_ENCODING) as fh:
             return fh.readline().startswith("# %ECSV")
-    except (OSError, UnicodeDecodeError):
+    except (OSError, UnicodeDecodeError, LookupError):
         return False
 
 
-def read_catalog(source, *, format=None, aliases=None, units=None):
+def read_catalog(source, *, format=None, aliases=None, units=None, encoding=None):
     """Read a star catalogue into a table with standard columns, units and checks.
 
     Parameters
@@ -584,6 +836,9 @@ def read_catalog(source, *, format=None, aliases=None, units=None):
     units : dict, optional
         ``{column: unit}`` (standard or input name; unit as a string or astropy unit) for columns that
         carry no unit, e.g. ``{"parallax": "arcsec"}``.
+    encoding : str, optional
+        Text encoding of a CSV or ECSV file, e.g. ``"latin-1"`` (any name Python's codecs know).
+        Default: UTF-8, with a leading byte order mark removed. Not allowed for other sources.
 
     Returns
     -------
@@ -604,12 +859,24 @@ def read_catalog(source, *, format=None, aliases=None, units=None):
     Raises
     ------
     CatalogError
-        If the file cannot be read; a required column is missing; two input columns give the same
-        standard column; a column is not numeric; a unit is unknown or cannot be converted to the
-        standard unit; or any value is out of range: ``dec`` outside [-90, 90] deg, an uncertainty
-        below zero, a correlation outside [-1, 1], a ``distance`` of zero or less, or an infinite
-        value. Problems with values are collected and reported together, each with the column, the
-        first few offending rows (0-based positions), their count and the values in standard units.
+        If the file cannot be read (a text file not in the encoding, named with the first byte that
+        does not decode and a likely encoding); the file's header gives one column name twice (CSV,
+        ECSV, FITS, VOTable, Parquet; a DataFrame with two columns of one name likewise); a required
+        column is missing (with the likely cause when the file uses ``;``, tab or ``|`` as delimiter);
+        two input columns give the same standard column (e.g. ``pmra`` and ``pm_ra``); a column is not
+        numeric; a unit is unknown or cannot be converted to the standard unit; or any value is out of
+        range: ``|ra|`` beyond :data:`RA_LIMIT_DEG`, ``dec`` outside [-90, 90] deg, an uncertainty
+        below zero, a correlation outside [-1, 1], a ``distance`` of zero or less, a
+        ``radial_velocity`` of the speed of light or more, an infinite value, or a subnormal value
+        (nonzero and below ~2.2e-308 in size; no measurement gives one, a damaged file does). Problems
+        with values are collected and reported together, each with the column, the first few
+        offending rows (0-based positions), their count and the values in standard units.
+
+    Warns
+    -----
+    mwkin.distances.DistanceUnitWarning
+        If a ``distance`` column has no stated unit (neither its own, ``units=`` nor its name) and
+        its median exceeds :data:`mwkin.distances.SUSPICIOUS_MEDIAN_KPC` (50 kpc): probably pc.
 
     Notes
     -----
@@ -623,8 +890,14 @@ def read_catalog(source, *, format=None, aliases=None, units=None):
       without one is taken in the unit given by ``units``, else the unit its name states
       (:data:`ALIAS_UNITS`, e.g. ``distance_pc``), else the standard unit. CSV files and DataFrames
       carry no units.
-    - Any finite ``ra`` is accepted and wrapped into [0, 360) deg. Parallaxes may be zero or negative
-      (as measured); distances may not.
+    - A finite ``ra`` with ``|ra| <= RA_LIMIT_DEG`` (1080 deg, three turns) is accepted and wrapped
+      into [0, 360) deg; larger values are refused, never wrapped (``ra = 1e20`` is no direction).
+      Parallaxes may be zero or negative (as measured); distances may not.
+    - Numbers written as text (a CSV field, a Parquet, FITS or in-memory string column) follow one
+      rule, whatever the source: blanks around them are ignored, a blank entry is missing (NaN), any
+      other entry that does not read as a number is refused, naming the column and the rows.
+    - Column names are matched ignoring a leading byte order mark; a CSV/ECSV file that starts with
+      a UTF-8 byte order mark is read as if it had none.
     - NaN (and masked or empty entries, which become NaN) are allowed and never dropped. ``has_nan``
       is True where any of ``ra``, ``dec``, ``pmra``, ``pmdec``, the distance column (``distance``
       when present, else ``parallax``) or -- only if the input has one with at least one value --
@@ -646,10 +919,10 @@ def read_catalog(source, *, format=None, aliases=None, units=None):
     >>> stars.meta["filled_with_nan"], bool(stars["has_nan"].any())
     (['radial_velocity'], False)
     """
-    return _read_catalog(source, format, aliases, units, copy=True)
+    return _read_catalog(source, format, aliases, units, copy=True, encoding=encoding)
 
 
-def _read_catalog(source, format=None, aliases=None, units=None, copy=True):
+def _read_catalog(source, format=None, aliases=None, units=None, copy=True, encoding=None):
     """:func:`read_catalog`; ``copy=False`` lets the standard columns share an in-memory input's memory.
 
     For callers that only read the standard columns and never hand them back to the user
@@ -657,25 +930,26 @@ def _read_catalog(source, format=None, aliases=None, units=None, copy=True):
     only the copy is left out where no value has to change (unit conversion, masks and wrapped right
     ascensions still give copies, never edits of the input).
     """
-    table, description, owned, used_format = _load(source, format)
+    table, description, owned, used_format = _load(source, format, encoding)
     lookup = _alias_lookup(aliases)
 
     # Which input column is which standard column.
-    lowered = {name.strip().lower(): name for name in table.colnames}
+    lowered = {_key(name): name for name in table.colnames}
     for alias in aliases or {}:
-        if str(alias).strip().lower() not in lowered:
+        if _key(alias) not in lowered:
             raise CatalogError(
                 f"aliases: there is no column {alias!r}; columns found: {_list_names(table.colnames)}"
             )
     found = {}
     for name in table.colnames:
-        std = lookup.get(name.strip().lower())
+        std = lookup.get(_key(name))
         if std is not None:
             found.setdefault(std, []).append(name)
     clashes = {std: names for std, names in found.items() if len(names) > 1}
     if clashes:
         raise CatalogError(
-            "; ".join(
+            f"{description}: "
+            + "; ".join(
                 f"columns {' and '.join(repr(n) for n in names)} all give the standard column {std!r}"
                 for std, names in clashes.items()
             )
@@ -695,6 +969,7 @@ def _read_catalog(source, format=None, aliases=None, units=None, copy=True):
             f"missing required column(s): {', '.join(missing)}. Columns found: "
             f"{_list_names(table.colnames)}. Names recognised (any case): {hints}. "
             f"Pass aliases={{'your_column': 'standard_name'}} for other names"
+            + _missing_column_cause(table.colnames, lookup, description)
         )
 
     stated_units = {}
@@ -725,6 +1000,9 @@ def _read_catalog(source, format=None, aliases=None, units=None, copy=True):
             found_here.append(unit)
             continue
         writable = ours or owned
+        # The unit is an assumption when neither the column, units= nor the name states one.
+        assumed = ((unit is None or unit == u.dimensionless_unscaled) and std not in stated_units
+                   and _key(original) not in ALIAS_UNITS)
         unit, problem = _resolve_unit(std, original, unit, stated_units.get(std), label)
         if problem:
             found_here.append(problem)
@@ -743,16 +1021,18 @@ def _read_catalog(source, format=None, aliases=None, units=None, copy=True):
                 values *= scale
             else:
                 values, writable = values * scale, True
-        pending.append((std, label, values, writable, target, found_here))
+        pending.append((std, label, values, writable, target, found_here, assumed))
     converted = {}
     summaries = {}
     ra_wrapped = 0
-    for (std, label, values, writable, target, found_here), summary in zip(
+    unit_assumed = {}
+    for (std, label, values, writable, target, found_here, assumed), summary in zip(
             pending, _summaries([item[2] for item in pending])):
-        if std == "ra":
-            # Wrapping moves finite values only, so the summary still tells about infinities.
-            values, ra_wrapped = _wrap_ra(values, summary, writable)
+        unit_assumed[std] = (label, assumed)
         found_here.extend(_range_problems(std, values, label, target, summary))
+        if std == "ra" and not found_here:
+            # Checked before wrapping: absurd values are refused, never wrapped into range.
+            values, ra_wrapped = _wrap_ra(values, summary, writable)
         converted[std] = values
         summaries[std] = summary
     problems = [problem for found_here in column_problems for problem in found_here]
@@ -761,6 +1041,9 @@ def _read_catalog(source, format=None, aliases=None, units=None, copy=True):
             f"{len(problems)} problem{'s' if len(problems) > 1 else ''} in the catalogue:\n  - "
             + "\n  - ".join(problems)
         )
+    if "distance" in converted:
+        label, assumed = unit_assumed["distance"]
+        _warn_if_distance_in_pc("distance", label, converted["distance"], summaries["distance"], not assumed)
 
     n_rows = len(table)
     filled = []
@@ -818,6 +1101,28 @@ def _read_catalog(source, format=None, aliases=None, units=None, copy=True):
     out = QTable(columns, names=names, meta=meta, copy=False)
     out["has_nan"].description = "True where a value needed for the kinematics is NaN"
     return out
+
+
+_OTHER_DELIMITERS = {";": "';' (semicolon)", "\t": "a tab", "|": "'|' (vertical bar)"}
+
+
+def _missing_column_cause(names, lookup, description):
+    """The likely reason why required columns were not found, as a sentence to add (or "")."""
+    for delimiter, spoken in _OTHER_DELIMITERS.items():
+        glued = [name for name in names if delimiter in name]
+        if glued and any(_key(part) in lookup for name in glued for part in name.split(delimiter)):
+            return (f". The likely cause: {description} separates its columns with {spoken}, not commas, "
+                    f"so a header such as {glued[0][:60]!r} was read as one column name. read_catalog reads "
+                    f"comma-separated CSV: convert the file, or read it with astropy "
+                    f"(Table.read(path, format='ascii.csv', delimiter={delimiter!r})) and pass the table")
+    return ""
+
+
+def _warn_if_distance_in_pc(std, label, values, summary, unit_stated):
+    """Warn when a distance column without a unit looks like pc although kpc is assumed."""
+    if std != "distance" or unit_stated or not summary.hi > SUSPICIOUS_MEDIAN_KPC:
+        return
+    warn_if_distances_look_like_pc(values, label, "kpc (no unit given)", "units={'distance': 'pc'}")
 
 
 def _standard_column(std, values):

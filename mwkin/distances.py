@@ -23,6 +23,7 @@ signal-to-noise cut at ~5 or more (10 is safer for velocities), or bring better 
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -32,6 +33,8 @@ from .units import UnitMismatchError, to_value
 
 __all__ = [
     "DistanceError",
+    "DistanceUnitWarning",
+    "SUSPICIOUS_MEDIAN_KPC",
     "DistanceResult",
     "InverseParallax",
     "DistanceColumn",
@@ -56,12 +59,54 @@ class DistanceError(ValueError):
     """A distance choice with impossible settings, or a table that lacks what the choice needs."""
 
 
+class DistanceUnitWarning(UserWarning):
+    """Distances without a unit whose size suggests pc where kpc is assumed."""
+
+
+SUSPICIOUS_MEDIAN_KPC = 50.0
+"""Median distance (kpc) above which a distance column without a unit is suspected to be in pc.
+
+A Galactic star sample with a median distance beyond 50 kpc (the outer stellar halo) is rare, while
+the same numbers in pc (a median of 50 pc and more) are common: the usual mistake is a pc column
+read as kpc."""
+
+
+def warn_if_distances_look_like_pc(values, label, assumed, fix):
+    """Warn (:class:`DistanceUnitWarning`) if the median positive distance exceeds SUSPICIOUS_MEDIAN_KPC.
+
+    Parameters
+    ----------
+    values : numpy.ndarray
+        Distances as they will be used, kpc (NaN and non-positive values are left out).
+    label : str
+        The column, as named in the message.
+    assumed : str
+        The unit assumed, as named in the message.
+    fix : str
+        How to state the unit, as named in the message.
+    """
+    with np.errstate(invalid="ignore"):
+        positive = values[values > 0]
+    if positive.size == 0:
+        return
+    median = float(np.median(positive))
+    if median > SUSPICIOUS_MEDIAN_KPC:
+        warnings.warn(
+            f"{label}: the median distance is {median:.6g}, taken as {assumed}, i.e. beyond "
+            f"{SUSPICIOUS_MEDIAN_KPC:g} kpc; are the distances in pc? If so, state the unit ({fix})",
+            DistanceUnitWarning, stacklevel=3,
+        )
+
+
 def _column_values(table, name, unit):
     """Float64 values of a table column in ``unit`` (plain columns are taken to be in it); masked -> NaN."""
     col = table[name]
     mask = getattr(col, "mask", None)
     if hasattr(col, "unmasked"):  # astropy Masked Quantity
         col = col.unmasked
+    if not isinstance(col, u.Quantity) and getattr(col, "unit", None) is not None:
+        # a plain Table column with a unit: the unit counts (100 pc is not 100 kpc)
+        col = u.Quantity(np.ma.getdata(col), col.unit, copy=False)
     try:
         values = to_value(col if isinstance(col, u.Quantity) else np.ma.getdata(col), unit, name)
     except UnitMismatchError:
@@ -101,6 +146,11 @@ class DistanceResult:
     parameter_value, parameter_error : numpy.ndarray
         That quantity for every row (the zero-point-corrected parallax in mas, or the distance in kpc)
         and its uncertainty (zeros when the table has none).
+    ignored_columns : tuple of str
+        Columns of the table that could give distances but that this choice leaves out (the
+        ``parallax`` column when distances come from a distance column, and the other way round).
+    notes : tuple of str
+        One sentence per ignored column, for provenance.
     """
 
     distance_kpc: np.ndarray
@@ -112,6 +162,8 @@ class DistanceResult:
     parameter: str = "parallax"
     parameter_value: np.ndarray | None = None
     parameter_error: np.ndarray | None = None
+    ignored_columns: tuple = ()
+    notes: tuple = ()
 
     @property
     def reason(self):
@@ -125,7 +177,14 @@ class DistanceResult:
         return int(np.count_nonzero(self.usable))
 
 
-def _result(distance, error, codes, names, parameter, value, value_error):
+def _ignored(table, columns, used):
+    """(ignored columns, notes) for the distance-giving columns of ``table`` a choice does not use."""
+    ignored = tuple(name for name in columns if name in table.colnames and name != used)
+    notes = tuple(f"the table's {name!r} column is not used: distances come from {used!r}" for name in ignored)
+    return ignored, notes
+
+
+def _result(distance, error, codes, names, parameter, value, value_error, ignored=((), ())):
     """DistanceResult from per-row codes (0 = usable, i + 1 = names[i]); distance and error are ours to edit."""
     if np.count_nonzero(codes):
         counts = {name: int(np.count_nonzero(codes == i)) for i, name in enumerate(names, start=1)}
@@ -139,7 +198,7 @@ def _result(distance, error, codes, names, parameter, value, value_error):
     return DistanceResult(
         distance_kpc=distance, distance_error_kpc=error, usable=usable, reason_code=codes,
         reason_names=tuple(names), counts=counts, parameter=parameter, parameter_value=value,
-        parameter_error=value_error,
+        parameter_error=value_error, ignored_columns=ignored[0], notes=ignored[1],
     )
 
 
@@ -166,7 +225,8 @@ class InverseParallax:
     -----
     A row is unusable, with the first reason that applies: ``no_parallax`` (NaN),
     ``nonpositive_parallax`` (corrected parallax <= 0), ``no_parallax_error`` (NaN uncertainty while a
-    cut is asked for), ``parallax_below_cut`` (signal-to-noise below ``min_snr``).
+    cut is asked for), ``parallax_below_cut`` (signal-to-noise below ``min_snr``). A ``distance``
+    column of the table is not used; the result says so in ``ignored_columns`` and ``notes``.
 
     1/parallax is a biased distance estimator at low parallax signal-to-noise: the reciprocal of a
     noisy parallax is skewed and its bias grows fast beyond sigma_parallax / parallax ~ 0.1-0.2. Keep
@@ -260,7 +320,8 @@ class InverseParallax:
                 error *= distance
             else:
                 error = None
-        return _result(distance, error, codes, self.reasons, "parallax", plx, plx_err)
+        return _result(distance, error, codes, self.reasons, "parallax", plx, plx_err,
+                       _ignored(table, ("distance",), "parallax"))
 
     def describe(self):
         """One line for provenance, with the bias caveat."""
@@ -295,7 +356,10 @@ class DistanceColumn:
 
     Notes
     -----
-    Rows whose distance is NaN, zero or negative are unusable (reason ``no_distance``). In error
+    Rows whose distance is NaN, zero or negative are unusable (reason ``no_distance``). A column of
+    plain numbers whose median exceeds :data:`SUSPICIOUS_MEDIAN_KPC` gives a
+    :class:`DistanceUnitWarning` (probably pc read as kpc). A ``parallax`` column of the table is not
+    used; the result says so in ``ignored_columns`` and ``notes``. In error
     propagation the distance is an independent parameter: it is taken as uncorrelated with the
     astrometry, since the catalogue's correlations refer to the parallax.
     """
@@ -327,12 +391,16 @@ class DistanceColumn:
                 f"{', '.join(table.colnames)}"
             )
         dist = _column_values(table, self.column, u.kpc)
+        if getattr(table[self.column], "unit", None) is None:  # plain numbers, taken as kpc
+            warn_if_distances_look_like_pc(dist, f"DistanceColumn({self.column!r})", "kpc (no unit given)",
+                                           "give the column a unit, e.g. table[name].unit = 'pc'")
         error_name = f"{self.column}_error"
         has_error = error_name in table.colnames
         err = _column_values(table, error_name, u.kpc) if has_error else np.zeros_like(dist)
         with np.errstate(invalid="ignore"):
             codes = (~(dist > 0)).astype(np.uint8)
-        return _result(dist.copy(), err.copy() if has_error else None, codes, self.reasons, "distance", dist, err)
+        return _result(dist.copy(), err.copy() if has_error else None, codes, self.reasons, "distance", dist, err,
+                       _ignored(table, ("parallax",), self.column))
 
     def describe(self):
         """One line for provenance."""

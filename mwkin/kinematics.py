@@ -122,6 +122,13 @@ _SYM = ((0, 0), (0, 1), (0, 2), (1, 1), (1, 2), (2, 2))
 _SYM_DIAG = (0, 3, 5)
 
 _SKY_REASON = "no_sky_position"
+_CORR_REASON = "invalid_correlation"
+# A correlation matrix is accepted when its smallest eigenvalue is at least -_EIGEN_TOLERANCE (positive
+# semi-definite up to round-off); the same tolerance decides which Monte Carlo draws count as clipped.
+_EIGEN_TOLERANCE = 1e-12
+# Pivots of the LDL^T factorisation above this settle "positive definite" at once; smaller ones
+# (singular or invalid matrices, rare) are decided by the eigenvalues.
+_PIVOT_TOLERANCE = 1e-9
 
 
 class KinematicsError(ValueError):
@@ -1020,6 +1027,83 @@ def _take(value, index):
     return value[index] if _nonzero(value) else value
 
 
+# ====================================================================== correlation check
+class _CorrelationCheck:
+    """Rows [start, stop) whose correlation matrix may not be positive semi-definite, into ``out``.
+
+    An LDL^T factorisation of the unit-diagonal matrix, one row of stars at a time: with
+    E_ij = L_ij D_j, E_ij = A_ij - sum_{k<j} L_ik E_jk, L_ij = E_ij / D_j and
+    D_i = 1 - sum_{k<i} L_ik E_ik; the matrix is positive definite exactly when every pivot D_i is
+    positive (Golub & Van Loan 2013, Matrix Computations, 4th ed., Sect. 4.1-4.2, from memory).
+    Only the parameters that have a correlation column take part (the others are independent).
+    ``out`` is True where a pivot is not clearly positive or is NaN; :func:`_invalid_correlations`
+    settles those rows.
+    """
+
+    def __init__(self, rho, out):
+        self.rho, self.out = rho, out
+        self.params = sorted({k for key in rho for k in key})
+
+    def __call__(self, start, stop, ws):
+        m = stop - start
+        sl = slice(start, stop)
+        p = self.params
+        E, L, D = {}, {}, []
+        tmp = ws.vec("corr_tmp", m)
+        ok = ws.mask("corr_ok", m)
+        ok.fill(True)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            for i in range(len(p)):
+                for j in range(i):
+                    a = self.rho.get((p[j], p[i]))
+                    e = ws.vec(f"corr_E{i}{j}", m)
+                    if a is None:
+                        e.fill(0.0)
+                    else:
+                        np.copyto(e, a[sl])
+                    for k in range(j):
+                        np.multiply(L[i, k], E[j, k], tmp)
+                        np.subtract(e, tmp, e)
+                    E[i, j] = e
+                    L[i, j] = np.divide(e, D[j], ws.vec(f"corr_L{i}{j}", m))
+                d = ws.vec(f"corr_D{i}", m)
+                d.fill(1.0)
+                for k in range(i):
+                    np.multiply(L[i, k], E[i, k], tmp)
+                    np.subtract(d, tmp, d)
+                D.append(d)
+                ok &= d > _PIVOT_TOLERANCE  # False for NaN too
+        np.logical_not(ok, self.out[sl])
+
+
+def _invalid_correlations(rho, n):
+    """Boolean (n,): True where the correlations used do not form a positive semi-definite matrix.
+
+    ``rho`` maps parameter index pairs (k, l), k < l, of (ra*, dec, parallax or distance, pmra,
+    pmdec) to full-length correlation arrays (an absent pair is zero). A star with a NaN correlation
+    is not flagged here: its uncertainties are NaN anyway. The fast vectorised factorisation clears
+    almost every star; the few it cannot clear (singular or invalid matrices) get their eigenvalues.
+    """
+    suspect = np.zeros(n, dtype=bool)
+    if not rho or n == 0:
+        return suspect
+    run_blocks(n, _BLOCK, _CorrelationCheck(rho, suspect), _scratch_for(n))
+    rows = np.flatnonzero(suspect)
+    if rows.size == 0:
+        return suspect
+    corr = np.zeros((rows.size, 5, 5))
+    corr[:, range(5), range(5)] = 1.0
+    for (k, col), c in rho.items():
+        corr[:, k, col] = corr[:, col, k] = c[rows]
+    finite = np.isfinite(corr).all(axis=(1, 2))
+    invalid = np.zeros(rows.size, dtype=bool)
+    if finite.any():
+        invalid[finite] = np.linalg.eigvalsh(corr[finite])[:, 0] < -_EIGEN_TOLERANCE
+    out = np.zeros(n, dtype=bool)
+    out[rows[invalid]] = True
+    return out
+
+
 # ====================================================================== Monte Carlo
 def _sqrt_correlation(rho, n):
     """Per-star L, shape (n, 6, 6), with L L^T = the correlation matrix (rv uncorrelated).
@@ -1035,7 +1119,7 @@ def _sqrt_correlation(rho, n):
     bad = ~np.isfinite(corr).all(axis=(1, 2))
     corr[bad] = np.eye(5)
     lam, vec = np.linalg.eigh(corr)
-    clipped = (lam < -1e-12).any(axis=1) & ~bad
+    clipped = (lam < -_EIGEN_TOLERANCE).any(axis=1) & ~bad
     L = np.zeros((n, 6, 6))
     L[:, :5, :5] = vec * np.sqrt(np.clip(lam, 0.0, None))[:, None, :]
     L[:, 5, 5] = 1.0
@@ -1225,12 +1309,16 @@ def to_galactocentric(stars, frame=None, *, errors="none", distance=None, n_samp
     astropy.table.QTable
         One row per input star, in input order: ``source_id`` (if given), then the columns of
         :data:`OUTPUT_COLUMNS` with units and descriptions (x y z vx vy vz R phi v_R v_phi v_z X Y Z U V
-        W l b distance), ``flag`` ("" when fully usable, else comma-joined reasons) and ``has_velocity``.
+        W l b distance), ``flag`` ("" when fully usable, else comma-joined reasons; with ``errors``
+        other than "none" also ``invalid_correlation``, see Notes) and ``has_velocity``.
         ``errors="linear"`` adds ``sigma_<col>`` for every column; ``errors="montecarlo"`` adds
         ``<col>_p16``, ``<col>_p50``, ``<col>_p84`` (for the percentiles asked), ``sigma_<col>`` and
         ``mc_excluded_fraction``. ``meta`` holds ``frame`` and ``distance`` (their ``to_dict()``),
         ``n_input``, ``n_position``, ``n_velocity``, ``dropped`` (reason -> number of stars, each
-        reason counted for every star it applies to), ``errors`` and ``provenance`` (one line).
+        reason counted for every star it applies to; ``invalid_correlation`` only with ``errors``),
+        ``errors``, ``provenance`` (one line), ``distance_ignored_columns`` (columns that could give
+        distances but that the distance choice leaves out, e.g. ``["parallax"]`` under
+        ``DistanceColumn``) and ``distance_notes`` (one sentence for each).
 
     Raises
     ------
@@ -1253,7 +1341,12 @@ def to_galactocentric(stars, frame=None, *, errors="none", distance=None, n_samp
     velocity uncorrelated with the astrometry -- is propagated to first order through the analytic
     Jacobian. A missing uncertainty column counts as zero uncertainty, a missing correlation column
     as zero correlation; a NaN uncertainty or correlation of a star gives NaN sigmas for what depends
-    on it, and correlations that do not form a valid (positive semi-definite) matrix can give NaN.
+    on it. A star whose correlations do not form a valid correlation matrix (not positive
+    semi-definite, e.g. ra_dec_corr = 0.99, ra_pmra_corr = -0.99, dec_pmra_corr = 0.99) is flagged
+    ``invalid_correlation`` and gets NaN uncertainties (and covariances): no uncertainty can be
+    derived from an impossible covariance. Its positions and velocities are kept. The check costs a
+    vectorised LDL^T factorisation of the (at most 5x5) matrix, and only runs when the table has
+    correlation columns.
     A distance column is taken as uncorrelated with the astrometry. Velocity sigmas (and the velocity
     rows of the covariances) are NaN where a star has no velocity. ``sigma_distance`` is
     sigma_parallax / parallax^2; ``sigma_l`` is in degrees of longitude (sigma of l cos b over cos b,
@@ -1271,8 +1364,9 @@ def to_galactocentric(stars, frame=None, *, errors="none", distance=None, n_samp
     (set to NaN) and the percentiles use the remaining draws, so with many such draws the far side is
     under-represented; ``mc_excluded_fraction`` gives the excluded fraction per star and
     ``meta["mc_nonpositive_draws"]`` / ``meta["mc_stars_with_nonpositive_draws"]`` the totals.
-    Stars whose correlation matrix is not positive semi-definite are drawn from its nearest
-    semi-definite version (negative eigenvalues set to zero), counted in
+    Stars whose correlation matrix is not positive semi-definite are flagged ``invalid_correlation``
+    and not drawn (NaN Monte Carlo columns), as for the linear errors; eigenvalues that are negative by
+    round-off only (down to -1e-12) are set to zero, and the stars concerned counted in
     ``meta["mc_clipped_correlations"]``. ``meta`` also records ``n_samples``, ``percentiles`` and an
     integer ``seed``.
 
@@ -1326,8 +1420,16 @@ def to_galactocentric(stars, frame=None, *, errors="none", distance=None, n_samp
     linear = errors == "linear"
     montecarlo = errors == "montecarlo"
     then = trig = None
-    if linear:
+    bad_corr = None
+    if linear or montecarlo:
         sig, rho = _error_columns(table, res)
+        # Correlations that no star can have (not positive semi-definite) would give made-up
+        # uncertainties: those stars are flagged and get NaN uncertainties instead.
+        bad_corr = _invalid_correlations(rho, n)
+        reasons[_CORR_REASON] = bad_corr
+        if not bad_corr.any():
+            bad_corr = None
+    if linear:
         maps = geo.covariance_maps(full=return_covariance)
         names = [name for name in OUTPUT_COLUMNS if name != "v_z"]
         sigmas = dict(zip(names, np.empty((len(names), n))))  # rows of one array, see _allocate
@@ -1346,7 +1448,8 @@ def to_galactocentric(stars, frame=None, *, errors="none", distance=None, n_samp
         inp = dict(trig, pmra=pmra, pmdec=pmdec, rv=rv, nominal_phi=columns["phi"].copy(),
                    nominal_l=columns["l"].copy())
         levels = tuple(float(q) for q in np.ravel(percentiles))
-        mc_columns, mc_meta = _montecarlo(table, res, d, has_position, inp, n_samples, seed, levels, geo)
+        drawn = has_position if bad_corr is None else has_position & ~bad_corr
+        mc_columns, mc_meta = _montecarlo(table, res, d, drawn, inp, n_samples, seed, levels, geo)
         for name in _ANGLES:
             columns[name] *= _DEG
     if no_sky.any():  # l and b need only the direction; stars without ra/dec have none.
@@ -1361,18 +1464,25 @@ def to_galactocentric(stars, frame=None, *, errors="none", distance=None, n_samp
         "n_velocity": int(np.count_nonzero(has_velocity)),
         "dropped": {name: int(np.count_nonzero(mask)) for name, mask in reasons.items()},
         "errors": errors,
-        "provenance": f"frame {frame.describe()}; {choice.describe()}",
+        "provenance": f"frame {frame.describe()}; {choice.describe()}"
+                      + "".join(f"; {note}" for note in getattr(res, "notes", ())),
+        "distance_ignored_columns": list(getattr(res, "ignored_columns", ())),
+        "distance_notes": list(getattr(res, "notes", ())),
     }
     if linear:
         sigmas["v_z"] = sigmas["vz"]
         no_position, no_velocity = ~has_position, ~has_velocity
         for name, values in sigmas.items():
             missing = no_sky if name in ("l", "b") else (no_velocity if name in _VELOCITY_COLUMNS else no_position)
+            if bad_corr is not None:
+                missing = missing | bad_corr
             if missing.any():
                 values[missing] = np.nan
             extra[f"sigma_{name}"] = (values, OUTPUT_COLUMNS[name][0], f"linear uncertainty (1 sigma) of {name}")
         for key, cov in (covs or {}).items():
             cov[no_position] = np.nan
+            if bad_corr is not None:
+                cov[bad_corr] = np.nan
             cov[no_velocity, 3:, :] = np.nan
             cov[no_velocity, :, 3:] = np.nan
             order = "x, y, z, vx, vy, vz" if key == "cov_galactocentric" else "X, Y, Z, U, V, W"
@@ -1390,7 +1500,8 @@ def to_galactocentric(stars, frame=None, *, errors="none", distance=None, n_samp
     for name, (unit, description) in OUTPUT_COLUMNS.items():
         cols[name], descriptions[name] = columns[name] << unit, description
     cols["flag"] = _flags(reasons, n)
-    descriptions["flag"] = "why a star lacks positions or velocities (comma-joined reasons); '' if nothing is missing"
+    descriptions["flag"] = ("why a star lacks positions, velocities or (invalid_correlation) uncertainties "
+                            "(comma-joined reasons); '' if nothing is missing")
     cols["has_velocity"] = has_velocity
     descriptions["has_velocity"] = "True where velocities could be computed"
     for name, (values, unit, description) in extra.items():

@@ -1,6 +1,7 @@
 """Tests of mwkin.catalog: reading, renaming, units and checks of star tables."""
 
 import doctest
+import re
 import warnings
 
 import numpy as np
@@ -472,9 +473,22 @@ def test_ra_is_wrapped():
 @settings(max_examples=60, deadline=None)
 @given(st.lists(st.floats(min_value=-1e6, max_value=1e6, allow_nan=False), min_size=1, max_size=20))
 def test_ra_wrapping_property(ra):
+    # Changed with the ra limit: values beyond +-RA_LIMIT_DEG (three turns) used to be wrapped too;
+    # now they are refused, naming the rows. Values within the limit are checked as before.
     n = len(ra)
     t = Table({"ra": ra, "dec": np.zeros(n), "parallax": np.ones(n), "pmra": np.zeros(n),
                "pmdec": np.zeros(n)})
+    # Likewise subnormal values (below ~2.2e-308 in size, not zero) are refused, not wrapped.
+    beyond = [i for i, value in enumerate(ra) if abs(value) > catalog.RA_LIMIT_DEG]
+    subnormal = [i for i, value in enumerate(ra) if 0 < abs(value) < np.finfo(float).tiny]
+    if beyond or subnormal:
+        with pytest.raises(CatalogError) as info:
+            read_catalog(t)
+        if beyond:
+            assert re.search(rf"'ra': values beyond \+-1080 deg .* at rows? {beyond[0]}\b", str(info.value))
+        if subnormal:
+            assert re.search(rf"'ra': subnormal values .* at rows? {subnormal[0]}\b", str(info.value))
+        return
     out = read_catalog(t)["ra"].to_value(u.deg)
     assert np.all((out >= 0) & (out < 360))
     # same direction on the sky: equal cosine and sine (absolute error ~ 360 * eps * |ra| / 360 deg)

@@ -575,6 +575,15 @@ _sky = st.tuples(
 _distance = st.one_of(st.floats(1e-6, 1e-3), st.floats(1e-3, 50.0))
 _pm = st.floats(-1000.0, 1000.0)
 _rv = st.floats(-1000.0, 1000.0)
+# The table-level functions refuse subnormal values (a sign of a damaged file, see mwkin.catalog);
+# the array-level functions above take them. These draw the same values without subnormals.
+_sky_table = st.tuples(
+    st.floats(0.0, 360.0, exclude_max=True, allow_subnormal=False),
+    st.one_of(st.floats(-90.0, 90.0, allow_subnormal=False), st.floats(89.9999, 90.0),
+              st.floats(-90.0, -89.9999)),
+)
+_pm_table = st.floats(-1000.0, 1000.0, allow_subnormal=False)
+_rv_table = _pm_table
 
 
 @settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
@@ -625,9 +634,11 @@ def test_property_invariants(sky, d, pmra, pmdec, rv):
 
 
 @settings(max_examples=25, deadline=None)
-@given(sky=_sky, plx=st.floats(0.05, 50.0), rel=st.floats(0.001, 0.1), pmra=_pm, pmdec=_pm, rv=_rv)
+@given(sky=_sky_table, plx=st.floats(0.05, 50.0), rel=st.floats(0.001, 0.1), pmra=_pm_table, pmdec=_pm_table,
+       rv=_rv_table)
 def test_property_linear_errors_are_finite_and_scale(sky, plx, rel, pmra, pmdec, rv):
     # Doubling every input uncertainty doubles every linear sigma (linearity of the propagation).
+    # (Draws without subnormal values since the catalogue reader refuses them; see _sky_table.)
     ra, dec = sky
     row = {"ra": [ra], "dec": [dec], "parallax": [plx], "pmra": [pmra], "pmdec": [pmdec],
            "radial_velocity": [rv], "ra_error": [0.1], "dec_error": [0.1], "parallax_error": [rel * plx],
@@ -640,3 +651,108 @@ def test_property_linear_errors_are_finite_and_scale(sky, plx, rel, pmra, pmdec,
         sa, sb = a[f"sigma_{col}"].value[0], b[f"sigma_{col}"].value[0]
         assert np.isfinite(sa) and sa >= 0
         assert sb == pytest.approx(2 * sa, rel=1e-9, abs=1e-300)
+
+
+# ----------------------------------------------------------------------------------------- invalid correlations
+# ra_dec_corr = 0.99, ra_pmra_corr = -0.99, dec_pmra_corr = 0.99 cannot be: if ra and dec go together
+# and dec and pmra go together, ra and pmra cannot go against each other (the 3x3 determinant is
+# 1 - 3 * 0.99^2 - 2 * 0.99^3 < 0; linear algebra, no source).
+_IMPOSSIBLE = {"ra_dec_corr": 0.99, "ra_pmra_corr": -0.99, "dec_pmra_corr": 0.99}
+
+
+def _with_correlations(t, row, values):
+    for name in CORRELATION_COLUMNS:
+        if name not in t.colnames:
+            t[name] = np.zeros(len(t))
+    for name, value in values.items():
+        t[name][row] = value
+    return t
+
+
+def test_impossible_correlations_are_flagged_not_propagated(rng):
+    t = _with_correlations(_stars(rng, 6, correlated=False), 2, _IMPOSSIBLE)
+    assert np.linalg.eigvalsh(_input_covariance(t)[2])[0] < 0  # really not a covariance
+    alone = to_galactocentric(t[[0, 1, 3, 4, 5]], FRAME, errors="linear", distance=InverseParallax(min_snr=0))
+    for errors in ("linear", "montecarlo"):
+        out = to_galactocentric(t, FRAME, errors=errors, distance=InverseParallax(min_snr=0), n_samples=50, seed=3)
+        assert list(out["flag"]) == ["", "", "invalid_correlation", "", "", ""]
+        assert out.meta["dropped"]["invalid_correlation"] == 1
+        assert bool(out["has_velocity"][2])  # the values themselves do not depend on the correlations
+        assert np.isfinite(out["vx"][2].value)
+        for name in ("x", "vx", "v_phi", "l", "distance"):
+            assert np.isnan(out[f"sigma_{name}"][2].value), (errors, name)
+            assert np.isfinite(out[f"sigma_{name}"][[0, 1, 3, 4, 5]].value).all(), (errors, name)
+        if errors == "linear":
+            # the other stars get exactly what they get without the bad one
+            np.testing.assert_array_equal(out["sigma_vx"][[0, 1, 3, 4, 5]].value, alone["sigma_vx"].value)
+        else:
+            assert np.isnan(out["x_p50"][2].value) and np.isfinite(out["x_p50"][0].value)
+    cov = to_galactocentric(t, FRAME, errors="linear", return_covariance=True, distance=InverseParallax(min_snr=0))
+    assert np.isnan(cov["cov_galactocentric"][2]).all() and np.isfinite(cov["cov_galactocentric"][0]).all()
+    # without uncertainties nothing is flagged (the correlations are not used)
+    assert list(to_galactocentric(t, FRAME, distance=InverseParallax(min_snr=0))["flag"]) == [""] * 6
+
+
+def test_singular_but_valid_correlations_are_not_flagged(rng):
+    # |r| = 1 gives a singular, positive semi-definite matrix: allowed (e.g. ra and dec fully correlated)
+    t = _with_correlations(_stars(rng, 3, correlated=False), 1, {"ra_dec_corr": 1.0, "pmra_pmdec_corr": -1.0})
+    out = to_galactocentric(t, FRAME, errors="linear", distance=InverseParallax(min_snr=0))
+    assert list(out["flag"]) == ["", "", ""]
+    assert np.isfinite(out["sigma_x"].value).all()
+
+
+def test_correlation_check_against_eigenvalues(rng):
+    # Random correlation sets, many invalid: the flag must agree with the smallest eigenvalue
+    # (numpy.linalg.eigvalsh) of each star's 5x5 matrix.
+    n = 400
+    t = _stars(rng, n, correlated=False)
+    for name in CORRELATION_COLUMNS:
+        t[name] = rng.uniform(-0.7, 0.7, n)
+    out = to_galactocentric(t, FRAME, errors="linear", distance=InverseParallax(min_snr=0))
+    corr = _input_covariance(t)
+    sig = np.sqrt(np.einsum("nii->ni", corr))
+    lowest = np.linalg.eigvalsh(corr / sig[:, :, None] / sig[:, None, :])[:, 0]
+    flagged = out["flag"] == "invalid_correlation"
+    assert 20 < flagged.sum() < n - 20  # both kinds are there
+    np.testing.assert_array_equal(flagged, lowest < -1e-12)
+
+
+def test_correlations_with_a_parallax_are_not_checked_under_a_distance_column(rng):
+    # a distance column is independent of the astrometry, so parallax correlations are not used
+    t = _stars(rng, 2, correlated=False)
+    t["distance"] = [1.0, 2.0] * u.kpc
+    t = _with_correlations(t, 0, {"ra_parallax_corr": 0.99, "dec_parallax_corr": 0.99, "ra_dec_corr": -0.99})
+    out = to_galactocentric(t, FRAME, errors="linear", distance=DistanceColumn())
+    assert list(out["flag"]) == ["", ""]
+    flagged = to_galactocentric(t, FRAME, errors="linear", distance=InverseParallax(min_snr=0))
+    assert flagged["flag"][0] == "invalid_correlation"
+
+
+# ----------------------------------------------------------------------------------------- ignored distance columns
+def test_ignored_parallax_is_recorded(rng):
+    t = _stars(rng, 3)
+    t["distance"] = [1.0, 2.0, 3.0] * u.kpc
+    out = to_galactocentric(t, FRAME, distance=DistanceColumn())
+    assert out.meta["distance_ignored_columns"] == ["parallax"]
+    assert out.meta["distance_notes"] == ["the table's 'parallax' column is not used: distances come from 'distance'"]
+    assert "'parallax' column is not used" in out.meta["provenance"]
+    assert distance_from_dict(out.meta["distance"]) == DistanceColumn()  # still round-trips
+    by_parallax = to_galactocentric(t, FRAME, distance=InverseParallax(min_snr=0))
+    assert by_parallax.meta["distance_ignored_columns"] == ["distance"]
+    t.remove_column("distance")
+    assert to_galactocentric(t, FRAME, distance=InverseParallax(min_snr=0)).meta["distance_ignored_columns"] == []
+
+
+def test_distance_column_of_plain_numbers_in_pc_warns():
+    from mwkin.distances import DistanceUnitWarning
+
+    t = Table({"d": [100.0, 250.0, np.nan, 3000.0]})
+    with pytest.warns(DistanceUnitWarning, match=r"DistanceColumn\('d'\): the median distance is 250, taken as kpc"):
+        res = DistanceColumn("d").resolve(t)
+    np.testing.assert_array_equal(res.distance_kpc[:2], [100.0, 250.0])
+    t["d"].unit = u.pc  # stated: converted, no warning
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        np.testing.assert_allclose(DistanceColumn("d").resolve(t).distance_kpc[:2], [0.1, 0.25])
