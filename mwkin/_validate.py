@@ -226,7 +226,11 @@ def _caller_stacklevel():
     level = 2
     while frame is not None:
         filename = frame.f_code.co_filename
-        if not (filename.startswith(_PACKAGE_DIR) or (filename == "<string>" and frame.f_code.co_name == "__init__")):
+        inside = (filename.startswith(_PACKAGE_DIR)
+                  or (filename == "<string>" and frame.f_code.co_name == "__init__")
+                  # a value set on a widget state reaches us through traitlets' validation machinery
+                  or f"{os.sep}traitlets{os.sep}" in filename)
+        if not inside:
             break
         frame = frame.f_back
         level += 1

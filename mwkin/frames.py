@@ -32,7 +32,7 @@ from ._validate import (check_keys, is_plain, real_number, real_vector, require_
 from .galactic import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC, _rot, tangent_basis
 from .units import KMS, to_value
 
-__all__ = ["SolarFrame", "Preset", "ReflexProperMotion", "FrameError"]
+__all__ = ["SolarFrame", "Preset", "ReflexProperMotion", "FrameError", "UnknownPresetError", "warn_if_implausible"]
 
 #: astropy's default ICRS position of the Galactic centre, (l, b) = (0, 0) (astropy source).
 _GALCEN_RA_DEG = 266.4051
@@ -43,6 +43,13 @@ _ROLL0_DEG = 58.5986320306
 
 class FrameError(ValueError):
     """Raised for solar-frame parameters that make no physical sense."""
+
+
+class UnknownPresetError(FrameError, KeyError):
+    """An unknown solar-frame preset name (a KeyError too, as before, and a ValueError like every bad input)."""
+
+    def __str__(self):  # KeyError would otherwise quote the message
+        return str(self.args[0]) if self.args else ""
 
 
 _V_SUN_COMPONENTS = ("vx", "vy", "vz")
@@ -60,6 +67,23 @@ _FIELD_UNITS = {name: u.Unit(unit) for name, unit in _DICT_FIELDS.values() if na
 R0_PLAUSIBLE_KPC = (1.0, 100.0)
 Z_SUN_MIN_PLAUSIBLE_PC = 1.0
 MAX_PLAUSIBLE_SPEED_KMS = 1000.0
+
+
+def warn_if_implausible(R0=None, z_sun=None, v_sun=None):
+    """Warn about solar-frame values in the default units (kpc, pc, km/s) that look like a unit slip.
+
+    The one home of the plausibility limits (:data:`R0_PLAUSIBLE_KPC`, :data:`Z_SUN_MIN_PLAUSIBLE_PC`,
+    :data:`MAX_PLAUSIBLE_SPEED_KMS`): :class:`SolarFrame` applies it to plain numbers, the widgets'
+    frame state to every value typed. ``None`` skips a parameter.
+
+    Warns
+    -----
+    mwkin.units.ImplausibleValueWarning
+        Naming the value, the unit it was taken in and the unit it was probably meant in.
+    """
+    plain, skip = 0.0, 0.0 * u.one   # a Quantity counts as a stated unit: not checked
+    _warn_if_implausible(skip if R0 is None else plain, skip if z_sun is None else plain,
+                         skip if v_sun is None else plain, R0, z_sun, v_sun)
 
 
 def _warn_if_implausible(R0_given, z_sun_given, v_sun_given, R0, z_sun, v_sun):
@@ -228,13 +252,14 @@ class SolarFrame:
 
         Raises
         ------
-        KeyError
-            With the list of known names, if ``name`` is not one of them.
+        UnknownPresetError
+            A :class:`FrameError` (so a ValueError) and a KeyError, with the list of known names, if
+            ``name`` is not one of them.
         """
         try:
             entry = _PRESETS[name]
-        except KeyError:
-            raise KeyError(f"unknown solar-frame preset {name!r}; known: {', '.join(_PRESETS)}") from None
+        except (KeyError, TypeError):
+            raise UnknownPresetError(f"unknown solar-frame preset {name!r}; known: {', '.join(_PRESETS)}") from None
         return cls(**entry.params, label=entry.name)
 
     @staticmethod
@@ -253,6 +278,10 @@ class SolarFrame:
         Unchanged values are passed on with their units, so only the changed ones are checked for
         implausible plain numbers (see :class:`~mwkin.units.ImplausibleValueWarning`).
         """
+        unknown = sorted(set(changes) - set(_FIELD_UNITS) - {"label"})
+        if unknown:
+            raise FrameError(f"replace() got unknown parameters {unknown}; a SolarFrame has "
+                             f"{sorted(_FIELD_UNITS) + ['label']}")
         changes.setdefault("label", "")
         for name, unit in _FIELD_UNITS.items():
             if name not in changes:

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import html
 import json
+import os
 import pathlib
 
 import ipywidgets as widgets
@@ -180,8 +181,25 @@ class AnalysisWidget(widgets.VBox):
             self._load_config(own)
 
     def save_config(self, path):
-        """Write :attr:`config` as JSON to ``path``."""
-        pathlib.Path(path).write_text(json.dumps(self.config, indent=2))
+        """Write :attr:`config` as JSON to ``path`` (through a temporary file, so a failed write loses nothing).
+
+        Raises
+        ------
+        ConfigError
+            If the folder of ``path`` does not exist or ``path`` is a folder.
+        """
+        path = pathlib.Path(path)
+        if path.is_dir():
+            raise ConfigError(f"save_config: {path} is a folder; give a file name such as {path / 'analysis.json'}")
+        if not path.parent.is_dir():
+            raise ConfigError(f"save_config: the folder {path.parent} does not exist (nothing written)")
+        text = json.dumps(self.config, indent=2)
+        partial = path.with_name(f".{path.name}.partial")
+        try:
+            partial.write_text(text)
+            os.replace(partial, path)
+        finally:
+            partial.unlink(missing_ok=True)
 
     def load_config_file(self, path):
         """Read a JSON file written by :meth:`save_config` and apply it."""

@@ -11,9 +11,10 @@ import copy
 import json
 import math
 
+import astropy.units as u
 import traitlets
 
-from ..frames import FrameError, SolarFrame
+from ..frames import FrameError, SolarFrame, warn_if_implausible
 
 __all__ = ["FrameState", "PotentialState", "DEFAULT_FRAME_PRESET", "DEFAULT_POTENTIAL_PRESET",
            "potential_from_config", "default_three_component_parameters", "ConfigError", "require_mapping",
@@ -66,15 +67,22 @@ class FrameState(traitlets.HasTraits):
     preset = traitlets.Unicode(DEFAULT_FRAME_PRESET, help="preset name, or '' once a value was edited")
 
     def __init__(self, frame=None, **kwargs):
-        super().__init__(**kwargs)
+        super().__init__()
         self._applying = False
         self.set_frame(frame if frame is not None else SolarFrame.preset(DEFAULT_FRAME_PRESET))
+        # Values given as keywords apply on top of the frame (FrameState(R0=8.3) is the default frame
+        # with R0 = 8.3, marked as edited), never silently replaced by it.
+        with self.hold_trait_notifications():
+            for name, value in kwargs.items():
+                setattr(self, name, value)
 
     @traitlets.validate("R0")
     def _check_R0(self, proposal):
         value = proposal["value"]
         if not (math.isfinite(value) and value > 0):
             raise traitlets.TraitError(f"R0 must be a finite distance > 0 kpc, got {value} kpc")
+        if not getattr(self, "_applying", False):   # a preset or saved frame was checked when made
+            warn_if_implausible(R0=value)
         return value
 
     @traitlets.validate("z_sun")
@@ -84,6 +92,8 @@ class FrameState(traitlets.HasTraits):
             raise traitlets.TraitError(f"z_sun must be a finite height in pc, got {value} pc")
         if abs(value) >= 1000.0 * self.R0:
             raise traitlets.TraitError(f"|z_sun| = {abs(value)} pc must be smaller than R0")
+        if not getattr(self, "_applying", False):
+            warn_if_implausible(z_sun=value)
         return value
 
     @traitlets.validate("v_sun")
@@ -92,17 +102,22 @@ class FrameState(traitlets.HasTraits):
         bad = [f"{axis} = {v}" for axis, v in zip(("vx", "vy", "vz"), value) if not math.isfinite(v)]
         if bad:
             raise traitlets.TraitError(f"v_sun must be finite, got {', '.join(bad)} km/s")
+        if not getattr(self, "_applying", False):
+            warn_if_implausible(v_sun=value)
         return value
 
     @traitlets.observe("R0", "z_sun", "v_sun")
     def _mark_edited(self, change):
-        if not self._applying:
+        if not getattr(self, "_applying", False):
             self.preset = ""
 
     @property
     def frame(self):
         """The current :class:`~mwkin.frames.SolarFrame`."""
-        return SolarFrame(R0=self.R0, z_sun=self.z_sun, v_sun=tuple(self.v_sun), label=self.preset)
+        # With their units stated: the values were checked for unit slips when they were set, and a
+        # frame made on every refresh must not repeat that warning.
+        return SolarFrame(R0=self.R0 * u.kpc, z_sun=self.z_sun * u.pc, v_sun=tuple(self.v_sun) * (u.km / u.s),
+                          label=self.preset)
 
     def set_frame(self, frame):
         """Take all values from a SolarFrame in one batch of notifications."""

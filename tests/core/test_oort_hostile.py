@@ -62,3 +62,16 @@ def test_heavy_tail_outliers_on_a_gaussian_and_a_contaminated_sample(rng):
     flagged = heavy_tail_outliers(z, used)
     assert flagged[:200].all() and not flagged[500:510].any()
     assert not heavy_tail_outliers(z, np.zeros_like(used)).any()    # nothing used, nothing flagged
+
+
+@pytest.mark.parametrize("keyword, value, words", [
+    ("bootstrap", 10**9, "bootstrap must be a whole number of resamples from 0 to 100000, got 1000000000"),
+    ("bootstrap", True, "got True"),
+    ("bootstrap", -1, "got -1"),
+    ("seed", -5, "seed must be a whole number >= 0 or None, got -5"),
+    ("seed", 1.5, "got 1.5"),
+])
+def test_bootstrap_and_seed_out_of_range_are_named_errors(survey, keyword, value, words):
+    with pytest.raises(ValueError) as info:
+        mk.fit_oort(survey[:500], **{keyword: value})
+    assert words in str(info.value)
