@@ -29,6 +29,7 @@ from dataclasses import dataclass
 import numpy as np
 import astropy.units as u
 
+from ._validate import real_number, require_mapping, text
 from .units import UnitMismatchError, to_value
 
 __all__ = [
@@ -336,7 +337,11 @@ class InverseParallax:
     @classmethod
     def from_dict(cls, data):
         """Inverse of :meth:`to_dict`."""
-        return cls(**_params(data, cls.method, ("min_snr", "zero_point_mas")))
+        params = _params(data, cls.method, ("min_snr", "zero_point_mas"))
+        for key, unit in (("min_snr", ""), ("zero_point_mas", "mas")):
+            if key in params:    # True is not a number, "5" is not one either: named, not converted
+                params[key] = real_number(params[key], key, unit, DistanceError)
+        return cls(**params)
 
 
 @dataclass(frozen=True)
@@ -413,13 +418,17 @@ class DistanceColumn:
     @classmethod
     def from_dict(cls, data):
         """Inverse of :meth:`to_dict`."""
-        return cls(**_params(data, cls.method, ("column",)))
+        params = _params(data, cls.method, ("column",))
+        if "column" in params:
+            params["column"] = text(params["column"], "column", DistanceError)
+        return cls(**params)
 
 
 _CHOICES = {cls.method: cls for cls in (InverseParallax, DistanceColumn)}
 
 
 def _params(data, method, keys):
+    data = require_mapping(data, f"the {method!r} distance choice", DistanceError)
     if data.get("method", method) != method:
         raise DistanceError(f"expected method {method!r}, got {data.get('method')!r}")
     unknown = set(data) - set(keys) - {"method"}
@@ -445,9 +454,10 @@ def distance_from_dict(data):
     DistanceError
         For an unknown method or unknown keys.
     """
+    data = require_mapping(data, "a distance choice", DistanceError)
     try:
         cls = _CHOICES[data["method"]]
-    except KeyError:
+    except (KeyError, TypeError):
         raise DistanceError(
             f"unknown distance method {data.get('method')!r}; known: {', '.join(_CHOICES)}"
         ) from None

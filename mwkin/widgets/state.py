@@ -14,6 +14,7 @@ import math
 import astropy.units as u
 import traitlets
 
+from .._validate import require_mapping as _require_mapping
 from ..frames import FrameError, SolarFrame, warn_if_implausible
 
 __all__ = ["FrameState", "PotentialState", "DEFAULT_FRAME_PRESET", "DEFAULT_POTENTIAL_PRESET",
@@ -27,9 +28,7 @@ class ConfigError(ValueError):
 
 def require_mapping(config, what):
     """A shallow copy of ``config`` as a dict, or a :class:`ConfigError` naming ``what`` if it is not one."""
-    if not isinstance(config, dict):
-        raise ConfigError(f"{what} must be a dict (a JSON object), got {type(config).__name__}: {config!r:.80}")
-    return dict(config)
+    return _require_mapping(config, what, ConfigError)
 
 
 def frame_from_config(config):

@@ -333,3 +333,27 @@ def test_helpers_raise_the_callers_error_class():
         _validate.real_vector("12", "v", "km/s", MyError, components=("a", "b"))
     with pytest.raises(MyError, match=r"thing: missing required key\(s\) 'k' \(kpc\)"):
         _validate.check_keys({}, "thing", MyError, required={"k": "kpc"})
+
+
+# ---------------------------------------------------------------------- distance choices
+@pytest.mark.parametrize("data, words", [
+    ({"method": "inverse_parallax", "min_snr": "5"}, "min_snr must be a real number"),
+    ({"method": "inverse_parallax", "zero_point_mas": True}, "zero_point_mas must be a real number in mas"),
+    ({"method": "distance_column", "column": 3}, "column"),
+    (["method"], "must be a dict"),
+    ({"method": ["inverse_parallax"]}, "unknown distance method"),
+    ({"method": "inverse_parallax", "cut": 5}, "unknown keys ['cut']"),
+])
+def test_distance_from_dict_names_the_bad_key(data, words):
+    from mwkin.distances import DistanceError, distance_from_dict
+
+    with pytest.raises(DistanceError) as info:
+        distance_from_dict(data)
+    assert words in str(info.value)
+
+
+def test_distance_from_dict_round_trips():
+    from mwkin.distances import DistanceColumn, InverseParallax, distance_from_dict
+
+    for choice in (InverseParallax(min_snr=3.0, zero_point_mas=-0.017), DistanceColumn("d_kpc")):
+        assert distance_from_dict(choice.to_dict()) == choice
