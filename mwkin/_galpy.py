@@ -37,6 +37,7 @@ import glob
 import math
 import os
 import threading
+import time
 import warnings
 from dataclasses import dataclass
 
@@ -50,6 +51,8 @@ __all__ = [
     "three_component_model",
     "model_from_galpy",
     "integrate",
+    "IntegrationTimeout",
+    "time_guard_available",
     "staeckel_parameters",
     "estimate_delta",
 ]
@@ -190,6 +193,17 @@ class GalpyModel:
         with _quiet():
             force = gp.evaluateRforces(pot, R, z, phi=0.0, use_physical=False)
         return -R * np.asarray(force, dtype=float) * self.vo**2
+
+    def forces(self, R_kpc, z_kpc, phi=0.0):
+        """Radial and vertical force per unit mass (-dPhi/dR, -dPhi/dz), km^2/s^2/kpc, at (R, phi, z)."""
+        gp = _potential_module()
+        R, z = self._nat(R_kpc, z_kpc)
+        phi = phi if not self.is_axisymmetric else 0.0
+        with _quiet():
+            f_R = gp.evaluateRforces(self.pot, R, z, phi=phi, use_physical=False)
+            f_z = gp.evaluatezforces(self.pot, R, z, phi=phi, use_physical=False)
+        scale = self.vo**2 / self.ro
+        return np.asarray(f_R, dtype=float) * scale, np.asarray(f_z, dtype=float) * scale
 
     def dvcdR(self, R_kpc):
         """d vc / dR in the mid-plane, km/s/kpc."""
@@ -366,7 +380,8 @@ def energy_kms2(model, w):
     """Energy per unit mass, km^2/s^2, in galpy's zero point, of (N, 6) cylindrical phase-space points."""
     R, phi, z, vR, vphi, vz = (w[:, i] for i in range(6))
     phi_val = model.potential_kms2(R, z, phi=phi if not model.is_axisymmetric else 0.0)
-    return phi_val + 0.5 * (vR**2 + vphi**2 + vz**2)
+    with np.errstate(over="ignore"):  # |v| beyond 1e154 gives E = inf, which callers flag as unbound
+        return phi_val + 0.5 * (vR**2 + vphi**2 + vz**2)
 
 
 # --------------------------------------------------------------------------------------- threads
@@ -405,9 +420,110 @@ def omp_threads(numcores):
         lib.omp_set_num_threads(before)
 
 
+# --------------------------------------------------------------------------------------- time guard
+class IntegrationTimeout(RuntimeError):
+    """galpy's integrator did not return within the allowed wall time (raised by :func:`_guarded`)."""
+
+
+@functools.lru_cache(maxsize=1)
+def _interrupt_flag():
+    """galpy's C ``interrupted`` flag, or None when its C library (or the symbol) is not available.
+
+    galpy's C integrators poll this ``volatile sig_atomic_t`` once per step (its SIGINT handler sets
+    it, so that Ctrl-C can stop an integration) and return with error code -10 when it is set, after
+    which galpy raises ``KeyboardInterrupt``. Setting it from a watchdog thread stops, in process,
+    a C integration that never finishes (e.g. one whose step size collapsed to galpy's floor): the C
+    call holds no Python state a thread could interrupt, and ctypes releases the GIL meanwhile.
+    """
+    try:
+        from galpy.util._load_extension_libs import load_libgalpy
+
+        lib, loaded = load_libgalpy()
+        if not loaded or lib is None:
+            return None
+        return ctypes.c_int.in_dll(lib, "interrupted")  # sig_atomic_t is an int on every galpy platform
+    except (ImportError, ValueError, AttributeError, OSError):
+        return None
+
+
+# Incremented whenever any watchdog starts interrupting: galpy's flag is process-wide, so an
+# integration in another thread that sees it without having timed out itself retries (see _guarded).
+_interrupt_epoch = 0
+_epoch_lock = threading.Lock()
+
+
+class _Watchdog:
+    """Set galpy's interrupt flag repeatedly after ``seconds`` until :meth:`stop` is called.
+
+    Repeatedly, because with several OpenMP threads each thread resets the flag when it sees it,
+    so one write stops only one orbit.
+    """
+
+    def __init__(self, seconds, flag):
+        self._seconds = seconds
+        self._flag = flag
+        self._done = threading.Event()
+        self.fired = False
+        self._thread = threading.Thread(target=self._run, name="mwkin-orbit-watchdog", daemon=True)
+        self._thread.start()
+
+    def _run(self):
+        global _interrupt_epoch
+        if self._done.wait(self._seconds):
+            return
+        with _epoch_lock:
+            _interrupt_epoch += 1
+            self.fired = True
+        while not self._done.is_set():
+            self._flag.value = 1
+            self._done.wait(0.002)
+
+    def stop(self):
+        self._done.set()
+        self._thread.join()
+        if self.fired:
+            self._flag.value = 0  # a last write may have landed after the integration returned
+
+
+def _guarded(call, seconds):
+    """``call()`` (a galpy C integration) stopped after ``seconds`` of wall time.
+
+    Raises
+    ------
+    IntegrationTimeout
+        When the time ran out. A ``KeyboardInterrupt`` not caused by a watchdog (a real Ctrl-C)
+        propagates; one caused by another thread's watchdog makes the call run again.
+    """
+    flag = _interrupt_flag()
+    if seconds is None or not math.isfinite(seconds) or flag is None:
+        return call()
+    deadline = time.monotonic() + seconds
+    while True:
+        remaining = deadline - time.monotonic()
+        if remaining <= 0:
+            raise IntegrationTimeout(f"no result within {seconds:g} s")
+        epoch = _interrupt_epoch
+        watchdog = _Watchdog(remaining, flag)
+        try:
+            return call()
+        except KeyboardInterrupt:
+            if watchdog.fired:
+                raise IntegrationTimeout(f"no result within {seconds:g} s") from None
+            if _interrupt_epoch == epoch:
+                raise
+            # interrupted by another thread's watchdog: run again within what is left of our time
+        finally:
+            watchdog.stop()
+
+
+def time_guard_available(model):
+    """Whether :func:`integrate` can stop a runaway integration in ``model`` (galpy's C path)."""
+    return model.has_c and _interrupt_flag() is not None
+
+
 # --------------------------------------------------------------------------------------- integration
-def integrate(model, w, t_gyr, numcores=None):
-    """Integrate orbits with galpy's C integrator.
+def integrate(model, w, t_gyr, numcores=None, timeout=None, star_timeout=None):
+    """Integrate orbits with galpy's C integrator, each call bounded in wall time.
 
     Parameters
     ----------
@@ -418,25 +534,57 @@ def integrate(model, w, t_gyr, numcores=None):
         Output times, Gyr (evenly spaced, t[0] = 0; validated by the caller).
     numcores : int or None
         OpenMP threads for the batch.
+    timeout : float or None
+        Wall-clock seconds allowed for the whole batch (None or inf: no limit). When exceeded, the
+        stars are integrated again one at a time with ``star_timeout`` each.
+    star_timeout : float or None
+        Seconds allowed for one star alone (default: ``timeout``).
 
     Returns
     -------
     numpy.ndarray, shape (N, nt, 6)
-        Our cylindrical phase space along each orbit.
+        Our cylindrical phase space along each orbit (NaN for stars that timed out).
     str
         The integration method galpy used.
+    numpy.ndarray of bool, shape (N,)
+        True for stars whose integration alone exceeded ``star_timeout`` and was stopped.
+
+    Notes
+    -----
+    The limit is enforced through galpy's own interrupt flag (see :func:`_interrupt_flag`), which
+    only its C integrators poll: with a potential that has no C implementation galpy integrates in
+    Python and no limit applies.
     """
     _potential_module()
     from galpy.orbit import Orbit
 
-    vxvv = to_galpy_natural(model, w)
     t_nat = np.asarray(t_gyr, dtype=float) / model.time_unit_gyr
     method = INTEGRATOR if model.has_c else "dop853"
-    orbits = Orbit(vxvv)
-    with omp_threads(numcores), _quiet():  # also galpy's verbose "using C" notices
-        orbits.integrate(t_nat, model.pot, method=method, progressbar=False)
-    track = np.asarray(orbits.orbit).reshape(len(w), len(t_nat), 6)
-    return from_galpy_natural(model, track), method
+    n, nt = len(w), len(t_nat)
+
+    def run(sub):
+        orbits = Orbit(to_galpy_natural(model, sub))
+        with omp_threads(numcores), _quiet():  # also galpy's verbose "using C" notices
+            orbits.integrate(t_nat, model.pot, method=method, progressbar=False)
+        return from_galpy_natural(model, np.asarray(orbits.orbit).reshape(len(sub), nt, 6))
+
+    timed_out = np.zeros(n, dtype=bool)
+    if not model.has_c:
+        return run(w), method, timed_out
+    try:
+        return _guarded(lambda: run(w), timeout), method, timed_out
+    except IntegrationTimeout:
+        if n == 1:
+            return np.full((1, nt, 6), np.nan), method, np.ones(1, dtype=bool)
+    # Find the runaway star(s): the others take their usual milliseconds each.
+    track = np.full((n, nt, 6), np.nan)
+    per_star = timeout if star_timeout is None else star_timeout
+    for i in range(n):
+        try:
+            track[i] = _guarded(lambda: run(w[i:i + 1]), per_star)[0]
+        except IntegrationTimeout:
+            timed_out[i] = True
+    return track, method, timed_out
 
 
 # --------------------------------------------------------------------------------------- Staeckel

@@ -965,12 +965,12 @@ def _read_catalog(source, format=None, aliases=None, units=None, copy=True, enco
         hints = "; ".join(
             f"{m}: {', '.join(sum((_spellings(part) for part in m.split(' or ')), []))}" for m in missing
         )
-        raise CatalogError(
-            f"missing required column(s): {', '.join(missing)}. Columns found: "
-            f"{_list_names(table.colnames)}. Names recognised (any case): {hints}. "
-            f"Pass aliases={{'your_column': 'standard_name'}} for other names"
-            + _missing_column_cause(table.colnames, lookup, description)
-        )
+        message = (f"missing required column(s): {', '.join(missing)}. Columns found: "
+                   f"{_list_names(table.colnames)}. Names recognised (any case): {hints}. "
+                   f"Pass aliases={{'your_column': 'standard_name'}} for other names")
+        cause = _missing_column_cause(table.colnames, lookup, description)
+        # The likely cause goes first: it is the fix, and the list of recognised names is long.
+        raise CatalogError(f"{cause[2:]}. Hence: {message}" if cause else message)
 
     stated_units = {}
     for key, unit in (units or {}).items():

@@ -24,6 +24,7 @@ from dataclasses import dataclass, field
 import ipywidgets as widgets
 import numpy as np
 
+from ..orbits import ADVISORY_FLAGS
 from ._base import AnalysisWidget, Panel
 from .controls import NumberField
 from .state import ConfigError, potential_from_config, require_mapping
@@ -565,8 +566,13 @@ class OrbitExplorer(AnalysisWidget):
             cloud = _integrate(samples, pot, frame, np.linspace(0.0, span, min(n, CLOUD_POINTS)))
         main = forward if forward is not None else backward
         for name, orbits in (("orbit", main), ("backward orbit", backward if forward is not None else None)):
-            if orbits is not None and orbits.flags[0]:
-                raise ValueError(f"the {name} could not be computed: {orbits.flags[0]}")
+            if orbits is None:
+                continue
+            # Advisory flags (e.g. a time grid too coarse for exact turning points) keep the orbit;
+            # anything else means there is no orbit to show.
+            fatal = [flag for flag in str(orbits.flags[0]).split(";") if flag and flag not in ADVISORY_FLAGS]
+            if fatal:
+                raise ValueError(f"the {name} could not be computed: {'; '.join(fatal)}")
         start = np.array([float(_plain(phase[k])[0]) for k in _PHASE_SPACE])
         note = "" if request["dragged_from"] is None else \
             f"velocity set by dragging (star converted from the {request['dragged_from']}, which is kept)"
@@ -608,6 +614,9 @@ class OrbitExplorer(AnalysisWidget):
     def _summary(self, view):
         p = self.orbital_parameters()
         text = f"rperi {p['rperi']:.2f} kpc, rapo {p['rapo']:.2f} kpc, zmax {p['zmax']:.2f} kpc"
+        advisory = str(view.orbits.flags[0])
+        if advisory:   # e.g. coarse_time_grid: the turning points may be off; more output points fix it
+            text += f"; caution: {advisory.replace(';', ', ')} (see mwkin.integrate_orbits)"
         return f"{text}; {view.note}" if view.note else text
 
     def _provenance_for(self, view, request):

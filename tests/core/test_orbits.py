@@ -152,12 +152,13 @@ def test_non_finite_stars_are_flagged_not_fatal(pot, disc_stars):
     table = _as_table(stars)
     table["has_velocity"] = True
     table["has_velocity"][7] = False
-    orbits = integrate_orbits(table, pot, t=np.linspace(0, 0.2, 21))
+    # 0.5 Myr steps: a 10 Myr grid (as here before) is now rightly flagged "coarse_time_grid" for zmax.
+    orbits = integrate_orbits(table, pot, t=np.linspace(0, 0.2, 401))
     assert list(orbits.flags[[2, 5, 7]]) == ["nonfinite_input", "nonfinite_input", "no_velocity"]
     assert np.all(np.isnan(orbits.x[[2, 5, 7]].value))
     good = np.setdiff1d(np.arange(len(stars)), [2, 5, 7])
     assert np.all(orbits.flags[good] == "") and np.all(np.isfinite(orbits.rapo[good].value))
-    clean = integrate_orbits(disc_stars[good], pot, t=np.linspace(0, 0.2, 21))
+    clean = integrate_orbits(disc_stars[good], pot, t=np.linspace(0, 0.2, 401))
     np.testing.assert_allclose(orbits.x[good].value, clean.x.value, rtol=1e-13)
     params = orbit_parameters(table, pot)
     assert list(params["flag"][[2, 5, 7]]) == ["nonfinite_input", "nonfinite_input", "no_velocity"]
@@ -356,3 +357,107 @@ def test_integrated_parameters_with_samples(pot, disc_stars):
     # The nominal values are those of integrate_orbits on the same grid.
     orbits = integrate_orbits(disc_stars[:3], pot, t=np.linspace(0, 1.0, 1001))
     np.testing.assert_allclose(params["rapo"].value, orbits.rapo.value, rtol=1e-13)
+
+
+# ------------------------------------------------------------------ grid resolution, Staeckel validity, float32
+def test_coarse_time_grid_is_flagged_not_silent(pot, disc_stars):
+    fine = integrate_orbits(disc_stars, pot, t=np.linspace(0, 2.0, 4001))
+    assert set(fine.flags) == {""}
+    # Two points 0.1 Gyr apart: the extremes of two samples are not the orbit's; flagged, values kept.
+    two = integrate_orbits(disc_stars, pot, t=[0.0, 0.1])
+    assert np.all(two.flags == "coarse_time_grid") and np.all(np.isfinite(two.rapo.value))
+    # 20 Myr steps over 2 Gyr: about 4 samples per vertical period near the Sun; zmax is sampled badly.
+    coarse = integrate_orbits(disc_stars, pot, t=np.linspace(0, 2.0, 101))
+    flagged = coarse.flags == "coarse_time_grid"
+    assert np.all(flagged | (coarse.flags == "")) and flagged.any()
+    # Every star whose zmax or rapo is off by more than 1 % is among the flagged ones.
+    worst = np.maximum(np.abs(coarse.zmax.value / fine.zmax.value - 1), np.abs(coarse.rapo.value / fine.rapo.value - 1))
+    assert np.any(worst > 0.01) and np.all(flagged[worst > 0.01])
+    params = orbit_parameters(disc_stars, pot, method="integrate", t=[0.0, 0.1])
+    assert all("coarse_time_grid" in f and "short_time_grid" in f for f in params["flag"])
+    good = orbit_parameters(disc_stars, pot, method="integrate", t=np.linspace(0, 2.0, 4001))
+    assert set(good["flag"]) == {""}
+
+
+def test_extreme_at_the_end_of_a_short_span_is_exact(pot):
+    # Over 20 Myr the Sun's r grows after a dip: rapo is the end point, exactly, whatever the step; no
+    # coarse flag (the span is short, which integrate_orbits does not judge).
+    orbits = integrate_orbits(SUN, pot, t=[0.0, 0.01, 0.02])
+    dense = integrate_orbits(SUN, pot, t=np.linspace(0, 0.02, 2001))
+    assert orbits.flags[0] == ""
+    assert orbits.rapo[0].value == pytest.approx(dense.rapo[0].value, rel=1e-12)
+    # |z| peaks just before the end: within the criterion's 1 pc (0.46 pc here).
+    assert orbits.zmax[0].value == pytest.approx(dense.zmax[0].value, abs=1e-3)
+
+
+def test_staeckel_on_a_polar_orbit_gives_no_impossible_values(pot):
+    polar = np.array([-8.1, 0.0, 0.02, 250.0, 0.0, 250.0])  # Lz = 0
+    st = orbit_parameters(polar, pot)
+    # Before: zmax = -34 kpc and e = 1 with no flag.
+    assert st["flag"][0] == "staeckel_unphysical"
+    assert all(np.isnan(st[k][0].value) for k in ("rperi", "rapo", "zmax", "eccentricity"))
+    assert np.isfinite(st["energy"][0].value) and st["Lz"][0].value == 0
+    integ = orbit_parameters(polar, pot, method="integrate")
+    assert integ["flag"][0] == "" and integ["zmax"][0].value == pytest.approx(36.1, abs=0.1)  # measured here
+
+
+@pytest.fixture(scope="module")
+def halo_stars():
+    rng = np.random.default_rng(3)
+    n = 40
+    R, z = rng.uniform(4, 12, n), rng.normal(0, 2, n)
+    cyl = (R, rng.uniform(-0.5, 0.5, n), z, rng.normal(0, 150, n), rng.normal(0, 120, n), rng.normal(0, 100, n))
+    near_radial = [[-8.5, 0.3, 0.4, 330.0, 2.0, 20.0], [-6.0, -1.0, 1.0, -250.0, -45.0, 15.0]]
+    return np.vstack([np.column_stack(_cartesian(*cyl)), near_radial])
+
+
+def test_staeckel_unreliable_flag_marks_the_bad_halo_stars(pot, halo_stars):
+    # Reference: integrated orbits over 5 Gyr at 0.25 Myr steps; the few stars that grid cannot
+    # resolve (pericentres of ~50 pc) are flagged so and redone at 0.05 Myr, where they are not.
+    st = orbit_parameters(halo_stars, pot)
+    t = np.linspace(0, 5.0, 20001)
+    integ = orbit_parameters(halo_stars, pot, method="integrate", t=t)
+    assert set(integ["flag"]) <= {"", "coarse_time_grid"}
+    redo = np.flatnonzero(integ["flag"] == "coarse_time_grid")
+    if redo.size:
+        finer = orbit_parameters(halo_stars[redo], pot, method="integrate", t=np.linspace(0, 5.0, 100001))
+        assert set(finer["flag"]) == {""}
+        for k in ("rperi", "rapo", "zmax", "eccentricity"):
+            integ[k][redo] = finer[k]
+    flagged = np.array([f != "" for f in st["flag"]])
+    assert set(st["flag"]) <= {"", "staeckel_unreliable", "staeckel_unphysical"}
+    assert flagged[-2:].all()  # the near-radial stars (e near 1)
+    d_e = np.abs(st["eccentricity"].value - integ["eccentricity"].value)
+    d_zmax = np.abs(st["zmax"].value / integ["zmax"].value - 1)
+    d_rapo = np.abs(st["rapo"].value / integ["rapo"].value - 1)
+    ok = ~flagged
+    assert ok.sum() >= len(ok) // 3
+    # Unflagged: agree with the integration. Measured on these stars: rapo within 1 %, e within 0.05,
+    # zmax within 12 % (median 0.5 %); the limits below leave some room.
+    assert np.all(d_rapo[ok] < 0.05) and np.all(d_e[ok] < 0.1) and np.all(d_zmax[ok] < 0.2)
+    assert np.median(d_zmax[ok]) < 0.02
+    # The bad ones are flagged: every star with zmax off by > 20 % (here 29-38 %) or e off by > 0.1.
+    bad = (d_e > 0.1) | (d_zmax > 0.2) | ~np.isfinite(d_e)
+    assert bad.sum() >= 2 and np.all(flagged[bad])
+    # Impossible values never appear.
+    values = {k: st[k].value for k in ("rperi", "rapo", "zmax", "eccentricity")}
+    finite = np.isfinite(values["rapo"])
+    assert np.all(values["zmax"][finite] >= 0) and np.all(values["rperi"][finite] <= values["rapo"][finite])
+    assert np.all((values["eccentricity"][finite] >= 0) & (values["eccentricity"][finite] <= 1))
+
+
+def test_float32_time_grid_is_accepted(pot):
+    t32 = np.linspace(0, 1.0, 1001, dtype=np.float32)
+    a = integrate_orbits(SUN, pot, t=t32)
+    b = integrate_orbits(SUN, pot, t=np.linspace(0, 1.0, 1001))
+    # The times are the float32 values as given (no snapping), in float64: within 6e-8 Gyr of b's.
+    assert a.t.value.dtype == np.float64
+    np.testing.assert_array_equal(a.t.value, t32.astype(float))
+    np.testing.assert_allclose(a.x.value, b.x.value, rtol=0, atol=1e-4)  # 250 km/s x 6e-8 Gyr ~ 2e-5 kpc
+    q = orbit_parameters(SUN, pot, method="integrate", t=np.linspace(0, 1000, 2001, dtype=np.float32) * u.Myr)
+    assert q["flag"][0] == ""
+    # Still refused when really uneven, beyond float32 rounding.
+    bad = t32.copy()
+    bad[500] += np.float32(1e-4)
+    with pytest.raises(TimeGridError, match="evenly spaced"):
+        integrate_orbits(SUN, pot, t=bad)

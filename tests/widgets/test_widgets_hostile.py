@@ -319,3 +319,21 @@ def test_orbit_explorer_given_a_bad_table_says_so_and_keeps_its_star(survey):
     with pytest.warns(SampleWarning, match="row = 9"):
         assert ex.set_stars(survey[:5], row=9) is False
     assert ex.set_stars(survey[:5], row=2) is True and ex.source.value == "table"
+
+
+def test_orbit_explorer_on_the_galactic_axis_says_so_and_keeps_working():
+    """A star typed at R = 0 used to hang the integrator: now an error on screen, and later stars compute."""
+    ex = OrbitExplorer(star={"x": 0.0, "y": 0.0, "z": 0.5, "vx": 0.0, "vy": 0.0, "vz": 0.0}, threaded=True)
+    ex.wait(120)
+    assert ex.status.startswith("error") and "on_z_axis" in ex.status
+    assert ex.result is None and hidden(ex)
+    ex.phase_fields["x"].text.value = -8.0
+    ex.phase_fields["vy"].text.value = 220.0
+    ex.wait(120)
+    assert ex.status.startswith("ready") and ex.result is not None and visible(ex)
+
+
+def test_orbit_explorer_with_a_coarse_grid_draws_and_cautions():
+    ex = OrbitExplorer(n_points=11, t_forward=1.0, threaded=False)
+    assert ex.status.startswith("ready") and "caution: coarse_time_grid" in ex.status
+    assert ex.result is not None
