@@ -43,6 +43,7 @@ from __future__ import annotations
 
 import math
 import os
+import warnings
 
 import numpy as np
 import astropy.units as u
@@ -637,7 +638,10 @@ def _load(source, format, encoding=None):
             astropy_format = "ascii.ecsv"
         if encoding is not None and astropy_format not in _TEXT_FORMATS:
             raise CatalogError(text_only + f"{path} (read as {astropy_format})")
+        _check_content_matches_format(path, astropy_format)
         _check_header(path, astropy_format, encoding, path)
+        if astropy_format == "parquet":
+            _verify_parquet_checksums(path)
         return _read_file(path, astropy_format, path, encoding), path, True, astropy_format
     if hasattr(source, "read"):
         if format is None:
@@ -663,6 +667,43 @@ def _seekable(fileobj):
         return bool(fileobj.seekable())
     except (AttributeError, OSError, ValueError):
         return False
+
+
+#: First bytes of the binary formats (FITS standard 4.0, Sect. 4.4.1.1; Apache Parquet format
+#: specification, "PAR1"; the XML declaration or VOTABLE element of a VOTable) [from memory].
+_MAGIC = ((b"SIMPLE  =", "fits", "FITS"), (b"PAR1", "parquet", "Parquet"), (b"<?xml", "votable", "XML/VOTable"),
+          (b"<VOTABLE", "votable", "VOTable"))
+
+
+def _check_content_matches_format(path, astropy_format):
+    """Refuse a file whose first bytes say it is another format than its name (or format=) says."""
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(16)
+    except OSError:
+        return  # the reader reports it
+    for magic, fmt, spoken in _MAGIC:
+        if head.startswith(magic) and astropy_format != fmt:
+            raise CatalogError(f"{path} is read as {astropy_format} (from its name or format=), but its content "
+                               f"is a {spoken} file (it starts with {magic!r}): rename it or pass format={fmt!r}")
+
+
+def _verify_parquet_checksums(path):
+    """Check the page checksums a Parquet writer may have stored (pyarrow keeps them optional).
+
+    Damaged data pages in a file with intact metadata otherwise read without error; where the writer
+    stored CRC checksums, pyarrow can verify them. Files without checksums pass (the range checks
+    still look at the values).
+    """
+    import pyarrow.parquet as pq
+
+    try:
+        pq.read_table(path, page_checksum_verification=True)
+    except OSError as exc:
+        raise CatalogError(f"{path} is damaged: a Parquet data page fails its checksum ({exc}); nothing was "
+                           "read from it") from None
+    except Exception:  # noqa: BLE001 - any other problem is reported by the reader with its own message
+        return
 
 
 def _read_file(source, astropy_format, description, encoding=None):
@@ -1044,6 +1085,8 @@ def _read_catalog(source, format=None, aliases=None, units=None, copy=True, enco
     if "distance" in converted:
         label, assumed = unit_assumed["distance"]
         _warn_if_distance_in_pc("distance", label, converted["distance"], summaries["distance"], not assumed)
+    if "radial_velocity" in converted and unit_assumed.get("radial_velocity", (None, False))[1]:
+        _warn_if_velocities_look_like_m_per_s(unit_assumed["radial_velocity"][0], converted["radial_velocity"])
 
     n_rows = len(table)
     filled = []
@@ -1116,6 +1159,24 @@ def _missing_column_cause(names, lookup, description):
                     f"comma-separated CSV: convert the file, or read it with astropy "
                     f"(Table.read(path, format='ascii.csv', delimiter={delimiter!r})) and pass the table")
     return ""
+
+
+#: Median |radial velocity| (km/s) above which a column without a unit is probably in m/s (our choice:
+#: stars near the Sun move at tens of km/s, the fastest known stars at about 1,000 km/s).
+SUSPICIOUS_MEDIAN_RV_KMS = 1000.0
+
+
+class VelocityUnitWarning(UserWarning):
+    """Radial velocities without a stated unit that look like m/s although km/s is assumed."""
+
+
+def _warn_if_velocities_look_like_m_per_s(label, values):
+    finite = np.abs(values[np.isfinite(values)])
+    if finite.size and float(np.median(finite)) > SUSPICIOUS_MEDIAN_RV_KMS:
+        warnings.warn(f"{label}: the median |radial velocity| is {float(np.median(finite)):.6g}, taken as km/s "
+                      f"(no unit given), i.e. beyond {SUSPICIOUS_MEDIAN_RV_KMS:g} km/s; are the velocities in "
+                      "m/s? If so, state the unit (units={'radial_velocity': 'm/s'})", VelocityUnitWarning,
+                      stacklevel=4)
 
 
 def _warn_if_distance_in_pc(std, label, values, summary, unit_stated):

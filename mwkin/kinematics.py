@@ -1258,12 +1258,15 @@ def _flags(reason_arrays, n):
     return flags
 
 
-def _check_options(errors, n_samples, percentiles, return_covariance, distance):
+def _check_options(errors, n_samples, percentiles, return_covariance, distance, seed=None):
     if errors not in ERROR_METHODS:
         raise KinematicsError(f"errors must be one of {', '.join(map(repr, ERROR_METHODS))}, got {errors!r}")
     if errors == "montecarlo":
         if isinstance(n_samples, bool) or not isinstance(n_samples, numbers.Integral) or n_samples < 2:
             raise KinematicsError(f"n_samples must be an integer >= 2, got {n_samples!r}")
+        if not (seed is None or isinstance(seed, np.random.Generator)
+                or (isinstance(seed, numbers.Integral) and not isinstance(seed, bool) and seed >= 0)):
+            raise KinematicsError(f"seed must be a whole number >= 0, a numpy Generator or None, got {seed!r}")
         try:
             levels = np.asarray(percentiles, dtype=float).ravel()
         except (TypeError, ValueError):
@@ -1376,7 +1379,7 @@ def to_galactocentric(stars, frame=None, *, errors="none", distance=None, n_samp
     ESA 1997, The Hipparcos and Tycho Catalogues, ESA SP-1200, Vol. 1, Sect. 1.5.3 (Galactic axes).
     Bailer-Jones, C. A. L. 2015, PASP 127, 994 (why 1/parallax needs a signal-to-noise cut).
     """
-    _check_options(errors, n_samples, percentiles, return_covariance, distance)
+    _check_options(errors, n_samples, percentiles, return_covariance, distance, seed)
     frame = _frame_or_default(frame)
     choice = InverseParallax() if distance is None else distance
     table = _standard_table(stars)

@@ -1072,8 +1072,10 @@ def _(d):
 def _judge_read_same(o, names, expect_rows=4, label=""):
     """A text-format variant of BASIC: good if read right, weak if refused, bad if read wrong."""
     if o.exc:
+        # The issue asks for the likely cause to be named: a refusal that names it is good, one that
+        # does not is weak (reading the file right would be good too).
         v, r = judge_error(o.exc, names, [])
-        return WEAK, f"{label} refused: {r}"
+        return (GOOD if v == GOOD else WEAK), f"{label} refused: {r}"
     t = o.value
     try:
         ok = (len(t) == expect_rows and np.allclose(fval(t["ra"]), BASIC["ra"])

@@ -340,3 +340,54 @@ def test_numbers_as_bytes_and_objects():
     np.testing.assert_array_equal(read_catalog(t)["pmdec"].value, [0.5, 1.0, np.nan, 2.5])
     t["pmdec"] = np.array(["0.5", 1.0, "", " 2.5 "], dtype=object)
     np.testing.assert_array_equal(read_catalog(t)["pmdec"].value, [0.5, 1.0, np.nan, 2.5])
+
+
+# ---------------------------------------------------------------------- content and units
+def test_a_file_whose_content_is_another_format_than_its_name_says(tmp_path):
+    import mwkin as mk
+    from astropy.table import Table
+
+    path = tmp_path / "stars.csv"
+    Table(mk.demo.survey(n=5, seed=1)).write(tmp_path / "stars.fits")
+    (tmp_path / "stars.fits").rename(path)
+    with pytest.raises(CatalogError, match=r"content is a FITS file .* format='fits'"):
+        mk.read_catalog(path)
+    assert len(mk.read_catalog(path, format="fits")) == 5
+
+
+def test_parquet_page_checksums_are_verified(tmp_path):
+    """A flipped bit in a data page of a file written with checksums: refused, not read as another value."""
+    import numpy as np
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    import mwkin as mk
+
+    ra = np.full(64, 52.3232)
+    table = pa.table({"ra": ra, "dec": np.full(64, 10.0), "parallax": np.ones(64), "pmra": np.ones(64),
+                      "pmdec": np.ones(64)})
+    path = tmp_path / "stars.parquet"
+    pq.write_table(table, path, compression=None, use_dictionary=False, write_page_checksum=True)
+    data = bytearray(path.read_bytes())
+    spot = data.find(np.float64(52.3232).tobytes() * 8)   # inside the data page, not its statistics
+    data[spot + 7] ^= 0x01          # the exponent byte of the first ra: a plausible, wrong value
+    path.write_bytes(bytes(data))
+    with pytest.raises(CatalogError, match="fails its checksum"):
+        mk.read_catalog(path)
+
+
+def test_radial_velocities_in_m_per_s_without_a_unit_warn():
+    import warnings
+
+    import mwkin as mk
+    from astropy.table import Table
+    from mwkin.catalog import VelocityUnitWarning
+
+    stars = Table({"ra": [10.0, 20.0, 30.0], "dec": [0.0, 5.0, 10.0], "parallax": [1.0, 2.0, 3.0],
+                   "pmra": [1.0, 2.0, 3.0], "pmdec": [1.0, 2.0, 3.0], "radial_velocity": [25e3, -31e3, 12e3]})
+    with pytest.warns(VelocityUnitWarning, match="median \\|radial velocity\\| is 25000.*m/s"):
+        mk.read_catalog(stars)
+    stars["radial_velocity"] = [25.0, -31.0, 12.0]
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", VelocityUnitWarning)
+        mk.read_catalog(stars)

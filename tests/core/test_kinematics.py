@@ -756,3 +756,11 @@ def test_distance_column_of_plain_numbers_in_pc_warns():
     with warnings.catch_warnings():
         warnings.simplefilter("error")
         np.testing.assert_allclose(DistanceColumn("d").resolve(t).distance_kpc[:2], [0.1, 0.25])
+
+
+def test_a_negative_monte_carlo_seed_is_named():
+    import mwkin as mk
+    from mwkin.kinematics import KinematicsError
+
+    with pytest.raises(KinematicsError, match="seed must be a whole number >= 0.*got -5"):
+        mk.to_galactocentric(mk.demo.survey(n=10, seed=1), errors="montecarlo", n_samples=10, seed=-5)
