@@ -18,12 +18,13 @@ ALLOW_ROOT := $(if $(filter 0,$(shell id -u)),--allow-root,)
 TOUR := example_notebooks/01_tour.ipynb
 PYTEST_ARGS ?=
 
-.PHONY: help install lab test test-python test-js chromium bench
+.PHONY: help install lab test test-python test-js chromium bench docs
 
 help:
 	@echo "make lab     set up .venv and open $(TOUR) in JupyterLab"
-	@echo "make test    set up .venv (+ chromium when root) and run pytest and the node tests"
+	@echo "make test    set up .venv (+ chromium when root) and run the node tests, pytest and make docs"
 	@echo "make bench   run every benchmarks/bench_*.py in turn"
+	@echo "make docs    build the documentation site (docs/_build/html; runs the example notebooks)"
 
 $(VPY):
 	$(PYTHON) -m venv $(VENV)
@@ -70,13 +71,18 @@ test-js:
 test-python: install
 	$(VPY) -m pytest $(PYTEST_ARGS)
 
-# Node tests first (seconds), pytest last so its summary closes the output; both always run and
-# the target fails if either failed.
+# Node tests first (seconds), then pytest, then the documentation build; all three always run and
+# the target fails if any failed.
 test: install chromium
 	@rc=0; \
 	$(MAKE) --no-print-directory test-js || rc=1; \
 	$(MAKE) --no-print-directory test-python || rc=1; \
+	$(MAKE) --no-print-directory docs || rc=1; \
 	exit $$rc
+
+# The documentation site, warnings as errors; it executes the example notebooks (see docs/conf.py).
+docs: install
+	$(VENV)/bin/sphinx-build -W --keep-going -b html docs docs/_build/html
 
 bench: install
 	@shopt -s nullglob; files=(benchmarks/bench_*.py); \

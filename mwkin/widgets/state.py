@@ -46,8 +46,8 @@ DEFAULT_POTENTIAL_PRESET = "MWPotential2014"
 class FrameState(traitlets.HasTraits):
     """The solar frame shared by widgets.
 
-    Traits
-    ------
+    Attributes
+    ----------
     R0 : float
         Sun--centre distance, kpc.
     z_sun : float
@@ -147,8 +147,8 @@ class FrameState(traitlets.HasTraits):
 class PotentialState(traitlets.HasTraits):
     """The Galactic potential shared by widgets.
 
-    Traits
-    ------
+    Attributes
+    ----------
     preset : str
         Name of a published model (``Potential.presets()``), or "" to use ``parameters``.
     parameters : dict
