@@ -25,10 +25,12 @@ import astropy.units as u
 from astropy.table import QTable
 
 from mwkin.distances import InverseParallax
-from mwkin.galactic import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC
+from mwkin.coords import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC
 from mwkin.oort import fit_oort
-from mwkin.oort_sample import prepare_sample
-from mwkin.oort_solver import PARAMETERS, _T, _linear_step, solve
+from mwkin.oort.sample import prepare_sample
+from mwkin.oort.model import PARAMETERS
+from mwkin.oort.model import DESIGN as _T
+from mwkin.oort.solver import _linear_step, solve
 
 K = K_KMS_PER_MASYR_KPC
 

@@ -30,7 +30,7 @@ import warnings  # noqa: E402
 import numpy as np  # noqa: E402
 
 from mwkin import Potential, integrate_orbits, orbit_parameters  # noqa: E402
-from mwkin.orbits import _cartesian  # noqa: E402
+from mwkin.orbits.inputs import _cartesian  # noqa: E402
 
 
 def disc_sample(n, seed=1):

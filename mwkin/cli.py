@@ -132,7 +132,7 @@ def _distance(args):
 
 def _table_format(path, option):
     """The astropy format for an output table, from its suffix; the suffixes are read_catalog's own."""
-    from .catalog import _FORMATS, _SUFFIXES
+    from .catalog.files import _FORMATS, _SUFFIXES
 
     ext = os.path.splitext(path)[1].lower()
     if ext not in _SUFFIXES:

@@ -16,8 +16,9 @@ import numpy as np
 import astropy.units as u
 from astropy.table import QTable
 
+from .columns import CORRELATION_COLUMNS, CORRELATION_PAIRS
 from .frames import SolarFrame
-from .galactic import K_KMS_PER_MASYR_KPC
+from .coords import K_KMS_PER_MASYR_KPC
 from .kinematics import from_galactocentric
 from .units import KMS, MASYR
 
@@ -40,10 +41,8 @@ DEFAULTS = {
     "rv_fraction": 0.3,  # the brightest 30% get radial velocities
 }
 
-_CORR_NAMES = ("ra_dec_corr", "ra_parallax_corr", "ra_pmra_corr", "ra_pmdec_corr", "dec_parallax_corr",
-               "dec_pmra_corr", "dec_pmdec_corr", "parallax_pmra_corr", "parallax_pmdec_corr",
-               "pmra_pmdec_corr")
-_CORR_INDEX = ((0, 1), (0, 2), (0, 3), (0, 4), (1, 2), (1, 3), (1, 4), (2, 3), (2, 4), (3, 4))
+_CORR_NAMES = CORRELATION_COLUMNS
+_CORR_INDEX = tuple(CORRELATION_PAIRS)
 _N_FACTORS = 7  # latent factors behind the correlated noise
 _RIDGE = 0.05  # added to the diagonal so that every correlation matrix is positive definite
 
@@ -171,7 +170,7 @@ def survey(n=20000, seed=1, frame=None, *, noise=True):
     The model (our own, chosen to resemble the solar neighbourhood):
 
     * positions: in-plane surface density around the Sun ~ exp(-s / 0.8 kpc), vertical density
-      ~ exp(-|z| / 0.3 kpc) about the mid-plane, heliocentric distances 0.02-3 kpc, absolute magnitudes
+      ~ exp(-``|z|`` / 0.3 kpc) about the mid-plane, heliocentric distances 0.02-3 kpc, absolute magnitudes
       M_G ~ N(5, 2) and a magnitude limit G <= 20 (no extinction), so the sample thins out with
       distance as a real magnitude-limited one does;
     * velocities: mean flow v_phi = v0 (R / R_sun)^beta with v0 = 220 km/s and beta = -0.1 (R_sun the

@@ -29,8 +29,9 @@ from dataclasses import dataclass
 import numpy as np
 import astropy.units as u
 
+from .columns import column_values
 from ._validate import real_number, require_mapping, text
-from .units import UnitMismatchError, to_value
+from .units import to_value
 
 __all__ = [
     "DistanceError",
@@ -100,25 +101,8 @@ def warn_if_distances_look_like_pc(values, label, assumed, fix):
 
 
 def _column_values(table, name, unit):
-    """Float64 values of a table column in ``unit`` (plain columns are taken to be in it); masked -> NaN."""
-    col = table[name]
-    mask = getattr(col, "mask", None)
-    if hasattr(col, "unmasked"):  # astropy Masked Quantity
-        col = col.unmasked
-    if not isinstance(col, u.Quantity) and getattr(col, "unit", None) is not None:
-        # a plain Table column with a unit: the unit counts (100 pc is not 100 kpc)
-        col = u.Quantity(np.ma.getdata(col), col.unit, copy=False)
-    try:
-        values = to_value(col if isinstance(col, u.Quantity) else np.ma.getdata(col), unit, name)
-    except UnitMismatchError:
-        raise
-    except (TypeError, ValueError):
-        raise DistanceError(f"column {name!r} is not numeric (expected numbers in {unit})") from None
-    values = np.asarray(values, dtype=float).reshape(-1)  # a view where possible: callers never write to it
-    if mask is not None and np.any(mask):
-        values = values.copy()
-        values[np.asarray(mask).reshape(-1)] = np.nan
-    return values
+    """Float64 values of a table column in ``unit`` (:func:`mwkin.columns.column_values`)."""
+    return column_values(table, name, unit, error=DistanceError)
 
 
 @dataclass(frozen=True)

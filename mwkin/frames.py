@@ -29,10 +29,27 @@ import astropy.units as u
 
 from ._validate import (check_keys, is_plain, real_number, real_vector, require_mapping, text,
                         warn_implausible)
-from .galactic import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC, _rot, tangent_basis
+from .coords import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC, _rot, tangent_basis
 from .units import KMS, to_value
 
-__all__ = ["SolarFrame", "Preset", "ReflexProperMotion", "FrameError", "UnknownPresetError", "warn_if_implausible"]
+__all__ = ["SolarFrame", "Preset", "ReflexProperMotion", "FrameError", "UnknownPresetError", "warn_if_implausible",
+           "frame_or_default", "reflex_comparison", "DEFAULT_PRESET", "DEFAULT_FRAME_PARAMETERS",
+           "SGR_A_STAR_PROPER_MOTION", "SCHOENRICH2010_SOLAR_MOTION"]
+
+#: Name of the preset a :class:`SolarFrame` built without arguments equals.
+DEFAULT_PRESET = "astropy v4.0"
+
+#: The default frame's parameters (astropy's Galactocentric defaults since v4.0): R0 in kpc, z_sun in pc,
+#: v_sun in km/s. Read-only; the one home of these numbers (the default preset and the widgets use it).
+DEFAULT_FRAME_PARAMETERS = types.MappingProxyType({"R0": 8.122, "z_sun": 20.8, "v_sun": (12.9, 245.6, 7.78)})
+
+#: Measured proper motion of Sgr A* in Galactic coordinates, mas/yr, as (value, sigma); mu_l is
+#: mu_l cos b (Reid & Brunthaler 2020, ApJ 892, 39).
+SGR_A_STAR_PROPER_MOTION = types.MappingProxyType({"mu_l": (-6.411, 0.008), "mu_b": (-0.219, 0.007)})
+
+#: The Sun's motion (U, V, W) relative to the local standard of rest, km/s (Schoenrich, Binney & Dehnen
+#: 2010, MNRAS 403, 1829).
+SCHOENRICH2010_SOLAR_MOTION = (11.1, 12.24, 7.25)
 
 #: astropy's default ICRS position of the Galactic centre, (l, b) = (0, 0) (astropy source).
 _GALCEN_RA_DEG = 266.4051
@@ -168,7 +185,7 @@ class SolarFrame:
     Warns
     -----
     ImplausibleValueWarning
-        For plain numbers that look like a unit slip: R0 < 1 or >= 100 (kpc), 0 < |z_sun| < 1 (pc;
+        For plain numbers that look like a unit slip: R0 < 1 or >= 100 (kpc), 0 < ``|z_sun|`` < 1 (pc;
         probably kpc), a v_sun component above 1000 km/s. Quantities state their unit and are trusted.
 
     Examples
@@ -178,9 +195,9 @@ class SolarFrame:
     8.2
     """
 
-    R0: float = 8.122
-    z_sun: float = 20.8
-    v_sun: tuple = (12.9, 245.6, 7.78)
+    R0: float = DEFAULT_FRAME_PARAMETERS["R0"]
+    z_sun: float = DEFAULT_FRAME_PARAMETERS["z_sun"]
+    v_sun: tuple = DEFAULT_FRAME_PARAMETERS["v_sun"]
     roll: float = 0.0
     galcen_ra: float = _GALCEN_RA_DEG
     galcen_dec: float = _GALCEN_DEC_DEG
@@ -394,6 +411,20 @@ class SolarFrame:
         """The Sun's Galactocentric Cartesian position (x, y, z), kpc."""
         return tuple(self.galactocentric_transform()[1])
 
+    @property
+    def inplane_radius(self):
+        """The Sun's cylindrical Galactocentric radius, kpc: sqrt(R0^2 - z_sun^2).
+
+        R0 is the Sun-centre distance (astropy's ``galcen_distance``), which includes the small tilt
+        from z_sun; galpy's ``ro`` and a rotation curve's radius are in-plane.
+
+        Examples
+        --------
+        >>> round(SolarFrame(R0=8.0, z_sun=25.0).inplane_radius, 8)
+        7.99996094
+        """
+        return math.sqrt(self.R0**2 - (self.z_sun / 1000.0) ** 2)
+
     def reflex_proper_motion(self):
         """Proper motion of the Galactic centre implied by this frame, for comparison with Sgr A*.
 
@@ -404,8 +435,8 @@ class SolarFrame:
 
         Notes
         -----
-        Compare with the measured proper motion of Sgr A*: mu_l = -6.411 +/- 0.008, mu_b = -0.219 +/- 0.007
-        mas/yr (Reid & Brunthaler 2020, ApJ 892, 39).
+        Compare with the measured proper motion of Sgr A*, :data:`SGR_A_STAR_PROPER_MOTION`
+        (:func:`reflex_comparison` does).
         """
         matrix, offset = self.galactocentric_transform()
         # The centre relative to the Sun, in ICRS then Galactic axes.
@@ -431,19 +462,76 @@ class SolarFrame:
 
 
 def _sgr_a_star_azimuthal_velocity(R0_kpc):
-    """Solar azimuthal velocity implied by Sgr A*'s mu_l = -6.411 mas/yr (Reid & Brunthaler 2020)."""
-    return 6.411 * K_KMS_PER_MASYR_KPC * R0_kpc
+    """Solar azimuthal velocity implied by Sgr A*'s measured mu_l (:data:`SGR_A_STAR_PROPER_MOTION`)."""
+    return -SGR_A_STAR_PROPER_MOTION["mu_l"][0] * K_KMS_PER_MASYR_KPC * R0_kpc
+
+
+def reflex_comparison(frame):
+    """The Galactic centre's reflex proper motion implied by ``frame`` against the measured one of Sgr A*.
+
+    Parameters
+    ----------
+    frame : SolarFrame
+
+    Returns
+    -------
+    dict
+        ``mu_l``, ``mu_b`` (implied, mas/yr; mu_l is mu_l cos b) and ``sigma_l``, ``sigma_b``: the
+        difference implied - measured in units of the measurement's standard deviation
+        (:data:`SGR_A_STAR_PROPER_MOTION`).
+    """
+    reflex = frame.reflex_proper_motion()
+    (ml, sl), (mb, sb) = SGR_A_STAR_PROPER_MOTION["mu_l"], SGR_A_STAR_PROPER_MOTION["mu_b"]
+    return {"mu_l": reflex.mu_l_star, "mu_b": reflex.mu_b,
+            "sigma_l": (reflex.mu_l_star - ml) / sl, "sigma_b": (reflex.mu_b - mb) / sb}
+
+
+def frame_or_default(frame, *, table=None, error=FrameError):
+    """The frame a computation uses: ``frame`` if given, else the table's own, else the default.
+
+    The one rule every core function follows for its ``frame=`` argument. The default is the preset
+    :data:`DEFAULT_PRESET` (equal to ``SolarFrame()``, and labelled with the preset's name).
+
+    Parameters
+    ----------
+    frame : SolarFrame or None
+        The frame asked for. Anything else than a :class:`SolarFrame` or None is refused.
+    table : astropy Table, optional
+        A table whose ``meta["frame"]`` (a :class:`SolarFrame` or its dict form, as mwkin's results
+        carry) is used when ``frame`` is None. A frame in the metadata that is not valid is an error,
+        never silently replaced by another frame.
+    error : type of Exception
+        The error class to raise (each module raises its own).
+
+    Returns
+    -------
+    SolarFrame
+    """
+    if frame is not None:
+        if not isinstance(frame, SolarFrame):
+            raise error(f"frame must be a SolarFrame (or None for the default), got {type(frame).__name__}")
+        return frame
+    meta_frame = getattr(table, "meta", {}).get("frame") if table is not None else None
+    if isinstance(meta_frame, SolarFrame):
+        return meta_frame
+    if isinstance(meta_frame, dict):
+        try:
+            return SolarFrame.from_dict(meta_frame)
+        except ValueError as exc:
+            raise error(f"the table's meta['frame'] is not a valid solar frame ({exc}); pass frame= "
+                        "explicitly or fix the metadata") from None
+    return SolarFrame.preset(DEFAULT_PRESET)
 
 
 _PRESETS = {
     p.name: p
     for p in [
         Preset(
-            name="astropy v4.0",
+            name=DEFAULT_PRESET,
             description="astropy's Galactocentric defaults since v4.0",
             citation=("R0: GRAVITY Collaboration 2018, A&A 615, L15; v_sun: Drimmel & Poggio 2018, "
                       "RNAAS 2, 210; z_sun: Bennett & Bovy 2019, MNRAS 482, 1417"),
-            params=dict(R0=8.122, z_sun=20.8, v_sun=(12.9, 245.6, 7.78)),
+            params=dict(DEFAULT_FRAME_PARAMETERS),
         ),
         Preset(
             name="Schoenrich 2010 + GRAVITY 2019",
@@ -452,14 +540,16 @@ _PRESETS = {
             citation=("U, W: Schoenrich, Binney & Dehnen 2010, MNRAS 403, 1829; R0 = 8.178 kpc: GRAVITY "
                       "Collaboration 2019, A&A 625, L10; v_y = k R0 |mu_l(Sgr A*)| with mu_l = -6.411 mas/yr: "
                       "Reid & Brunthaler 2020, ApJ 892, 39; z_sun: Bennett & Bovy 2019, MNRAS 482, 1417"),
-            params=dict(R0=8.178, z_sun=20.8, v_sun=(11.1, _sgr_a_star_azimuthal_velocity(8.178), 7.25)),
+            params=dict(R0=8.178, z_sun=20.8, v_sun=(SCHOENRICH2010_SOLAR_MOTION[0], _sgr_a_star_azimuthal_velocity(8.178),
+                                                      SCHOENRICH2010_SOLAR_MOTION[2])),
         ),
         Preset(
             name="astropy pre-v4.0",
             description="astropy's Galactocentric defaults before v4.0",
             citation=("R0: Gillessen et al. 2009, ApJ 692, 1075; v_sun: Schoenrich, Binney & Dehnen 2010 "
                       "with vc = 220 km/s (Bovy et al. 2012, ApJ 759, 131); z_sun: Chen et al. 2001, ApJ 553, 184"),
-            params=dict(R0=8.3, z_sun=27.0, v_sun=(11.1, 232.24, 7.25)),
+            params=dict(R0=8.3, z_sun=27.0, v_sun=(SCHOENRICH2010_SOLAR_MOTION[0], 220.0 + SCHOENRICH2010_SOLAR_MOTION[1],
+                                                    SCHOENRICH2010_SOLAR_MOTION[2])),
         ),
     ]
 }

@@ -21,7 +21,7 @@ REPO_ROOT = pathlib.Path(__file__).resolve().parents[1]
 CORE_MODULES = [
     "mwkin",
     "mwkin.units",
-    "mwkin.galactic",
+    "mwkin.coords",
     "mwkin.frames",
     "mwkin.catalog",
     "mwkin.kinematics",

@@ -19,7 +19,7 @@ Conventions
   v_phi = (y vx - x vy) / R, **positive in the sense of rotation** (the Sun has about +245 km/s).
   astropy's cylindrical representation uses atan2(y, x) and the opposite sense of rotation.
 * Heliocentric Galactic: X toward the Galactic centre (l = 0, b = 0), Y toward l = 90 deg, Z toward
-  the north Galactic pole, built with the Hipparcos ICRS-to-Galactic matrix (:mod:`mwkin.galactic`);
+  the north Galactic pole, built with the Hipparcos ICRS-to-Galactic matrix (:mod:`mwkin.coords`);
   U, V, W are velocities along X, Y, Z relative to the Sun (U positive toward the centre).
 * Units: kpc, km/s, mas/yr; angles in deg at the boundary (phi of :func:`cylindrical_from_cartesian`
   is in radians). k = 4.740470463533 km/s per (mas/yr kpc), one au per Julian year.
@@ -45,7 +45,8 @@ not start threads of its own), the rest plain numpy.
 
 from __future__ import annotations
 
-from ._shared import ERROR_METHODS, OUTPUT_COLUMNS, KinematicsError
+from ..columns import OUTPUT_COLUMNS
+from ._shared import ERROR_METHODS, KinematicsError
 from .table import from_galactocentric, to_galactocentric
 from .transforms import (
     cylindrical_from_cartesian,

@@ -6,7 +6,7 @@ import astropy.units as u
 import numpy as np
 
 from ..distances import _column_values
-from ..galactic import ICRS_TO_GALACTIC
+from ..coords import ICRS_TO_GALACTIC
 from ..units import KMS, MASYR
 from ._shared import (
     _CARTESIAN,

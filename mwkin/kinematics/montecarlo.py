@@ -7,16 +7,16 @@ import math
 import numpy as np
 
 from .._blocks import run_blocks
+from ..columns import OUTPUT_COLUMNS
+from . import _shared
 from ._shared import (
     _ANGLES,
-    _BLOCK,
     _DEG,
     _EIGEN_TOLERANCE,
     _MC_DRAWS_PER_BLOCK,
     _PIVOT_TOLERANCE,
     _SIGMA_LEVELS,
     _WRAPPING,
-    OUTPUT_COLUMNS,
 )
 from .linear import _error_inputs, _take
 from .transforms import _forward_all, _scratch_for
@@ -82,7 +82,7 @@ def _invalid_correlations(rho, n):
     suspect = np.zeros(n, dtype=bool)
     if not rho or n == 0:
         return suspect
-    run_blocks(n, _BLOCK, _CorrelationCheck(rho, suspect), _scratch_for(n))
+    run_blocks(n, _shared.BLOCK, _CorrelationCheck(rho, suspect), _scratch_for(n))
     rows = np.flatnonzero(suspect)
     if rows.size == 0:
         return suspect

@@ -9,17 +9,17 @@ import numpy as np
 from astropy.table import QTable
 
 from .._blocks import run_blocks
+from ..columns import OUTPUT_COLUMNS
+from . import _shared
 from ..distances import InverseParallax, _column_values
 from ..units import KMS, MASYR, to_value
 from ._shared import (
     _ANGLES,
-    _BLOCK,
     _CORR_REASON,
     _DEG,
     _SKY_REASON,
     _VELOCITY_COLUMNS,
     ERROR_METHODS,
-    OUTPUT_COLUMNS,
     KinematicsError,
 )
 from .linear import _error_columns, _Linear
@@ -248,7 +248,7 @@ def to_galactocentric(stars, frame=None, *, errors="none", distance=None, n_samp
     if montecarlo:
         trig = {k: np.empty(n) for k in ("sa", "ca", "sd", "cd")}
     # The Monte Carlo percentiles are taken in radians; otherwise the angles come out in degrees.
-    run_blocks(n, _BLOCK, _Forward(inputs, geo, pos, vel, columns, degrees=not montecarlo, trig=trig, then=then),
+    run_blocks(n, _shared.BLOCK, _Forward(inputs, geo, pos, vel, columns, degrees=not montecarlo, trig=trig, then=then),
                _scratch_for(n))
     columns["v_z"] = columns["vz"]
     columns["distance"] = d

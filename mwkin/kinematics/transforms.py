@@ -10,11 +10,11 @@ from dataclasses import dataclass
 import numpy as np
 
 from .._blocks import run_blocks
-from ..frames import SolarFrame
-from ..galactic import ICRS_TO_GALACTIC
+from . import _shared
+from ..frames import frame_or_default
+from ..coords import ICRS_TO_GALACTIC
 from ._shared import (
     _BLAS_CHUNK,
-    _BLOCK,
     _CARTESIAN,
     _DEG,
     _HELIO,
@@ -103,11 +103,7 @@ class _Geometry:
 
 
 def _frame_or_default(frame):
-    if frame is None:
-        return SolarFrame.preset("astropy v4.0")
-    if not isinstance(frame, SolarFrame):
-        raise KinematicsError(f"frame must be a SolarFrame (or None for the default), got {type(frame).__name__}")
-    return frame
+    return frame_or_default(frame, error=KinematicsError)
 
 
 # ====================================================================== forward conversion
@@ -134,7 +130,7 @@ class _Scratch:
 
     def __init__(self, capacity=None):
         self._arrays = {}
-        self.capacity = _BLOCK if capacity is None else capacity
+        self.capacity = _shared.BLOCK if capacity is None else capacity
 
     def vec(self, name, m):
         name = _SHARED_SCRATCH.get(name, name)
@@ -170,7 +166,7 @@ class _Scratch:
 
 def _scratch_for(n):
     """Maker of per-thread scratch for n rows (no larger than a block)."""
-    capacity = max(1, min(n, _BLOCK))
+    capacity = max(1, min(n, _shared.BLOCK))
     return lambda: _Scratch(capacity)
 
 
@@ -333,7 +329,7 @@ def _forward_all(sa, ca, sd, cd, d, pmra, pmdec, rv, geo):
     n = sa.shape[0]
     (pos, vel), columns = _allocate(n)
     inputs = dict(sa=sa, ca=ca, sd=sd, cd=cd, d=d, pmra=pmra, pmdec=pmdec, rv=rv)
-    run_blocks(n, _BLOCK, _Forward(inputs, geo, pos, vel, columns, degrees=False), _scratch_for(n))
+    run_blocks(n, _shared.BLOCK, _Forward(inputs, geo, pos, vel, columns, degrees=False), _scratch_for(n))
     columns["v_z"] = columns["vz"]
     columns["distance"] = d
     return columns
@@ -356,7 +352,7 @@ def _observables_forward(ra_deg, dec_deg, distance_kpc, pmra, pmdec, rv_kms, fra
     (pos, vel), columns = _allocate(n)
     inputs = dict(ra=ra, dec=dec, d=d, pmra=pa, pmdec=pd, rv=rv)
     geo = _Geometry.of(_frame_or_default(frame))
-    run_blocks(n, _BLOCK, _Forward(inputs, geo, pos, vel, columns, degrees=False), _scratch_for(n))
+    run_blocks(n, _shared.BLOCK, _Forward(inputs, geo, pos, vel, columns, degrees=False), _scratch_for(n))
     return columns
 
 

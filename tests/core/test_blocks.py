@@ -121,7 +121,7 @@ def test_results_do_not_depend_on_block_size_or_threads(monkeypatch, errors):
     monkeypatch.setenv("MWKIN_THREADS", "1")
     reference = kinematics.to_galactocentric(t, FRAME, **kw)
     for block, threads in ((7, "2"), (64, "2"), (100, "1")):
-        monkeypatch.setattr(kinematics, "_BLOCK", block)
+        monkeypatch.setattr(kinematics._shared, "BLOCK", block)
         monkeypatch.setenv("MWKIN_THREADS", threads)
         out = kinematics.to_galactocentric(t, FRAME, **kw)
         assert out.colnames == reference.colnames
@@ -142,7 +142,7 @@ def test_array_functions_on_many_blocks_match_a_single_block(monkeypatch):
     args = (rng.uniform(0, 360, n), rng.uniform(-90, 90, n), rng.uniform(0.1, 5, n), rng.normal(0, 5, n),
             rng.normal(0, 5, n), rng.normal(0, 30, n))
     whole = kinematics.galactocentric_from_observables(*args, frame=FRAME)
-    monkeypatch.setattr(kinematics, "_BLOCK", 33)
+    monkeypatch.setattr(kinematics._shared, "BLOCK", 33)
     monkeypatch.setenv("MWKIN_THREADS", "2")
     split = kinematics.galactocentric_from_observables(*args, frame=FRAME)
     for name, values in whole.items():

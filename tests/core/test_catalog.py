@@ -575,8 +575,16 @@ def test_input_meta_is_kept_and_not_modified():
 
 
 def test_docstring_examples():
-    result = doctest.testmod(catalog, optionflags=doctest.NORMALIZE_WHITESPACE)
-    assert result.attempted > 0 and result.failed == 0
+    # the examples live in the package's modules (reader, values, files) and in mwkin.columns
+    import mwkin.columns
+    from mwkin.catalog import files, reader, values
+
+    attempted = 0
+    for module in (catalog, reader, values, files, mwkin.columns):
+        result = doctest.testmod(module, optionflags=doctest.NORMALIZE_WHITESPACE)
+        assert result.failed == 0, module.__name__
+        attempted += result.attempted
+    assert attempted > 0
 
 
 @pytest.mark.parametrize("suffix", [".ecsv", ".fits", ".parquet"])

@@ -269,7 +269,10 @@ _UNITS = ["deg", "arcsec", "mas", "rad", "mas / yr", "arcsec / yr", "km / s", "k
 @pytest.mark.parametrize("reader", ["ecsv", "fits", "votable", "parquet", "table"])
 @FAST
 @given(column=st.sampled_from(COLUMNS), unit=st.sampled_from(_UNITS),
-       values=st.lists(st.floats(-1.0, 1.0, allow_nan=False, allow_subnormal=False), min_size=1, max_size=3))
+       # values that stay normal floats after any unit conversion (subnormal results are refused, and
+       # that refusal has its own tests)
+       values=st.lists(st.floats(-1.0, 1.0, allow_nan=False, allow_subnormal=False)
+                       .filter(lambda v: v == 0.0 or abs(v) > 1e-290), min_size=1, max_size=3))
 def test_units(tmp_path, reader, column, unit, values):
     n = len(values)
     columns = {k: [0.5] * n for k in COLUMNS}

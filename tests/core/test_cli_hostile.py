@@ -280,7 +280,7 @@ def test_every_supported_suffix_writes_a_readable_table(sample, tmp_path, suffix
 
 def test_the_format_table_is_the_catalogue_readers_own():
     # One home for the suffix list: the writer accepts exactly what read_catalog reads.
-    from mwkin.catalog import _SUFFIXES
+    from mwkin.catalog.files import _SUFFIXES
 
     for suffix in _SUFFIXES:
         assert cli._table_format(f"x{suffix}", "output")

@@ -21,7 +21,7 @@ from scipy.stats import norm
 from mwkin.catalog import CORRELATION_COLUMNS
 from mwkin.distances import (DistanceColumn, DistanceError, InverseParallax, REASONS, distance_from_dict)
 from mwkin.frames import SolarFrame
-from mwkin.galactic import K_KMS_PER_MASYR_KPC
+from mwkin.coords import K_KMS_PER_MASYR_KPC
 from mwkin.kinematics import (OUTPUT_COLUMNS, KinematicsError, cylindrical_from_cartesian, from_galactocentric,
                               galactocentric_from_observables, heliocentric_from_observables,
                               observables_from_galactocentric, to_galactocentric)

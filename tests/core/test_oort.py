@@ -18,9 +18,9 @@ from astropy.table import QTable
 
 from mwkin.distances import DistanceColumn, InverseParallax
 from mwkin.frames import SolarFrame
-from mwkin.galactic import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC, proper_motions_to_galactic
+from mwkin.coords import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC, proper_motions_to_galactic
 from mwkin.oort import UNCONSTRAINED_ERROR, OortFit, OortInputError, fit_in_distance_bins, fit_oort
-from mwkin.oort_sample import galactic_geometry, prepare_sample
+from mwkin.oort.sample import galactic_geometry, prepare_sample, sky_motions
 
 k = K_KMS_PER_MASYR_KPC
 KMS = u.km / u.s
@@ -90,7 +90,7 @@ def fit(stars):
 # ---------------------------------------------------------------------------------- geometry
 def test_galactic_geometry_matches_the_hipparcos_rotation(rng):
     # Hipparcos ICRS -> Galactic rotation (ESA 1997, SP-1200, Vol. 1, Sect. 1.5.3) as implemented in
-    # mwkin.galactic; the fit's faster rotation must agree to round-off.
+    # mwkin.coords; the fit's faster rotation must agree to round-off.
     ra = rng.uniform(0, 360, 500)
     dec = np.degrees(np.arcsin(rng.uniform(-1, 1, 500)))
     pmra, pmdec = rng.normal(0, 10, (2, 500))
@@ -102,6 +102,36 @@ def test_galactic_geometry_matches_the_hipparcos_rotation(rng):
     np.testing.assert_allclose(cb, np.cos(lat), atol=1e-12)
     np.testing.assert_allclose(c1 * pmra + c2 * pmdec, mu_l, atol=1e-11)
     np.testing.assert_allclose(-c2 * pmra + c1 * pmdec, mu_b, atol=1e-11)
+
+
+def test_sky_motions_are_the_galactic_coordinates_the_fit_uses(rng):
+    # The same Hipparcos rotation as mwkin.coords.proper_motions_to_galactic (ESA 1997, SP-1200,
+    # Vol. 1, Sect. 1.5.3), with l in [0, 360) deg; units of the columns are honoured.
+    n = 400
+    ra = rng.uniform(0, 360, n)
+    dec = np.degrees(np.arcsin(rng.uniform(-1, 1, n)))
+    pmra, pmdec = rng.normal(0, 10, (2, n))
+    lon, lat, mu_l, mu_b = proper_motions_to_galactic(np.radians(ra), np.radians(dec), pmra, pmdec)
+    table = QTable({"ra": ra * u.deg, "dec": np.radians(dec) * u.rad, "pmra": pmra * MASYR,
+                    "pmdec": pmdec * 1e-3 * u.arcsec / u.yr})
+    l_deg, b_deg, mu_l_star, mu_b_out = sky_motions(table)
+    np.testing.assert_allclose(l_deg, np.degrees(np.mod(lon, 2 * np.pi)), atol=1e-9)
+    assert np.all((l_deg >= 0) & (l_deg < 360))
+    np.testing.assert_allclose(b_deg, np.degrees(lat), atol=1e-9)
+    np.testing.assert_allclose(mu_l_star, mu_l, atol=1e-11)
+    np.testing.assert_allclose(mu_b_out, mu_b, atol=1e-11)
+    # in the standard units, exactly the numbers of the rotation the solver blocks are built with
+    sl, cl, sb, cb, c1, c2 = galactic_geometry(ra, dec)
+    plain = QTable({"ra": ra, "dec": dec, "pmra": pmra, "pmdec": pmdec})
+    np.testing.assert_array_equal(sky_motions(plain)[2], c1 * pmra + c2 * pmdec)
+    np.testing.assert_array_equal(sky_motions(plain)[3], -c2 * pmra + c1 * pmdec)
+    # a missing entry stays a NaN in that row only; a missing column is named
+    table["pmra"][3] = np.nan * MASYR
+    _, _, mu_l_star, _ = sky_motions(table)
+    assert np.isnan(mu_l_star[3]) and np.isfinite(np.delete(mu_l_star, 3)).all()
+    table.remove_column("pmdec")
+    with pytest.raises(OortInputError, match="'pmdec'"):
+        sky_motions(table)
 
 
 def test_fit_inverts_the_first_order_equations_exactly(rng):
@@ -475,7 +505,7 @@ def test_clipping_thresholds_match_scipy(clip):
     # star, against scipy.stats (reference library).
     from scipy import stats
 
-    from mwkin.oort import _chi2_limit
+    from mwkin.oort.fit import _chi2_limit
 
     for dof in (1, 2, 3):
         expected = stats.chi2.isf(2 * stats.norm.sf(clip), dof)

@@ -16,10 +16,11 @@ from mwkin.orbits import (
     OrbitError,
     OrbitSet,
     TimeGridError,
-    _cartesian,
     integrate_orbits,
     orbit_parameters,
 )
+from mwkin.orbits.inputs import _cartesian
+from mwkin.orbits.parameters import draw_phase_space_samples, span_parameters
 from mwkin.potentials import Potential
 
 KMS = u.km / u.s
@@ -334,7 +335,7 @@ def test_samples_from_observables_use_the_linear_covariance(pot, observed):
 
 
 def test_thread_count_does_not_change_results(pot, disc_stars):
-    from mwkin import _galpy
+    from mwkin.potentials import _galpy
 
     t = np.linspace(0, 0.5, 51)
     one = integrate_orbits(disc_stars, pot, t=t, numcores=1)
@@ -357,6 +358,78 @@ def test_integrated_parameters_with_samples(pot, disc_stars):
     # The nominal values are those of integrate_orbits on the same grid.
     orbits = integrate_orbits(disc_stars[:3], pot, t=np.linspace(0, 1.0, 1001))
     np.testing.assert_allclose(params["rapo"].value, orbits.rapo.value, rtol=1e-13)
+
+
+def test_phase_space_samples_follow_the_covariance_and_the_seed(disc_stars, rng):
+    # One star with a full (correlated) covariance: the draws' mean and covariance approach the given
+    # ones as 1/sqrt(n) (common practice, no source).
+    a = rng.normal(size=(6, 6))
+    scale = np.diag([0.1] * 3 + [2.0] * 3)                  # kpc and km/s
+    cov = scale @ (a @ a.T / 6.0) @ scale
+    sigma = np.sqrt(np.diag(cov))
+    draws = draw_phase_space_samples(disc_stars[0], cov, 40000, seed=3)
+    assert draws.shape == (1, 40000, 6)
+    assert np.all(np.abs(draws[0].mean(axis=0) - disc_stars[0]) < 4 * sigma / np.sqrt(40000))
+    assert np.all(np.abs(np.cov(draws[0].T) - cov) < 0.05 * np.outer(sigma, sigma))
+    # the same seed, the same draws; many stars at once; a zero covariance gives the point itself
+    np.testing.assert_array_equal(draw_phase_space_samples(disc_stars[0], cov, 5, seed=3),
+                                  draw_phase_space_samples(disc_stars[0], cov, 5, seed=np.random.default_rng(3)))
+    many = draw_phase_space_samples(disc_stars[:3], np.zeros((3, 6, 6)), 4, seed=0)
+    assert many.shape == (3, 4, 6)
+    np.testing.assert_array_equal(many, np.broadcast_to(disc_stars[:3, None, :], (3, 4, 6)))
+
+
+def test_phase_space_samples_are_the_ones_orbit_parameters_summarises(pot, disc_stars):
+    table = _with_covariance(disc_stars[:1])
+    grid = np.linspace(0, 0.5, 501)
+    params = orbit_parameters(table, pot, method="integrate", t=grid, n_samples=12, seed=9)
+    cov = np.asarray(table["cov_galactocentric"], dtype=float)
+    draws = draw_phase_space_samples(disc_stars[:1], cov, 12, seed=9).reshape(-1, 6)
+    orbits = integrate_orbits(draws, pot, t=grid)
+    lo, hi = np.percentile(orbits.rapo.value, [16, 84])
+    assert lo == pytest.approx(params["rapo_p16"][0].value, rel=1e-12)
+    assert hi == pytest.approx(params["rapo_p84"][0].value, rel=1e-12)
+
+
+@pytest.mark.parametrize("args, message", [
+    ((np.zeros(5), np.eye(6), 3), "shape \\(6,\\) or \\(M, 6\\)"),
+    ((np.zeros(6), np.eye(5), 3), "covariance must have shape"),
+    ((np.zeros(6), np.eye(6), 0), "n_samples must be a whole number >= 1"),
+    ((np.zeros(6), np.eye(6), 2.5), "n_samples must be a whole number >= 1"),
+    ((np.zeros(6), np.eye(6), True), "n_samples must be a whole number >= 1"),
+    ((np.zeros(6), np.full((6, 6), np.nan), 3), "star 0 has a non-finite"),
+])
+def test_phase_space_samples_refuse_bad_input(args, message):
+    with pytest.raises(OrbitError, match=message):
+        draw_phase_space_samples(*args)
+
+
+def test_span_parameters_are_the_extremes_of_both_directions(pot, disc_stars):
+    t = np.linspace(0, 0.4, 401)
+    forward, backward = integrate_orbits(disc_stars, pot, t=t), integrate_orbits(disc_stars, pot, t=-t)
+    table = span_parameters([forward, None, backward])
+    assert table.colnames == ["rperi", "rapo", "zmax", "eccentricity", "energy", "Lz", "flag"]
+    r = np.hypot(np.concatenate([forward.R.value, backward.R.value], axis=1),
+                 np.concatenate([forward.z.value, backward.z.value], axis=1))
+    np.testing.assert_array_equal(table["rperi"].value, np.minimum(forward.rperi.value, backward.rperi.value))
+    np.testing.assert_array_equal(table["rapo"].value, r.max(axis=1))
+    np.testing.assert_array_equal(table["zmax"].value, np.maximum(forward.zmax.value, backward.zmax.value))
+    e = (table["rapo"] - table["rperi"]) / (table["rapo"] + table["rperi"])
+    np.testing.assert_allclose(table["eccentricity"].value, e.value, rtol=1e-15)
+    np.testing.assert_array_equal(table["Lz"].value, forward.Lz.value)
+    assert table["rapo"].unit == u.kpc and table["energy"].unit == KMS**2
+    # one set alone gives its own parameters; an unbound star has none over the span
+    alone = span_parameters([forward])
+    np.testing.assert_array_equal(alone["eccentricity"].value, forward.eccentricity.value)
+    fast = SUN + [0, 0, 0, 0, 600.0, 0]
+    pair = [integrate_orbits(np.vstack([SUN, fast]), pot, t=s * np.linspace(0, 0.02, 3)) for s in (1, -1)]
+    both = span_parameters(pair)
+    assert np.isnan(both["rapo"][1].value) and np.isfinite(both["rapo"][0].value)
+    assert list(both["flag"]) == ["", "unbound"]
+    with pytest.raises(OrbitError, match="different numbers of stars"):
+        span_parameters([forward, pair[0]])
+    with pytest.raises(OrbitError, match="at least one"):
+        span_parameters([None])
 
 
 # ------------------------------------------------------------------ grid resolution, Staeckel validity, float32

@@ -88,9 +88,10 @@ def test_time_limit_stops_a_runaway_star_the_screen_misses(clean):
     out = _run_child(f"""
         import json, numpy as np
         import mwkin.orbits as orbits_module
-        from mwkin import _galpy
+        from mwkin.potentials import _galpy
         from mwkin.potentials import Potential
-        orbits_module._screen_singular = lambda ps: None
+        import mwkin.orbits.screening
+        mwkin.orbits.screening._screen_singular = lambda ps: None
         pot = Potential.preset("MWPotential2014")
         stars = np.array({stars!r})
         t = np.linspace(0, 1.0, 1001)
@@ -115,7 +116,7 @@ def test_galpy_guard_isolates_the_runaway_star_in_a_batch():
     # _galpy.integrate on its own (no screening): batch limit, then one star at a time.
     out = _run_child(f"""
         import json, numpy as np
-        from mwkin import _galpy
+        from mwkin.potentials import _galpy
         from mwkin.potentials import Potential
         model = Potential.preset("MWPotential2014")._model
         w = np.array([[8.1, 0.0, 0.02, 10.0, 230.0, 5.0], [0.0, 0.0, 1.0, 0.0, 0.0, 0.0],

@@ -19,7 +19,7 @@ from astropy.coordinates import galactocentric_frame_defaults
 from astropy.coordinates.builtin_frames.galactocentric import get_matrix_vectors
 
 from mwkin.frames import SolarFrame
-from mwkin.galactic import K_KMS_PER_MASYR_KPC
+from mwkin.coords import K_KMS_PER_MASYR_KPC
 
 KMS = u.km / u.s
 

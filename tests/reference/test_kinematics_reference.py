@@ -21,7 +21,7 @@ from astropy.table import QTable
 
 from mwkin.distances import InverseParallax
 from mwkin.frames import SolarFrame
-from mwkin.galactic import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC
+from mwkin.coords import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC
 from mwkin.kinematics import (galactocentric_from_observables, heliocentric_from_observables,
                               to_galactocentric)
 

@@ -17,7 +17,7 @@ from astropy.table import QTable
 
 from mwkin.distances import DistanceColumn, InverseParallax
 from mwkin.frames import SolarFrame
-from mwkin.galactic import ICRS_TO_GALACTIC
+from mwkin.coords import ICRS_TO_GALACTIC
 from mwkin.oort import fit_oort
 
 KMS = u.km / u.s

@@ -12,7 +12,8 @@ from scipy.integrate import solve_ivp
 from scipy.optimize import brentq
 
 from mwkin.frames import SolarFrame
-from mwkin.orbits import _cartesian, integrate_orbits, orbit_parameters
+from mwkin.orbits import integrate_orbits, orbit_parameters
+from mwkin.orbits.inputs import _cartesian
 from mwkin.potentials import Potential
 
 G_KPC_KMS2_PER_MSUN = G.to_value(u.kpc * (u.km / u.s) ** 2 / u.Msun)

@@ -2,7 +2,7 @@
 
 :func:`prepare_sample` applies the selections (quality, distance, distance range, the data the chosen
 ``use`` needs), converts positions and proper motions to Galactic coordinates with the Hipparcos
-rotation (:data:`mwkin.galactic.ICRS_TO_GALACTIC`), rotates the proper-motion covariance (with the Gaia
+rotation (:data:`mwkin.coords.ICRS_TO_GALACTIC`), rotates the proper-motion covariance (with the Gaia
 ``pmra_pmdec_corr``) into (mu_l*, mu_b), and groups the stars by which directions they observe
 (sky plane and line of sight, sky plane only, line of sight only). It records, for every input row, why
 it was not used.
@@ -12,14 +12,16 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 
-from .galactic import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC
-from .oort_solver import CHUNK, Block
-from .units import to_value
+from ..columns import column_values
+from ..coords import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC
+from ..units import to_value
+from .solver import CHUNK, Block
 
-__all__ = ["STATUS", "STATUS_CODE", "USES", "OortInputError", "Prepared", "prepare_sample", "galactic_geometry"]
+__all__ = ["STATUS", "STATUS_CODE", "USES", "OortInputError", "Prepared", "prepare_sample", "galactic_geometry",
+           "sky_motions"]
 
 
 class OortInputError(ValueError):
@@ -81,17 +83,8 @@ class Prepared:
 
 
 def _column(table, name, unit):
-    """Column as float64 in ``unit`` (plain numbers taken as ``unit``), masked entries as NaN."""
-    col = table[name]
-    mask = getattr(col, "mask", None)
-    if hasattr(col, "unmasked"):
-        col = col.unmasked
-    values = to_value(col if isinstance(col, u.Quantity) else np.ma.getdata(col), unit, name)
-    values = np.asarray(values, dtype=float)
-    if mask is not None and np.any(mask):
-        values = values.copy()
-        values[np.asarray(mask)] = np.nan
-    return values
+    """Column as float64 in ``unit`` (:func:`mwkin.columns.column_values`)."""
+    return column_values(table, name, unit, error=OortInputError)
 
 
 def _optional(table, name, unit, n, fill):
@@ -139,6 +132,63 @@ def galactic_geometry(ra_deg, dec_deg):
         cl = np.where(rho > 0, gx / rho, 1.0)
         sl = np.where(rho > 0, gy / rho, 0.0)
     return sl, cl, gz, cb, n_dot_ed * inv_cb, -n_dot_ea * inv_cb
+
+
+def _galactic_proper_motions(c1, c2, pmra, pmdec):
+    """(mu_l*, mu_b) from (mu_alpha*, mu_delta) with the rotation of :func:`galactic_geometry`."""
+    return c1 * pmra + c2 * pmdec, -c2 * pmra + c1 * pmdec
+
+
+def sky_motions(stars):
+    """Galactic longitude, latitude and proper motions of every star, as the Oort fit sees them.
+
+    The same rotation (:func:`galactic_geometry`, the Hipparcos ICRS-to-Galactic matrix) the fit
+    applies, so data shown beside a fit and the fit's own residuals agree exactly.
+
+    Parameters
+    ----------
+    stars : astropy Table or QTable
+        With ``ra``, ``dec`` (deg) and ``pmra``, ``pmdec`` (mas/yr; pmra is mu_alpha cos(dec)); plain
+        columns are taken in those units, columns with units are converted.
+
+    Returns
+    -------
+    l_deg : numpy.ndarray
+        Galactic longitude in [0, 360) deg.
+    b_deg : numpy.ndarray
+        Galactic latitude in [-90, 90] deg.
+    mu_l_star : numpy.ndarray
+        Proper motion along l, mu_l cos(b), mas/yr.
+    mu_b : numpy.ndarray
+        Proper motion along b, mas/yr.
+
+    All 1-d float64, one per row; NaN where an input is missing (masked or NaN).
+
+    Raises
+    ------
+    OortInputError
+        If a column is missing or not numeric.
+    mwkin.units.UnitMismatchError
+        If a column's unit cannot be converted.
+
+    Examples
+    --------
+    The north Galactic pole's neighbourhood has b near +90 deg:
+
+    >>> from astropy.table import Table
+    >>> t = Table({"ra": [192.85948], "dec": [27.12825], "pmra": [0.0], "pmdec": [0.0]})
+    >>> l, b, mu_l, mu_b = sky_motions(t)
+    >>> round(float(b[0]), 3)
+    90.0
+    """
+    for name in ("ra", "dec", "pmra", "pmdec"):
+        if name not in stars.colnames:
+            raise OortInputError(f"sky_motions: the star table has no {name!r} column")
+    sl, cl, sb, cb, c1, c2 = galactic_geometry(_column(stars, "ra", u.deg), _column(stars, "dec", u.deg))
+    mu_l, mu_b = _galactic_proper_motions(c1, c2, _column(stars, "pmra", _MASYR), _column(stars, "pmdec", _MASYR))
+    l_deg = np.degrees(np.mod(np.arctan2(sl, cl), 2.0 * np.pi))
+    b_deg = np.degrees(np.arctan2(sb, cb))
+    return l_deg, b_deg, mu_l, mu_b
 
 
 def _quality_mask(table, quality, n):
@@ -304,8 +354,7 @@ def _make_block(kind, rows, ctx):
     ux, uy, uz = vel
     if kind in ("full", "sky"):
         pma, pmd = ctx["pmra"][rows], ctx["pmdec"][rows]
-        mu_l = c1 * pma + c2 * pmd
-        mu_b = -c2 * pma + c1 * pmd
+        mu_l, mu_b = _galactic_proper_motions(c1, c2, pma, pmd)
         t_l, t_b = kd * mu_l, kd * mu_b
         # e_l = (-sl, cl, 0), e_b = (-sb cl, -sb sl, cb)
         ux += -sl * t_l - sb * cl * t_b

@@ -9,33 +9,16 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 from astropy.table import QTable, Table
 
-from .frames import SolarFrame
-from .oort_sample import STATUS
-from .oort_solver import PARAMETERS
-from .units import KMS
+from ..frames import SolarFrame
+from ..units import KMS
+from .model import DERIVED, PARAMETERS, UNITS, unit_text
+from .sample import STATUS
 
 __all__ = ["OortFit"]
-
-_KMS_KPC = u.km / u.s / u.kpc
-_UNITS = {"A": _KMS_KPC, "B": _KMS_KPC, "C": _KMS_KPC, "K": _KMS_KPC, "U": KMS, "V": KMS, "W": KMS}
-
-
-def _unit_text(unit):
-    """How a unit is written in tables and summaries ("km/s/kpc" rather than astropy's "km / (kpc s)")."""
-    return {_KMS_KPC: "km/s/kpc", KMS: "km/s"}.get(unit, unit.to_string())
-
-
-_DERIVED = {
-    "Omega0": ("A - B: angular velocity of the local mean flow", _KMS_KPC),
-    "dV/dR": ("-(A + B): slope of the rotation curve of the mean flow", _KMS_KPC),
-    "V0": ("R0 (A - B): speed of the local mean flow, first-order model", KMS),
-    "kappa": ("sqrt(-4 B (A - B)): epicyclic frequency", _KMS_KPC),
-}
-
 
 def _finite_or_none(x):
     x = float(x)
@@ -74,7 +57,7 @@ class OortFit:
     n_used, n_data : int
         Stars used and scalar data used (2 per proper motion, 1 per radial velocity).
     n_dropped : dict
-        Reason -> number of input rows left out (names of :data:`mwkin.oort_sample.STATUS`);
+        Reason -> number of input rows left out (names of :data:`mwkin.oort.sample.STATUS`);
         ``distance_reasons`` breaks ``no_distance`` down by the distance choice's own reasons, and
         ``n_rejected`` counts the outliers of sigma clipping (also ``n_dropped["outlier"]``).
     derived : dict
@@ -217,12 +200,12 @@ class OortFit:
         """
         rows = []
         for name in PARAMETERS:
-            rows.append((name, self.values[name], self.errors[name], _unit_text(_UNITS[name]),
+            rows.append((name, self.values[name], self.errors[name], unit_text(UNITS[name]),
                          self.constrained[name]))
         for name, (value, error) in self.derived.items():
-            rows.append((name, value, error, _unit_text(_DERIVED[name][1]), bool(np.isfinite(value))))
+            rows.append((name, value, error, unit_text(DERIVED[name][1]), bool(np.isfinite(value))))
         for axis, s, e in zip("UVW", self.sigma_intrinsic, self.sigma_intrinsic_error):
-            rows.append((f"sigma_{axis}", s, e, _unit_text(KMS), bool(np.isfinite(e))))
+            rows.append((f"sigma_{axis}", s, e, unit_text(KMS), bool(np.isfinite(e))))
         t = Table(rows=rows, names=("parameter", "value", "error", "unit", "constrained"),
                   dtype=(str, float, float, str, bool))
         if self.bootstrap is not None:
@@ -237,11 +220,11 @@ class OortFit:
                  f"{self.distance_range[0]:g} <= d < {self.distance_range[1]:g} kpc)"]
         for name in PARAMETERS:
             value, error = self.values[name], self.errors[name]
-            unit = _unit_text(_UNITS[name])
+            unit = unit_text(UNITS[name])
             flag = "" if self.constrained[name] else "   not constrained by these data"
             lines.append(f"  {name:7s} = {_fmt(value, error)} {unit}{flag}")
         for name, (value, error) in self.derived.items():
-            unit = _unit_text(_DERIVED[name][1])
+            unit = unit_text(DERIVED[name][1])
             text = _fmt(value, error) if np.isfinite(value) else "not available"
             lines.append(f"  {name:7s} = {text} {unit if np.isfinite(value) else ''}".rstrip())
         sig = ", ".join(f"{s:.1f} +/- {e:.1f}" for s, e in zip(self.sigma_intrinsic, self.sigma_intrinsic_error))

@@ -1,6 +1,6 @@
 """The numerical core of the Oort-constant fit: weighted least squares plus a fitted velocity ellipsoid.
 
-Everything here works on plain float64 arrays prepared by :mod:`mwkin.oort_sample` (kpc, km/s); the
+Everything here works on plain float64 arrays prepared by :mod:`mwkin.oort.sample` (kpc, km/s); the
 public front is :func:`mwkin.oort.fit_oort`.
 
 The model, in velocity space
@@ -41,20 +41,15 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["PARAMETERS", "Block", "Solution", "solve", "design_coefficients", "bootstrap_parameters"]
+from .model import DESIGN, N_PARAMETERS, design_coefficients
+
+__all__ = ["Block", "Solution", "solve", "bootstrap_parameters", "sym_apply"]
 
 #: Largest number of stars in one block; keeps the per-star arithmetic in the processor cache.
 CHUNK = 16384
 
-PARAMETERS = ("A", "B", "C", "K", "U", "V", "W")
-_N_PAR = len(PARAMETERS)
-
-# _T[a, j, f]: coefficient of basis function f (0: 1, 1: x, 2: y) in row a (velocity x, y, z) and
-# column j (A, B, C, K, U, V, W) of the design, from u_model above.
-_T = np.zeros((3, _N_PAR, 3))
-_T[0, 0, 2], _T[0, 1, 2], _T[0, 2, 1], _T[0, 3, 1], _T[0, 4, 0] = 1.0, -1.0, 1.0, 1.0, -1.0
-_T[1, 0, 1], _T[1, 1, 1], _T[1, 2, 2], _T[1, 3, 2], _T[1, 5, 0] = 1.0, 1.0, -1.0, 1.0, -1.0
-_T[2, 6, 0] = -1.0
+_N_PAR = N_PARAMETERS
+_T = DESIGN  # the design of the first-order model (see model.py)
 
 # Unique index pairs of a symmetric 3x3 matrix, in the order the weights are stored.
 _PAIRS = ((0, 0), (0, 1), (0, 2), (1, 1), (1, 2), (2, 2))
@@ -67,11 +62,6 @@ _REFRESH_KMS = 0.01
 
 #: Relative size below which an eigenvalue of the scaled normal matrix counts as zero (no information).
 _NULL_TOL = 1e-10
-
-
-def design_coefficients(p):
-    """Coefficients c[a, f] with model velocity component a = c[a,0] + c[a,1] x + c[a,2] y."""
-    return np.einsum("ajf,j->af", _T, np.asarray(p, dtype=float))
 
 
 def _dot(a, b):
@@ -99,7 +89,7 @@ def _inv_sym3(s, out):
 _ROWS = ((0, 1, 2), (1, 3, 4), (2, 4, 5))
 
 
-def _sym_apply(w, v):
+def sym_apply(w, v):
     """Per-star product of the symmetric 3x3 matrices ``w`` (6, n) with the vectors ``v`` (3, n)."""
     out = np.empty_like(v)
     tmp = np.empty(v.shape[1])
@@ -311,7 +301,7 @@ class Block:
             e_l, e_b, r_hat = self.basis()
 
             def quad(v):
-                return np.einsum("ij,ij->j", _sym_apply(s, v), v)
+                return np.einsum("ij,ij->j", sym_apply(s, v), v)
             return quad(e_l), quad(e_b), quad(r_hat)
         if self.kind == "sky":
             return s[0], s[2], nan
@@ -321,7 +311,7 @@ class Block:
     def moments(self, w):
         """Weighted sums for the normal equations: mom[pair, fg] (6x6) and rhs[a, f] (3x3)."""
         fg = self._moment_basis()
-        beta0 = _sym_apply(w, self.u)
+        beta0 = sym_apply(w, self.u)
         mom = np.empty((6, 6))
         rhs = np.empty((3, 3))
         for n in range(6):
@@ -337,7 +327,7 @@ class Block:
     def per_star_moments(self, w):
         """Per-star contributions to the moments, shape (n, 36 + 9), for bootstrap resampling."""
         fg = self._moment_basis()
-        beta0 = _sym_apply(w, self.u)
+        beta0 = sym_apply(w, self.u)
         out = np.empty((len(self), 45))
         for n in range(6):
             out[:, 6 * n] = w[n]
@@ -358,7 +348,7 @@ class Block:
     def score_terms(self, w, p):
         """Sums for the dispersion step: sum beta_k^2, sum Wt_n, sum Wt_n^2 and sum delta.beta."""
         delta = self.residual(p)
-        beta = _sym_apply(w, delta)
+        beta = sym_apply(w, delta)
         beta2 = np.einsum("ij,ij->i", beta, beta)
         w_sum = w.sum(axis=1)
         w_sq = np.einsum("ij,ij->i", w, w)
@@ -368,7 +358,7 @@ class Block:
     def chi2_per_star(self, w, p):
         """(u - X p)^T Wt (u - X p) for every star."""
         delta = self.residual(p)
-        return np.einsum("ij,ij->j", _sym_apply(w, delta), delta)
+        return np.einsum("ij,ij->j", sym_apply(w, delta), delta)
 
 
 def _normal_equations(mom, rhs):

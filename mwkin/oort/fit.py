@@ -1,40 +1,21 @@
-"""Oort constants: the local velocity field of the disc fitted to a stellar sample.
-
-:func:`fit_oort` fits the first-order (linear) velocity field of the stars around the Sun -- the Oort
-constants A, B, C, K -- together with the Sun's motion (U, V, W) relative to the local mean flow, to
-proper motions and/or radial velocities in Galactic coordinates, and returns an :class:`OortFit`.
-
-Conventions
------------
-* Oort constants in km/s/kpc; (U, V, W) in km/s with U toward the Galactic centre, V in the direction
-  of rotation, W toward the north Galactic pole; mu_l* = mu_l cos b.
-* To first order in the distance d (kpc), with k = 4.740470463533 km/s per (mas/yr kpc):
-
-  - k mu_l* = (A cos 2l - C sin 2l + B) cos b + (U sin l - V cos l) / d
-  - k mu_b = -(A sin 2l + C cos 2l + K) sin b cos b + [(U cos l + V sin l) sin b - W cos b] / d
-  - v_r = d (K + A sin 2l + C cos 2l) cos^2 b - (U cos l + V sin l) cos b - W sin b
-
-  so A and B describe the shear and rotation of the mean flow, C and K its radial shear and
-  divergence (a radial outflow with dv_R/dR = +6 km/s/kpc gives C = K = +3).
-* Derived: Omega0 = A - B, dV/dR = -(A + B), V0 = R0 (A - B) with R0 from the frame,
-  kappa = sqrt(-4 B (A - B)).
-"""
+"""The fit itself: :func:`fit_oort` and :func:`fit_in_distance_bins` (see :mod:`mwkin.oort`)."""
 
 from __future__ import annotations
 
 import math
 import warnings
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 from astropy.table import QTable, Table
 
-from .frames import SolarFrame
-from .galactic import K_KMS_PER_MASYR_KPC
-from .oort_result import _DERIVED, _KMS_KPC, _UNITS, OortFit
-from .oort_sample import STATUS, STATUS_CODE, USES, OortInputError, prepare_sample
-from .oort_solver import PARAMETERS, _sym_apply, bootstrap_parameters, solve
-from .units import to_value
+from ..coords import K_KMS_PER_MASYR_KPC
+from ..frames import frame_or_default
+from ..units import to_value
+from .model import KMS_KPC, PARAMETERS, UNITS, derived_quantities, derived_from_samples
+from .result import OortFit
+from .sample import STATUS, STATUS_CODE, USES, OortInputError, prepare_sample
+from .solver import bootstrap_parameters, solve, sym_apply
 
 __all__ = ["fit_oort", "fit_in_distance_bins", "OortFit", "OortInputError", "OortOutlierWarning",
            "heavy_tail_outliers", "UNCONSTRAINED_ERROR",
@@ -69,18 +50,14 @@ _DISPERSION_NOTE = ("the velocity dispersion is fitted by maximum likelihood, so
 
 
 def _as_frame(frame):
-    if frame is None:
-        return SolarFrame()
-    if not isinstance(frame, SolarFrame):
-        raise OortInputError(f"frame must be a SolarFrame, got {type(frame).__name__}")
-    return frame
+    return frame_or_default(frame, error=OortInputError)
 
 
 def _standard_table(stars):
     """The star table with standard columns: passed through if it already is one, else read."""
     if isinstance(stars, (Table, QTable)) and "mwkin_source" in stars.meta:
         return stars
-    from .catalog import read_catalog
+    from ..catalog import read_catalog
 
     return read_catalog(stars)
 
@@ -93,47 +70,15 @@ def _default_distance(distance):
                 f"DistanceColumn('distance'); got {type(distance).__name__}"
             )
         return distance
-    from .distances import InverseParallax
+    from ..distances import InverseParallax
 
     return InverseParallax()
-
-
-def _derived(p, cov, null, R0):
-    """Omega0, dV/dR, V0, kappa with first-order propagated errors (NaN when A or B is missing)."""
-    a, b = p[0], p[1]
-    nan = (float("nan"), float("nan"))
-    if null[0] or null[1]:
-        return {name: nan for name in _DERIVED}
-    cab = cov[:2, :2]
-
-    def prop(grad):
-        g = np.asarray(grad, dtype=float)
-        return float(math.sqrt(max(g @ cab @ g, 0.0)))
-
-    out = {
-        "Omega0": (a - b, prop([1.0, -1.0])),
-        "dV/dR": (-(a + b), prop([-1.0, -1.0])),
-        "V0": (R0 * (a - b), prop([R0, -R0])),
-    }
-    k2 = -4.0 * b * (a - b)
-    if k2 > 0:
-        kappa = math.sqrt(k2)
-        out["kappa"] = (kappa, prop([-2.0 * b / kappa, (-2.0 * a + 4.0 * b) / kappa]))
-    else:
-        out["kappa"] = nan
-    return out
-
-
-def _derived_from_samples(samples, R0):
-    a, b = samples[:, 0], samples[:, 1]
-    with np.errstate(invalid="ignore"):
-        return {"Omega0": a - b, "dV/dR": -(a + b), "V0": R0 * (a - b), "kappa": np.sqrt(-4.0 * b * (a - b))}
 
 
 # ---------------------------------------------------------------------- potential comparison
 def _potential_oort(potential, frame):
     """A and B implied by ``potential`` at the frame's in-plane R0 (km/s/kpc)."""
-    R = math.sqrt(frame.R0**2 - (frame.z_sun / 1000.0) ** 2)
+    R = frame.inplane_radius
     result = potential.oort_constants(R)
     out = {"R_kpc": R}
     for key in ("A", "B", "Omega", "kappa"):
@@ -146,12 +91,12 @@ def _potential_oort(potential, frame):
             value = result[key]
         if value is None:
             continue
-        unit = _KMS_KPC
+        unit = KMS_KPC
         value = np.asarray(to_value(value, unit, f"potential Oort constant {key}"), dtype=float).ravel()
         out[key] = float(value[0])
     if isinstance(result, (tuple, list)) and "A" not in out:
-        out["A"] = float(to_value(result[0], _KMS_KPC, "potential A"))
-        out["B"] = float(to_value(result[1], _KMS_KPC, "potential B"))
+        out["A"] = float(to_value(result[0], KMS_KPC, "potential A"))
+        out["B"] = float(to_value(result[1], KMS_KPC, "potential B"))
     if "A" not in out or "B" not in out:
         raise OortInputError("potential.oort_constants(R0) did not return A and B")
     return out
@@ -441,7 +386,7 @@ def _build_fit(solution, blocks, candidates, status, n_counts, prep, *, frame, u
     n_par = int(np.count_nonzero(~solution.null))
     n_disp = 1 if solution.isotropic else int(np.count_nonzero(solution.theta_free))
     dof = solution.n_obs - n_par - n_disp
-    derived = _derived(p, cov, solution.null, frame.R0)
+    derived = derived_quantities(p, cov, solution.null, frame.R0)
     if not (constrained["A"] and constrained["B"]):
         derived = {k: (float("nan"), float("nan")) for k in derived}
     notes = list(notes)
@@ -516,7 +461,7 @@ def _bootstrap(blocks, solution, n, seed, R0):
     samples = bootstrap_parameters(blocks, solution, n, rng)
     intervals = {}
     columns = {name: samples[:, j] for j, name in enumerate(PARAMETERS)}
-    columns.update(_derived_from_samples(samples, R0))
+    columns.update(derived_from_samples(samples, R0))
     for name, values in columns.items():
         values = values[np.isfinite(values)]
         if len(values) < 2:
@@ -537,7 +482,7 @@ def _per_star(evaluated, p, theta, status, n_rows):
     n_data = np.zeros(n_rows, dtype=np.int8)
     for block, cov, w in evaluated:
         delta = block.residual(p)
-        chi2_out[block.rows] = np.einsum("ij,ij->j", _sym_apply(w, delta), delta)
+        chi2_out[block.rows] = np.einsum("ij,ij->j", sym_apply(w, delta), delta)
         var = block.observed_variances(theta, cov)
         e_l, e_b, r_hat = block.basis()
         kd = K_KMS_PER_MASYR_KPC * block.distance
@@ -604,7 +549,7 @@ def fit_in_distance_bins(stars, bins, frame=None, *, use="both", distance=None, 
     for name in ("d_min", "d_max", "d_median"):
         out[name].unit = u.kpc
     for name in PARAMETERS:
-        out[name].unit = out[f"{name}_error"].unit = _UNITS[name]
+        out[name].unit = out[f"{name}_error"].unit = UNITS[name]
     out.meta["note"] = ("first-order model: values that drift from bin to bin beyond their errors show where it "
                         "stops holding")
     return out
