@@ -20,6 +20,8 @@ import ipywidgets as widgets
 import numpy as np
 
 from ..catalog import CatalogError, read_catalog
+from ..columns import column_values
+from ..distances import InverseParallax
 from .state import ConfigError, require_mapping
 
 __all__ = [
@@ -173,12 +175,8 @@ def sample_fingerprint(stars):
     """Short hash of ra, dec, pmra and pmdec (float64 bytes) of a standardised table."""
     digest = hashlib.sha1()
     for name in ("ra", "dec", "pmra", "pmdec"):
-        digest.update(np.ascontiguousarray(_values(stars[name])).tobytes())
+        digest.update(np.ascontiguousarray(column_values(stars, name)).tobytes())
     return digest.hexdigest()[:12]
-
-
-def _values(column):
-    return np.asarray(getattr(column, "value", column), dtype=float)
 
 
 def load_sample(sample):
@@ -262,8 +260,8 @@ def parallax_snr(stars, zero_point_mas=0.0):
     """Parallax signal-to-noise, (parallax - zero_point) / parallax_error; NaN where either is missing."""
     if "parallax" not in stars.colnames or "parallax_error" not in stars.colnames:
         return np.full(len(stars), np.nan)
-    plx = _values(stars["parallax"]) - zero_point_mas
-    err = _values(stars["parallax_error"])
+    plx = column_values(stars, "parallax", "mas") - zero_point_mas
+    err = column_values(stars, "parallax_error", "mas")
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.where(err > 0, plx / err, np.nan)
 
@@ -334,7 +332,11 @@ class DistanceControls(widgets.VBox):
 
     METHODS = ("inverse parallax", "distance column")
 
-    def __init__(self, on_change, *, min_snr=5.0, zero_point_mas=0.0):
+    def __init__(self, on_change, *, min_snr=None, zero_point_mas=None):
+        # The defaults are the core's (mwkin.distances.InverseParallax()).
+        default = InverseParallax()
+        min_snr = default.min_snr if min_snr is None else min_snr
+        zero_point_mas = default.zero_point_mas if zero_point_mas is None else zero_point_mas
         self._on_change = on_change
         self._quiet = False
         self.method = widgets.ToggleButtons(options=[self.METHODS[0]], value=self.METHODS[0],

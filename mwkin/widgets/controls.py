@@ -17,20 +17,18 @@ import time
 import ipywidgets as widgets
 import numpy as np
 
-from ..frames import SolarFrame
+from ..columns import column_values
+from ..frames import SCHOENRICH2010_SOLAR_MOTION, SGR_A_STAR_PROPER_MOTION, SolarFrame, reflex_comparison
 from ._base import StatusLine, error_text
 from ._live import LiveRunner
-from .state import DEFAULT_FRAME_PRESET, FrameState, PotentialState, potential_from_config
+from .state import DEFAULT_FRAME_PRESET, FrameState, PotentialState, lsr_circular_velocity, potential_from_config
 
-__all__ = ["FrameControls", "PotentialControls", "SGR_A_STAR_PROPER_MOTION"]
-
-#: Measured proper motion of Sgr A* in Galactic coordinates, mas/yr, as (value, sigma)
-#: (Reid & Brunthaler 2020, ApJ 892, 39).
-SGR_A_STAR_PROPER_MOTION = {"mu_l": (-6.411, 0.008), "mu_b": (-0.219, 0.007)}
+# SGR_A_STAR_PROPER_MOTION and reflex_comparison are mwkin.frames' own (re-exported here as before).
+__all__ = ["FrameControls", "PotentialControls", "SGR_A_STAR_PROPER_MOTION", "reflex_comparison"]
 
 #: Default split of the Sun's azimuthal velocity: its motion relative to the LSR along rotation, km/s
-#: (Schoenrich, Binney & Dehnen 2010, MNRAS 403, 1829).
-DEFAULT_SOLAR_V = 12.24
+#: (the V of :data:`mwkin.frames.SCHOENRICH2010_SOLAR_MOTION`).
+DEFAULT_SOLAR_V = SCHOENRICH2010_SOLAR_MOTION[1]
 
 _CUSTOM = "custom"
 _LABEL_STYLE = {"description_width": "9em"}
@@ -130,29 +128,6 @@ class NumberField(widgets.HBox):
         finally:
             self._quiet = False
         self._on_value(change["new"])
-
-
-def reflex_comparison(frame):
-    """The Galactic centre's reflex proper motion implied by ``frame`` against the measured one of Sgr A*.
-
-    Parameters
-    ----------
-    frame : SolarFrame
-
-    Returns
-    -------
-    dict
-        ``mu_l``, ``mu_b`` (implied, mas/yr; mu_l is mu_l cos b) and ``sigma_l``, ``sigma_b``: the
-        difference implied - measured in units of the measurement's standard deviation.
-
-    References
-    ----------
-    Reid, M. J. & Brunthaler, A. 2020, ApJ 892, 39 (mu_l = -6.411 +/- 0.008, mu_b = -0.219 +/- 0.007 mas/yr).
-    """
-    reflex = frame.reflex_proper_motion()
-    (ml, sl), (mb, sb) = SGR_A_STAR_PROPER_MOTION["mu_l"], SGR_A_STAR_PROPER_MOTION["mu_b"]
-    return {"mu_l": reflex.mu_l_star, "mu_b": reflex.mu_b,
-            "sigma_l": (reflex.mu_l_star - ml) / sl, "sigma_b": (reflex.mu_b - mb) / sb}
 
 
 class FrameControls(widgets.VBox):
@@ -307,7 +282,7 @@ class FrameControls(widgets.VBox):
 
     # ------------------------------------------------------------------ state -> display
     def _lsr_view(self, frame):
-        vc = frame.v_sun[1] - self._solar_V
+        vc = lsr_circular_velocity(frame, self._solar_V)
         return vc, frame.lsr_motion(vc)
 
     def _show_all(self):
@@ -369,11 +344,6 @@ _MASS_UNIT = 1e10  # Msun per slider unit
 
 #: Rotation curves that took less than this (s) last time are recomputed on the main thread.
 INLINE_LIMIT_S = 0.05
-
-
-def _float(value):
-    """Plain float(s) from a float, array or Quantity (km/s)."""
-    return np.asarray(getattr(value, "value", value), dtype=float)
 
 
 #: Slider label (with unit), range in slider units, and the factor from slider units to the model's
@@ -450,7 +420,8 @@ class PotentialControls(widgets.VBox):
         self.match_checkbox.observe(self._match_toggled, "value")
         self.solar_V_field = NumberField("V_sun - V_LSR [km/s]", self.state.solar_V, "mwkin-solar-V",
                                          self._solar_V_set, tooltip="the Sun's motion along rotation "
-                                         "relative to the LSR (Schoenrich et al. 2010: 12.24 km/s)")
+                                         "relative to the LSR (Schoenrich et al. 2010: "
+                                         f"{SCHOENRICH2010_SOLAR_MOTION[1]:g} km/s)")
 
         self._build_figure()
         self.readout = widgets.HTML()
@@ -634,8 +605,6 @@ class PotentialControls(widgets.VBox):
                 self.status_line.show_busy("computing...")
 
     def _compute(self, request):
-        from ..potentials import sun_inplane_radius
-
         frame = request["frame"]
         pot = potential_from_config(request["potential"], frame)
         # The curve depends on the model only (and on the frame only through a rescaling), so a frame
@@ -649,10 +618,10 @@ class PotentialControls(widgets.VBox):
             self._curve_cache = (key, curves)
         out = {"potential": pot, "R": self._radii, "curves": curves, "frame": frame}
         if frame is not None:
-            R_sun = sun_inplane_radius(frame)
+            R_sun = frame.inplane_radius
             out["R_sun"] = R_sun
-            out["vc_pot"] = float(_float(pot.vcirc(R_sun)))
-            out["vc_frame"] = frame.v_sun[1] - request["potential"]["solar_V"]
+            out["vc_pot"] = float(pot.vcirc(R_sun).to_value("km/s"))
+            out["vc_frame"] = lsr_circular_velocity(frame, request["potential"]["solar_V"])
         return out
 
     def _deliver(self, result, request, seconds):
@@ -686,7 +655,7 @@ class PotentialControls(widgets.VBox):
                 f"difference {result['vc_pot'] - result['vc_frame']:+.1f} km/s")
         else:
             R8 = 8.0
-            result["vc_8"] = float(_float(result["potential"].vcirc(R8)))
+            result["vc_8"] = float(result["potential"].vcirc(R8).to_value("km/s"))
             self.readout.value = f"v_c(8 kpc) = <b>{result['vc_8']:.1f} km/s</b> in this potential"
         self._y_scale.max = 1.1 * top
         self.result = result
@@ -706,8 +675,8 @@ def _model_key(config):
 def _rotation_curves(pot, R):
     """Total and per-component circular velocity (km/s) at radii ``R`` (kpc) as a dict label -> array."""
     table = pot.rotation_curve(R)
-    curves = {"total": _float(table["vc"])}
+    curves = {"total": column_values(table, "vc", "km/s")}
     # Potential.rotation_curve: columns R, vc, then one vc_<component> per component, in order.
     for label, column in zip(pot.component_names, table.colnames[2:]):
-        curves[label if label not in curves else column] = _float(table[column])
+        curves[label if label not in curves else column] = column_values(table, column, "km/s")
     return curves

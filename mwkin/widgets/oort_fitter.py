@@ -10,12 +10,15 @@ from __future__ import annotations
 
 import html
 import math
+import warnings
 
 import ipywidgets as widgets
 import numpy as np
 import traitlets
 
-from ..galactic import K_KMS_PER_MASYR_KPC
+from ..columns import column_values
+from ..oort.model import predicted_observables
+from ..oort.sample import sky_motions
 from ._base import AnalysisWidget, Panel, error_text
 from ._live import LiveRunner
 from ._plots import (COLOURS, SampleView, band_mark, binned_quantiles, error_bar_mark, legend_html, line_mark,
@@ -23,7 +26,7 @@ from ._plots import (COLOURS, SampleView, band_mark, binned_quantiles, error_bar
 from ._sample import DistanceControls, SampleInput, SampleLoader, SampleSource, apply_sample_config, inverse_parallax_caveat
 from .state import ConfigError
 
-__all__ = ["OortFitter", "first_order_model", "parameter_table_html", "parse_bins", "DEFAULT_BINS_KPC", "L_BIN_DEG"]
+__all__ = ["OortFitter", "parameter_table_html", "parse_bins", "DEFAULT_BINS_KPC", "L_BIN_DEG"]
 
 #: Default edges of the distance bins, kpc.
 DEFAULT_BINS_KPC = (0.0, 0.1, 0.2, 0.3, 0.5, 0.75, 1.0, 1.5)
@@ -52,10 +55,6 @@ _SETTINGS = ("distance_range", "max_pm_error", "max_abs_b", "use", "robust", "bo
              "residual", "residual_against")
 
 
-def _values(column):
-    return np.asarray(getattr(column, "value", column), dtype=float)
-
-
 def parse_bins(text):
     """'0, 0.2, 0.5' -> [(0, 0.2), (0.2, 0.5)] (kpc); raises ValueError with the reason."""
     try:
@@ -68,25 +67,19 @@ def parse_bins(text):
 
 
 class _SampleGeometry:
-    """What the widget derives once per sample: Galactic l, b, mu_l*, mu_b and the largest pm error.
+    """What the widget keeps once per sample: Galactic l, b, mu_l*, mu_b and the largest pm error.
 
-    Uses :func:`mwkin.oort_sample.galactic_geometry`, the same rotation as the fit, so data and model
-    agree exactly.
+    l, b, mu_l*, mu_b come from :func:`mwkin.oort.sample.sky_motions`, the rotation the fit itself uses,
+    so data and model agree exactly.
     """
 
     def __init__(self, stars):
-        from ..oort_sample import galactic_geometry
-
-        ra, dec = _values(stars["ra"]), _values(stars["dec"])
-        sl, cl, sb, cb, c1, c2 = galactic_geometry(ra, dec)
-        pmra, pmdec = _values(stars["pmra"]), _values(stars["pmdec"])
-        self.l_deg = np.degrees(np.mod(np.arctan2(sl, cl), 2.0 * np.pi))
-        self.b_deg = np.degrees(np.arctan2(sb, cb))
-        self.mu_l_star = c1 * pmra + c2 * pmdec
-        self.mu_b = -c2 * pmra + c1 * pmdec
-        self.v_r = _values(stars["radial_velocity"]) if "radial_velocity" in stars.colnames else np.full(len(stars), np.nan)
+        self.l_deg, self.b_deg, self.mu_l_star, self.mu_b = sky_motions(stars)
+        self.v_r = (column_values(stars, "radial_velocity", "km/s") if "radial_velocity" in stars.colnames
+                    else np.full(len(stars), np.nan))
         if "pmra_error" in stars.colnames and "pmdec_error" in stars.colnames:
-            self.pm_error = np.fmax(_values(stars["pmra_error"]), _values(stars["pmdec_error"]))
+            self.pm_error = np.fmax(column_values(stars, "pmra_error", "mas/yr"),
+                                    column_values(stars, "pmdec_error", "mas/yr"))
         else:
             self.pm_error = None
         self.has_rv = bool(np.isfinite(self.v_r).any())
@@ -121,36 +114,27 @@ class _SampleGeometry:
 
 
 def first_order_model(l_deg, fit, distance_kpc, b_deg=0.0):
-    """mu_l* (mas/yr) and v_r (km/s) of the first-order model with a fit's parameters.
+    """Deprecated: mu_l* (mas/yr) and v_r (km/s) of the first-order model with a fit's parameters.
 
-    Parameters
-    ----------
-    l_deg, b_deg : float or array
-        Galactic longitude and latitude, deg.
-    fit : OortFit
-    distance_kpc : float or array
-        Heliocentric distance, kpc.
+    Use :func:`mwkin.oort.predicted_observables` (``mu_l, mu_b, v_r = predicted_observables(l_deg,
+    b_deg, distance_kpc, fit)``), the model's one home; this calls it.
 
     Returns
     -------
     mu_l_star, v_r : numpy.ndarray
-
-    Notes
-    -----
-    k mu_l* = (A cos 2l - C sin 2l + B) cos b + (U sin l - V cos l) / d and
-    v_r = d (K + A sin 2l + C cos 2l) cos^2 b - (U cos l + V sin l) cos b - W sin b (the equations in
-    :mod:`mwkin.oort`, REFERENCES.md); parameters the data do not constrain (NaN) count as zero.
     """
-    l = np.radians(np.asarray(l_deg, dtype=float))
-    b = np.radians(np.asarray(b_deg, dtype=float))
-    d = np.asarray(distance_kpc, dtype=float)
-    A, B, C, K = (v if np.isfinite(v) else 0.0 for v in (fit.A, fit.B, fit.C, fit.K))
-    U, V, W = (v if np.isfinite(v) else 0.0 for v in fit.solar_motion)
-    cb, sb = np.cos(b), np.sin(b)
-    mu = ((A * np.cos(2 * l) - C * np.sin(2 * l) + B) * cb + (U * np.sin(l) - V * np.cos(l)) / d)
-    mu = mu / K_KMS_PER_MASYR_KPC
-    v_r = d * (K + A * np.sin(2 * l) + C * np.cos(2 * l)) * cb**2 - (U * np.cos(l) + V * np.sin(l)) * cb - W * sb
-    return mu, v_r
+    warnings.warn("mwkin.widgets.oort_fitter.first_order_model is deprecated: use "
+                  "mwkin.oort.predicted_observables(l_deg, b_deg, distance_kpc, fit), which also gives mu_b",
+                  DeprecationWarning, stacklevel=2)
+    mu_l, _, v_r = predicted_observables(l_deg, b_deg, distance_kpc, fit)
+    return mu_l, v_r
+
+
+def _model_curves(fit, distance_kpc):
+    """The first-order model with a fit's parameters along l (0-360 deg) at b = 0 and one distance."""
+    l_curve = np.linspace(0.0, 360.0, 361)
+    mu_curve, _, vr_curve = predicted_observables(l_curve, 0.0, distance_kpc, fit)
+    return l_curve, mu_curve, vr_curve
 
 
 class OortFitter(SampleInput, AnalysisWidget):
@@ -193,7 +177,7 @@ class OortFitter(SampleInput, AnalysisWidget):
     - **Distance bins**: A and B fitted separately in each bin (same settings), with the potential's
       values as lines; where they drift the first-order model stops holding.
     - Quality cuts: the parallax signal-to-noise cut belongs to the distance choice; the proper-motion
-      error cut takes max(pmra_error, pmdec_error); 0 switches it off, and max |b| = 90 switches the
+      error cut takes max(pmra_error, pmdec_error); 0 switches it off, and max ``|b|`` = 90 switches the
       latitude cut off.
     """
 
@@ -427,20 +411,20 @@ class OortFitter(SampleInput, AnalysisWidget):
         d = geometry.distances(request["distance"])
         a = {"used": used, "l": geometry.l_deg, "distance": np.where(used, d, np.nan)}
         a["mu_l_star"] = np.where(used, geometry.mu_l_star, np.nan)
-        a["mu_model"] = a["mu_l_star"] - _values(residuals["delta_mu_l_star"])
-        vr_used = used & np.isfinite(_values(residuals["delta_v_r"]))
+        a["mu_model"] = a["mu_l_star"] - column_values(residuals, "delta_mu_l_star", "mas/yr")
+        delta_v_r = column_values(residuals, "delta_v_r", "km/s")
+        vr_used = used & np.isfinite(delta_v_r)
         a["v_r"] = np.where(vr_used, geometry.v_r, np.nan)
-        a["vr_model"] = a["v_r"] - _values(residuals["delta_v_r"])
+        a["vr_model"] = a["v_r"] - delta_v_r
         for name, (column, _) in _RESIDUALS.items():
-            a[f"z_{name}"] = np.where(used, _values(residuals[column]), np.nan)
+            a[f"z_{name}"] = np.where(used, column_values(residuals, column), np.nan)
         a["median_distance"] = float(np.nanmedian(a["distance"])) if used.any() else float("nan")
         return a
 
     def _draw_fit(self, fit, request):
         a = self._fit_arrays
         edges = np.arange(0.0, 360.0 + L_BIN_DEG / 2, L_BIN_DEG)
-        l_curve = np.linspace(0.0, 360.0, 361)
-        mu_curve, vr_curve = first_order_model(l_curve, fit, a["median_distance"])
+        l_curve, mu_curve, vr_curve = _model_curves(fit, a["median_distance"])
         self.mu_view.set_data(a["l"], a["mu_l_star"], a["distance"], x_label="l", x_unit="deg", y_label="mu_l*",
                               y_unit="mas/yr", c_label="distance", c_unit="kpc")
         self._draw_binned(edges, a["l"], a["mu_l_star"], a["mu_model"], (self.mu_band, self.mu_bars, self.mu_medians,
@@ -621,9 +605,9 @@ class OortFitter(SampleInput, AnalysisWidget):
         quality = "None"
         cuts = []
         if s["max_abs_b"] < 90.0:
-            lines += ["from mwkin.oort_sample import galactic_geometry",
-                      "sl, cl, sb, cb, _, _ = galactic_geometry(stars['ra'].value, stars['dec'].value)"]
-            cuts.append(f"(np.abs(np.degrees(np.arctan2(sb, cb))) <= {s['max_abs_b']!r})")
+            lines += ["from mwkin.oort.sample import sky_motions",
+                      "l, b, mu_l, mu_b = sky_motions(stars)  # deg, deg, mas/yr, mas/yr (the fit's own rotation)"]
+            cuts.append(f"(np.abs(b) <= {s['max_abs_b']!r})")
         if s["max_pm_error"] > 0:
             cuts.append(f"(np.fmax(stars['pmra_error'].value, stars['pmdec_error'].value) <= {s['max_pm_error']!r})")
         if cuts:
@@ -645,8 +629,7 @@ class OortFitter(SampleInput, AnalysisWidget):
         if fit is None or a is None:
             return []
         edges = np.arange(0.0, 360.0 + L_BIN_DEG / 2, L_BIN_DEG)
-        l_curve = np.linspace(0.0, 360.0, 361)
-        mu_curve, vr_curve = first_order_model(l_curve, fit, a["median_distance"])
+        l_curve, mu_curve, vr_curve = _model_curves(fit, a["median_distance"])
         d_label = f"model, b = 0, d = {a['median_distance']:.2f} kpc"
 
         def binned_layers(y):

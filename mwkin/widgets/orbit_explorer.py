@@ -24,8 +24,11 @@ from dataclasses import dataclass, field
 import ipywidgets as widgets
 import numpy as np
 
+from ..columns import OUTPUT_COLUMNS, PHASE_SPACE_COLUMNS, column_values
 from ..orbits import ADVISORY_FLAGS
+from ..orbits.parameters import draw_phase_space_samples, span_parameters
 from ._base import AnalysisWidget, Panel
+from ._sample import LOW_SNR, parallax_snr
 from .controls import NumberField
 from .state import ConfigError, potential_from_config, require_mapping
 from .views import GalaxyView
@@ -126,10 +129,6 @@ class _Field(NumberField):
         if self.slider is not None and abs(change["new"] - self.text.value) <= 0.5 * self.slider.step * (1 + 1e-9):
             return
         super()._slider_moved(change)
-
-
-def _plain(value):
-    return np.asarray(getattr(value, "value", value), dtype=float)
 
 
 class OrbitExplorer(AnalysisWidget):
@@ -341,17 +340,21 @@ class OrbitExplorer(AnalysisWidget):
         self.row_label.value = f"<small>{html.escape(ident + shown)} (of {len(self._stars)} rows)</small>"
 
     def _row_values(self):
-        row = self._stars[int(self.row_selector.value)]
+        """The chosen row's numbers (standard units, NaN where masked) and its source_id, by column name."""
+        i = int(self.row_selector.value)
+        row = self._stars[i:i + 1]
         out = {}
         for name in self._stars.colnames:
             if name == "source_id":
-                out[name] = row[name].item() if hasattr(row[name], "item") else row[name]
+                value = row[name][0]
+                out[name] = value.item() if hasattr(value, "item") else value
                 continue
-            value = row[name]
             try:
-                out[name] = float(getattr(value, "value", value))
-            except (TypeError, ValueError):
+                values = column_values(row, name)
+            except ValueError:   # a text column: not an input of the orbit
                 continue
+            if values.size == 1:
+                out[name] = float(values[0])
         return out
 
     def _source_changed(self, change):
@@ -415,7 +418,7 @@ class OrbitExplorer(AnalysisWidget):
         """
         frame = self.frame_state.frame
         phase, _ = _phase_space(self._star_request(), frame)
-        values = {k: float(_plain(phase[k])[0]) for k in _PHASE_SPACE}
+        values = dict(zip(PHASE_SPACE_COLUMNS, _phase_space_row(phase)))
         original = {**self._star_config(), "converted_with_frame": frame.to_dict()}
         self._loading = True
         try:
@@ -573,7 +576,7 @@ class OrbitExplorer(AnalysisWidget):
             fatal = [flag for flag in str(orbits.flags[0]).split(";") if flag and flag not in ADVISORY_FLAGS]
             if fatal:
                 raise ValueError(f"the {name} could not be computed: {'; '.join(fatal)}")
-        start = np.array([float(_plain(phase[k])[0]) for k in _PHASE_SPACE])
+        start = _phase_space_row(phase)
         note = "" if request["dragged_from"] is None else \
             f"velocity set by dragging (star converted from the {request['dragged_from']}, which is kept)"
         return OrbitView(orbits=main, backward=backward if forward is not None else None, cloud=cloud,
@@ -599,17 +602,13 @@ class OrbitExplorer(AnalysisWidget):
 
         ``rperi``/``rapo``/``zmax`` are the extremes over the backward and forward integrations
         together, ``eccentricity`` = (rapo - rperi) / (rapo + rperi) from them; ``energy`` and ``Lz``
-        are those of the star at t = 0.
+        are those of the star at t = 0 (:func:`mwkin.orbits.parameters.span_parameters`).
         """
         view = self._result
         if view is None:
             return None
-        sets = [s for s in (view.orbits, view.backward) if s is not None]
-        rperi = min(float(_plain(s.rperi)[0]) for s in sets)
-        rapo = max(float(_plain(s.rapo)[0]) for s in sets)
-        zmax = max(float(_plain(s.zmax)[0]) for s in sets)
-        return {"rperi": rperi, "rapo": rapo, "zmax": zmax, "eccentricity": (rapo - rperi) / (rapo + rperi),
-                "energy": float(_plain(view.orbits.energy)[0]), "Lz": float(_plain(view.orbits.Lz)[0])}
+        table = span_parameters([view.orbits, view.backward])
+        return {name: float(table[name][0].value) for name in ("rperi", "rapo", "zmax", "eccentricity", "energy", "Lz")}
 
     def _summary(self, view):
         p = self.orbital_parameters()
@@ -635,7 +634,7 @@ class OrbitExplorer(AnalysisWidget):
         cloud = _cloud_arrays(view.cloud) if view.cloud is not None else None
         sun = view.frame.sun_position
         self._draw_face_on(tracks, cloud, sun, view, request)
-        self._draw_meridional(tracks, cloud, sun)
+        self._draw_meridional(tracks, cloud, sun, view.frame.inplane_radius)
         self._show_readout(view)
 
     def _show_readout(self, view):
@@ -646,7 +645,7 @@ class OrbitExplorer(AnalysisWidget):
         spread = {}
         if view.cloud is not None:
             for key in ("rperi", "rapo", "zmax", "eccentricity", "energy", "Lz"):
-                values = _plain(getattr(view.cloud, key))
+                values = getattr(view.cloud, key).value
                 values = values[np.isfinite(values)]
                 if values.size:
                     lo, hi = np.percentile(values, [16, 84])
@@ -763,9 +762,9 @@ class OrbitExplorer(AnalysisWidget):
             g.view_range = [-extent, extent, -extent, extent]
             g.arrow_scale = 250.0 / (_ARROW_FRACTION * extent)
 
-    def _draw_meridional(self, tracks, cloud, sun):
+    def _draw_meridional(self, tracks, cloud, sun, R_sun):
         m = self.meridional_marks
-        R_sun, z_sun = math.hypot(sun[0], sun[1]), sun[2]
+        z_sun = sun[2]
         Rs = [t["R"] for t in tracks.values() if t is not None]
         zs = [t["z"] for t in tracks.values() if t is not None]
         if cloud is not None:
@@ -955,7 +954,7 @@ class OrbitExplorer(AnalysisWidget):
             lines.append(f"pot = mk.Potential.three_component(**{pot_cfg['parameters']!r})")
         if pot_cfg["match_frame_vc"]:
             lines.append(f"pot = pot.scaled_to(frame.v_sun[1] - {pot_cfg['solar_V']!r}, "
-                         "(frame.R0**2 - (frame.z_sun / 1000)**2) ** 0.5)  # match the frame's vc")
+                         "frame.inplane_radius)  # match the frame's vc")
         star = request["star"]
         cloud = request["cloud"]
         values = {**star["values"], **(star["errors"] if cloud else {})}
@@ -1089,14 +1088,13 @@ def _integrate(stars, pot, frame, t):
 
 
 def _parallax_caveat(star):
-    """A warning when the star's distance is 1/parallax at parallax/error below 5, else ''."""
-    values, errors = star["values"], star["errors"]
-    if "parallax" not in values or not errors.get("parallax_error"):
+    """A warning when the star's distance is 1/parallax at a signal-to-noise below :data:`LOW_SNR`, else ''."""
+    if "parallax" not in star["values"] or not star["errors"].get("parallax_error"):
         return ""
-    snr = values["parallax"] / errors["parallax_error"]
-    if snr >= 5:
+    snr = float(parallax_snr(_star_table(star))[0])
+    if snr >= LOW_SNR:
         return ""
-    return (f"parallax/error = {snr:.1f} < 5: 1/parallax is a biased, noisy distance here "
+    return (f"parallax/error = {snr:.1f} < {LOW_SNR:g}: 1/parallax is a biased, noisy distance here "
             "(Bailer-Jones 2015, PASP 127, 994); the orbit cloud shows how uncertain the orbit is")
 
 
@@ -1104,7 +1102,7 @@ def _distance_choice(star):
     """The distance choice for a one-star request: the distance typed, or 1/parallax without a cut.
 
     The user typed (or picked) this one star, so its parallax is inverted whatever its signal-to-noise;
-    the read-out warns when that is below 5 (Bailer-Jones 2015, PASP 127, 994).
+    the read-out warns when that is below :data:`LOW_SNR` (:func:`_parallax_caveat`).
     """
     from ..distances import DistanceColumn, InverseParallax
 
@@ -1123,36 +1121,44 @@ def _phase_space(star, frame, want_covariance=False):
                            return_covariance=want_covariance)
     if gc["flag"][0]:
         raise ValueError(f"the star has no Galactocentric position and velocity: {gc['flag'][0]}")
-    cov = _plain(gc["cov_galactocentric"]).reshape(1, 6, 6) if want_covariance else None
+    cov = column_values(gc, "cov_galactocentric").reshape(1, 6, 6) if want_covariance else None
     return gc[list(_PHASE_SPACE)], cov
+
+
+def _phase_space_row(phase):
+    """x, y, z (kpc), vx, vy, vz (km/s) of the first row of a phase-space table, as floats."""
+    return np.array([column_values(phase, c, OUTPUT_COLUMNS[c][0])[0] for c in PHASE_SPACE_COLUMNS])
 
 
 def _draw_stars(phase, cov, n, seed):
     """``n`` Galactocentric phase-space points (n, 6) drawn from the star's linear covariance.
 
     The covariance of x..vz is ``to_galactocentric(errors="linear", return_covariance=True)``'s and the
-    draws are the orbits module's sampler, as in ``orbit_parameters(n_samples=...)``, so with the same
-    seed the cloud holds the samples that function summarises.
+    draws are :func:`mwkin.orbits.parameters.draw_phase_space_samples`, the sampler of
+    ``orbit_parameters(n_samples=...)``, so with the same seed the cloud holds the samples that function
+    summarises.
     """
-    from ..orbits import _draw_samples
+    from ..orbits import OrbitError
 
-    if cov is None or not np.all(np.isfinite(cov)):
-        raise ValueError("the star's uncertainties give no finite covariance; give the parallax (or distance), "
+    if cov is None:
+        raise ValueError("the star has no covariance to draw from; give the parallax (or distance), "
                          "pmra, pmdec and radial_velocity errors")
-    xyz = np.column_stack([_plain(phase[c]) for c in _PHASE_SPACE])
-    return _draw_samples(xyz, cov, int(n), np.random.default_rng(seed)).reshape(-1, 6)
+    try:
+        return draw_phase_space_samples(_phase_space_row(phase), cov, n, seed).reshape(-1, 6)
+    except OrbitError as exc:
+        raise ValueError(f"{exc}; give the parallax (or distance), pmra, pmdec and radial_velocity errors") from None
+
+
+def _tracks(orbits, keep=slice(None)):
+    """Tracks ``keep`` (an index or a selection) as float64 arrays x, y, z, R (kpc) from the OrbitSet."""
+    return {name: getattr(orbits, name)[keep].to_value("kpc") for name in ("x", "y", "z", "R")}
 
 
 def _track_arrays(orbits, i):
     """Track of orbit ``i`` as float64 arrays x, y, z, R (kpc) and t (Gyr)."""
-    c = orbits.cylindrical[i]
-    return {"x": -c[:, 0] * np.cos(c[:, 1]), "y": c[:, 0] * np.sin(c[:, 1]), "z": c[:, 2], "R": c[:, 0],
-            "t": _plain(orbits.t)}
+    return {**_tracks(orbits, i), "t": orbits.t.to_value("Gyr")}
 
 
 def _cloud_arrays(orbits):
     """All cloud tracks as (N, nt) arrays x, y, z, R (kpc); failed draws dropped."""
-    c = orbits.cylindrical
-    keep = np.all(np.isfinite(c[..., 0]), axis=1)
-    c = c[keep]
-    return {"x": -c[..., 0] * np.cos(c[..., 1]), "y": c[..., 0] * np.sin(c[..., 1]), "z": c[..., 2], "R": c[..., 0]}
+    return _tracks(orbits, np.all(np.isfinite(orbits.R.to_value("kpc")), axis=1))

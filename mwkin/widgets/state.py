@@ -15,11 +15,12 @@ import astropy.units as u
 import traitlets
 
 from .._validate import require_mapping as _require_mapping
-from ..frames import FrameError, SolarFrame, warn_if_implausible
+from ..frames import (DEFAULT_FRAME_PARAMETERS, DEFAULT_PRESET, SCHOENRICH2010_SOLAR_MOTION, FrameError, SolarFrame,
+                      warn_if_implausible)
 
 __all__ = ["FrameState", "PotentialState", "DEFAULT_FRAME_PRESET", "DEFAULT_POTENTIAL_PRESET",
            "potential_from_config", "default_three_component_parameters", "ConfigError", "require_mapping",
-           "frame_from_config", "validated_potential_config"]
+           "frame_from_config", "validated_potential_config", "lsr_circular_velocity"]
 
 
 class ConfigError(ValueError):
@@ -39,7 +40,8 @@ def frame_from_config(config):
     except (KeyError, TypeError) as exc:  # keep every failure a ValueError that names the problem
         raise ConfigError(f"frame config: {exc}") from None
 
-DEFAULT_FRAME_PRESET = "astropy v4.0"
+#: The preset a new FrameState holds (mwkin.frames.DEFAULT_PRESET).
+DEFAULT_FRAME_PRESET = DEFAULT_PRESET
 DEFAULT_POTENTIAL_PRESET = "MWPotential2014"
 
 
@@ -58,10 +60,11 @@ class FrameState(traitlets.HasTraits):
         Name of the preset the values came from, or "" once edited.
     """
 
-    R0 = traitlets.Float(8.122, help="Sun-centre distance, kpc")
-    z_sun = traitlets.Float(20.8, help="height of the Sun above the Galactic mid-plane, pc")
+    # The defaults are mwkin.frames.DEFAULT_FRAME_PARAMETERS (the frame __init__ sets anyway).
+    R0 = traitlets.Float(DEFAULT_FRAME_PARAMETERS["R0"], help="Sun-centre distance, kpc")
+    z_sun = traitlets.Float(DEFAULT_FRAME_PARAMETERS["z_sun"], help="height of the Sun above the Galactic mid-plane, pc")
     v_sun = traitlets.Tuple(traitlets.Float(), traitlets.Float(), traitlets.Float(),
-                            default_value=(12.9, 245.6, 7.78),
+                            default_value=tuple(DEFAULT_FRAME_PARAMETERS["v_sun"]),
                             help="solar velocity (vx, vy, vz) in Galactocentric Cartesian axes, km/s")
     preset = traitlets.Unicode(DEFAULT_FRAME_PRESET, help="preset name, or '' once a value was edited")
 
@@ -89,8 +92,10 @@ class FrameState(traitlets.HasTraits):
         value = proposal["value"]
         if not math.isfinite(value):
             raise traitlets.TraitError(f"z_sun must be a finite height in pc, got {value} pc")
-        if abs(value) >= 1000.0 * self.R0:
-            raise traitlets.TraitError(f"|z_sun| = {abs(value)} pc must be smaller than R0")
+        try:   # the core's rule for z_sun against R0 (units stated: no unit-slip warning here)
+            SolarFrame(R0=self.R0 * u.kpc, z_sun=value * u.pc)
+        except FrameError as exc:
+            raise traitlets.TraitError(str(exc)) from None
         if not getattr(self, "_applying", False):
             warn_if_implausible(z_sun=value)
         return value
@@ -164,8 +169,9 @@ class PotentialState(traitlets.HasTraits):
     preset = traitlets.Unicode(DEFAULT_POTENTIAL_PRESET, help="published model name, or '' for parameters")
     parameters = traitlets.Dict(help="three-component model parameters (Msun, kpc), used when preset is ''")
     match_frame_vc = traitlets.Bool(False, help="rescale to the frame's circular velocity at the Sun")
-    solar_V = traitlets.Float(12.24, help="solar motion relative to the LSR along rotation, km/s "
-                                          "(Schoenrich et al. 2010), used when matching the frame")
+    solar_V = traitlets.Float(SCHOENRICH2010_SOLAR_MOTION[1],
+                              help="solar motion relative to the LSR along rotation, km/s "
+                                   "(Schoenrich et al. 2010), used when matching the frame")
 
     def __init__(self, potential=None, **kwargs):
         super().__init__(**kwargs)
@@ -278,6 +284,26 @@ def default_three_component_parameters():
     return {"bulge": dict(DEFAULT_BULGE), "disc": dict(DEFAULT_DISC), "halo": dict(DEFAULT_HALO)}
 
 
+def lsr_circular_velocity(frame, solar_V):
+    """The circular velocity of the local standard of rest a frame implies, km/s: ``v_sun[1] - solar_V``.
+
+    The inverse, for vc, of :meth:`mwkin.frames.SolarFrame.from_lsr` (``v_sun = (U, vc + V, W)``) given
+    the Sun's motion V relative to the LSR along rotation. The one place the widgets split the Sun's
+    azimuthal velocity (frame controls, rotation-curve marker, frame matching, Toomre diagram).
+
+    Parameters
+    ----------
+    frame : SolarFrame
+    solar_V : float
+        The Sun's motion relative to the LSR in the direction of rotation, km/s.
+
+    Returns
+    -------
+    float
+    """
+    return float(frame.v_sun[1]) - float(solar_V)
+
+
 def potential_from_config(config, frame=None):
     """The :class:`~mwkin.potentials.Potential` a :attr:`PotentialState.config` describes.
 
@@ -293,14 +319,15 @@ def potential_from_config(config, frame=None):
     -----
     Safe to call from a worker thread (it reads no traits), which is how the widgets use it.
     """
-    from ..potentials import Potential, sun_inplane_radius
+    from ..potentials import Potential
 
     if config.get("preset"):
         pot = Potential.preset(config["preset"])
     else:
         pot = Potential.three_component(**copy.deepcopy(config["parameters"]))
     if config.get("match_frame_vc") and frame is not None:
-        pot = pot.scaled_to(frame.v_sun[1] - config.get("solar_V", 12.24), sun_inplane_radius(frame))
+        solar_V = config.get("solar_V", SCHOENRICH2010_SOLAR_MOTION[1])
+        pot = pot.scaled_to(lsr_circular_velocity(frame, solar_V), frame.inplane_radius)
     return pot
 
 

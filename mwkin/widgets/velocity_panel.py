@@ -15,8 +15,9 @@ import ipywidgets as widgets
 import numpy as np
 import traitlets
 
-from ._base import AnalysisWidget, Panel, error_text
-from .state import ConfigError
+from ..columns import column_values
+from ._base import AnalysisWidget, Panel
+from .state import ConfigError, lsr_circular_velocity
 from ._plots import COLOURS, SampleView
 from ._sample import (DistanceControls, SampleInput, SampleLoader, SampleSource, apply_sample_config, inverse_parallax_caveat)
 
@@ -37,11 +38,6 @@ COLOUR_COLUMNS = {
 GUIDE_SPEEDS_KMS = (100.0, 200.0)
 
 _ERROR_METHODS = ("none", "linear")
-
-
-def _column(table, name):
-    col = table[name]
-    return np.asarray(getattr(col, "value", col), dtype=float)
 
 
 class VelocityPanel(SampleInput, AnalysisWidget):
@@ -79,7 +75,7 @@ class VelocityPanel(SampleInput, AnalysisWidget):
       sqrt(U_LSR^2 + W_LSR^2) against V_LSR diagram with the x axis shifted by the circular velocity:
       the local disc sits near ``v_phi = v_c`` and a non-rotating halo near 0. The guide circles are
       centred on the local standard of rest implied by the frame, ``v_phi = v_sun_y - solar_V`` (the
-      potential state's solar_V, default 12.24 km/s, Schoenrich et al. 2010), ``v_R = v_z = 0``, at
+      potential state's solar_V, by default the V of Schoenrich et al. 2010), ``v_R = v_z = 0``, at
       100 and 200 km/s total speed relative to it. Using each star's own cylindrical axes differs
       from the heliocentric U, W by the small angle phi (a few degrees within ~1 kpc).
     - **U-V plane**: heliocentric U (toward the Galactic centre) and V (along rotation), relative to the
@@ -245,9 +241,11 @@ class VelocityPanel(SampleInput, AnalysisWidget):
         # view's indices are input row numbers.
         arrays = {}
         for name in ("v_R", "v_phi", "v_z", "U", "V", "R"):
-            values = _column(result, name).copy()
+            values = column_values(result, name).copy()
             values[~has_v] = np.nan
             arrays[name] = values
+        # The Toomre diagram's ordinate: the speed perpendicular to rotation, sqrt(v_R^2 + v_z^2).
+        arrays["v_perp"] = np.hypot(arrays["v_R"], arrays["v_z"])
         self._arrays = arrays
         self._frame = request["frame"]
         self._draw(result, keep_selection=True)
@@ -265,7 +263,7 @@ class VelocityPanel(SampleInput, AnalysisWidget):
         common = {"c_label": c_label, "c_unit": c_unit, "keep_selection": keep_selection}
         self._linking = True
         try:
-            self.toomre.set_data(a["v_phi"], np.hypot(a["v_R"], a["v_z"]), colour, x_label="v_phi",
+            self.toomre.set_data(a["v_phi"], a["v_perp"], colour, x_label="v_phi",
                                  x_unit="km/s", y_label="sqrt(v_R² + v_z²)", y_unit="km/s", **common)
             self.uv_plane.set_data(a["U"], a["V"], colour, x_label="U, toward the centre", x_unit="km/s",
                                    y_label="V, along rotation", y_unit="km/s", **common)
@@ -278,7 +276,7 @@ class VelocityPanel(SampleInput, AnalysisWidget):
         name = COLOUR_COLUMNS[self.colour_control.value]
         if name is None or name not in result.colnames:
             return None
-        return _column(result, name)
+        return column_values(result, name)
 
     def _recolour(self, change):
         if self._result is None:
@@ -287,7 +285,7 @@ class VelocityPanel(SampleInput, AnalysisWidget):
 
     def _lsr_vphi(self):
         frame = getattr(self, "_frame", None) or self.frame_state.frame
-        return frame.v_sun[1] - self.potential_state.solar_V
+        return lsr_circular_velocity(frame, self.potential_state.solar_V)
 
     def _show_lsr(self):
         self.lsr_label.value = (f"<small>Toomre diagram: the local standard of rest is at v_phi = "
@@ -371,7 +369,7 @@ class VelocityPanel(SampleInput, AnalysisWidget):
 
         return [
             Panel("Toomre diagram", "v_phi [km/s]", "sqrt(v_R² + v_z²) [km/s]",
-                  layers(a["v_phi"], np.hypot(a["v_R"], a["v_z"])) + guides),
+                  layers(a["v_phi"], a["v_perp"]) + guides),
             Panel("U-V plane (relative to the Sun)", "U, toward the centre [km/s]", "V, along rotation [km/s]",
                   layers(a["U"], a["V"]), equal_aspect=True),
             Panel("v_phi against R", "R [kpc]", "v_phi [km/s]", layers(a["R"], a["v_phi"])),

@@ -19,10 +19,16 @@ import numpy as np
 import traitlets
 from ipywidgets.widgets.trait_types import bytes_serialization
 
+from ..frames import DEFAULT_FRAME_PARAMETERS
 from ..units import to_value
 from ._assets import bundle
 
 __all__ = ["ViewDataError", "SampleScatter", "GalaxyView"]
+
+# The view's defaults show the default frame (mwkin.frames.DEFAULT_FRAME_PARAMETERS): the Sun at
+# x = -R0 (in-plane, the z_sun tilt ignored) moving with v_sun; the star starts on the Sun.
+_SUN_XY = [-DEFAULT_FRAME_PARAMETERS["R0"], 0.0]
+_SUN_VXY = list(DEFAULT_FRAME_PARAMETERS["v_sun"][:2])
 
 _F32 = np.dtype("<f4")
 _U32 = np.dtype("<u4")
@@ -312,15 +318,15 @@ class GalaxyView(anywidget.AnyWidget):
     track_y = _binary_trait("orbit track y (kpc), float32 little-endian")
     cloud_x = _binary_trait("x (kpc) of extra faint tracks, float32, tracks separated by NaN")
     cloud_y = _binary_trait("y (kpc) of extra faint tracks, float32, tracks separated by NaN")
-    star_xy = traitlets.List(traitlets.Float(), default_value=[-8.122, 0.0], minlen=2, maxlen=2,
+    star_xy = traitlets.List(traitlets.Float(), default_value=list(_SUN_XY), minlen=2, maxlen=2,
                              help="star's initial position [x, y] in kpc").tag(sync=True)
-    velocity_xy = traitlets.List(traitlets.Float(), default_value=[12.9, 245.6], minlen=2, maxlen=2,
+    velocity_xy = traitlets.List(traitlets.Float(), default_value=list(_SUN_VXY), minlen=2, maxlen=2,
                                  help="star's initial in-plane velocity [vx, vy] in km/s; set by dragging "
                                       "the arrow tip").tag(sync=True)
-    sun_xy = traitlets.List(traitlets.Float(), default_value=[-8.122, 0.0], minlen=2, maxlen=2,
-                            help="the Sun's position [x, y] in kpc (astropy's default frame: "
-                                 "x = -8.122)").tag(sync=True)
-    sun_velocity_xy = traitlets.List(traitlets.Float(), default_value=[12.9, 245.6], minlen=2, maxlen=2,
+    sun_xy = traitlets.List(traitlets.Float(), default_value=list(_SUN_XY), minlen=2, maxlen=2,
+                            help="the Sun's position [x, y] in kpc (default: the default frame's, "
+                                 "x = -R0)").tag(sync=True)
+    sun_velocity_xy = traitlets.List(traitlets.Float(), default_value=list(_SUN_VXY), minlen=2, maxlen=2,
                                      help="the Sun's in-plane velocity [vx, vy] in km/s; sets the sense of "
                                           "the rotation arrow").tag(sync=True)
     arrow_scale = traitlets.Float(50.0, min=1e-3,

@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 import mwkin as mk
-from mwkin.galactic import K_KMS_PER_MASYR_KPC
+from mwkin.coords import K_KMS_PER_MASYR_KPC
 from mwkin.widgets import FrameControls, FrameState
 
 

@@ -10,9 +10,9 @@ import numpy as np
 import pytest
 
 from disc_mock import flat_disc_sample
-from mwkin.oort import OortFit
+from mwkin.oort import OortFit, predicted_observables
 from mwkin.widgets import FrameState, OortFitter, PotentialState
-from mwkin.widgets.oort_fitter import first_order_model, parse_bins
+from mwkin.widgets.oort_fitter import parse_bins
 
 V_FLAT = 230.0  # km/s, the mock's flat rotation curve
 R0 = 8.122  # kpc, the astropy v4.0 frame the mock is made in
@@ -59,20 +59,22 @@ def test_views_show_the_fitted_stars_and_the_model(sample):
     mu = y_of(w.mu_view)
     assert np.isfinite(mu).sum() == fit.n_used == used.sum()
     assert np.isnan(mu[~used]).all()
-    # the per-star model (data minus the fit's residual) is the first-order formula of REFERENCES.md
-    # evaluated at each star's l, b, d: an independent check of the widget's model curve
+    # the per-star model (data minus the fit's residual, from the solver) is the first-order formula of
+    # REFERENCES.md (mwkin.oort.predicted_observables) evaluated at each star's l, b, d
     geometry, arrays = w._geometry, w._fit_arrays
-    mu_model, vr_model = first_order_model(geometry.l_deg[used], fit, arrays["distance"][used], geometry.b_deg[used])
+    mu_model, _, vr_model = predicted_observables(geometry.l_deg[used], geometry.b_deg[used], arrays["distance"][used],
+                                                  fit)
     mu_data = arrays["mu_l_star"]  # float64 (the view holds float32)
     np.testing.assert_allclose(mu[used], mu_data[used], rtol=1e-6)
     np.testing.assert_allclose(mu_model, mu_data[used] - res["delta_mu_l_star"].value[used], atol=1e-9)
     has_rv = used & np.isfinite(res["delta_v_r"].value)
-    _, vr_model = first_order_model(geometry.l_deg[has_rv], fit, arrays["distance"][has_rv], geometry.b_deg[has_rv])
+    _, _, vr_model = predicted_observables(geometry.l_deg[has_rv], geometry.b_deg[has_rv], arrays["distance"][has_rv],
+                                           fit)
     np.testing.assert_allclose(vr_model, arrays["v_r"][has_rv] - res["delta_v_r"].value[has_rv], atol=1e-9)
     np.testing.assert_allclose(y_of(w.vr_view)[has_rv], arrays["v_r"][has_rv], rtol=1e-6)
     # the curve is the model at b = 0 and the median distance
     d_med = float(np.median(arrays["distance"][used]))
-    curve, _ = first_order_model(np.asarray(w.mu_model.x), fit, d_med)
+    curve, _, _ = predicted_observables(np.asarray(w.mu_model.x), 0.0, d_med, fit)
     np.testing.assert_allclose(np.asarray(w.mu_model.y), curve)
     assert f"d = {d_med:.2f} kpc" in w.mu_model.labels[0]
     # binned medians: one per filled 15-deg bin, each the median of the stars in it
@@ -81,6 +83,18 @@ def test_views_show_the_fitted_stars_and_the_model(sample):
     in_first = used & (geometry.l_deg < 15.0)
     assert y_med[0] == pytest.approx(np.median(geometry.mu_l_star[in_first]))
     assert w.vr_box.layout.display != "none"
+
+
+def test_first_order_model_is_a_deprecated_name_for_the_core_model(sample):
+    from mwkin.widgets.oort_fitter import first_order_model
+
+    fit = fitter(sample, threaded=False).result
+    l, b, d = np.array([10.0, 100.0, 250.0]), np.array([0.0, 20.0, -40.0]), np.array([0.2, 0.5, 1.0])
+    with pytest.warns(DeprecationWarning, match="predicted_observables"):
+        mu, v_r = first_order_model(l, fit, d, b)
+    mu_core, _, v_r_core = predicted_observables(l, b, d, fit)
+    np.testing.assert_array_equal(mu, mu_core)
+    np.testing.assert_array_equal(v_r, v_r_core)
 
 
 def test_distance_range_change_refits_and_redraws(sample):
