@@ -18,11 +18,12 @@ ALLOW_ROOT := $(if $(filter 0,$(shell id -u)),--allow-root,)
 TOUR := example_notebooks/01_tour.ipynb
 PYTEST_ARGS ?=
 
-.PHONY: help install lab test test-python test-js chromium bench docs
+.PHONY: help install lab test test-python test-js chromium bench lint docs
 
 help:
 	@echo "make lab     set up .venv and open $(TOUR) in JupyterLab"
-	@echo "make test    set up .venv (+ chromium when root) and run the node tests, pytest and make docs"
+	@echo "make test    set up .venv (+ chromium when root) and run make lint, the node tests, pytest and make docs"
+	@echo "make lint    ruff check, ruff format --check, mypy on the core"
 	@echo "make bench   run every benchmarks/bench_*.py in turn"
 	@echo "make docs    build the documentation site (docs/_build/html; runs the example notebooks)"
 
@@ -71,14 +72,21 @@ test-js:
 test-python: install
 	$(VPY) -m pytest $(PYTEST_ARGS)
 
-# Node tests first (seconds), then pytest, then the documentation build; all three always run and
-# the target fails if any failed.
+# Lint first (seconds), node tests, then pytest, then the documentation build; all four always run
+# and the target fails if any failed.
 test: install chromium
 	@rc=0; \
+	$(MAKE) --no-print-directory lint || rc=1; \
 	$(MAKE) --no-print-directory test-js || rc=1; \
 	$(MAKE) --no-print-directory test-python || rc=1; \
 	$(MAKE) --no-print-directory docs || rc=1; \
 	exit $$rc
+
+# ruff (lint and format, configured in pyproject.toml) over the repository, mypy over the core.
+lint: install
+	$(VENV)/bin/ruff check .
+	$(VENV)/bin/ruff format --check .
+	$(VENV)/bin/mypy
 
 # The documentation site, warnings as errors; it executes the example notebooks (see docs/conf.py).
 docs: install

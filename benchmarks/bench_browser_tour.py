@@ -85,14 +85,17 @@ def main(argv=None):
     lab = labtools.start_lab()
     try:
         with sync_playwright() as playwright:
-            browser = playwright.chromium.launch(executable_path=labtools.CHROMIUM, headless=True,
-                                                 args=labtools.CHROMIUM_ARGS)
+            browser = playwright.chromium.launch(
+                executable_path=labtools.CHROMIUM, headless=True, args=labtools.CHROMIUM_ARGS
+            )
             try:
                 page = browser.new_page(viewport={"width": 1400, "height": 1600})
                 page.set_default_timeout(120_000)
                 # Nothing may leave the machine (as in the tests' page fixture).
-                page.route(re.compile(".*"), lambda route: route.continue_()
-                           if labtools.is_local_url(route.request.url) else route.abort())
+                page.route(
+                    re.compile(".*"),
+                    lambda route: route.continue_() if labtools.is_local_url(route.request.url) else route.abort(),
+                )
                 start = time.perf_counter()
                 first_render_s = tour.open_tour(lab, page)
                 moves = [tour.move_r0_once(page) for _ in range(args.moves)]
@@ -106,8 +109,11 @@ def main(argv=None):
 
     ref = statistics.median(reference)
     record = tour.summarise(moves, first_render_s)
-    record["reference"] = {"what": "FloatSlider -> Python observer -> Label text, keydown to DOM change",
-                           "median_ms": ref, "each_ms": [round(t, 1) for t in reference]}
+    record["reference"] = {
+        "what": "FloatSlider -> Python observer -> Label text, keydown to DOM change",
+        "median_ms": ref,
+        "each_ms": [round(t, 1) for t in reference],
+    }
     record["ratio_to_reference"] = {k: v / ref for k, v in record["median_ms"].items()}
     out = labtools.OUTPUT_DIR / "bench_browser_tour.json"
     out.parent.mkdir(parents=True, exist_ok=True)
@@ -115,8 +121,12 @@ def main(argv=None):
 
     print(f"tour first render: {first_render_s:.1f} s; whole run {time.perf_counter() - start:.0f} s")
     print(f"reference (slider -> kernel -> Label, no computation): median {ref:.0f} ms over {args.moves} presses")
-    labels = {"face_on": "orbit face-on (canvas)", "meridional": "orbit meridional (SVG)",
-              "v_phi_R": "v_phi-R view (canvas)", "oort_status": "Oort fit status ready"}
+    labels = {
+        "face_on": "orbit face-on (canvas)",
+        "meridional": "orbit meridional (SVG)",
+        "v_phi_R": "v_phi-R view (canvas)",
+        "oort_status": "Oort fit status ready",
+    }
     for key, label in labels.items():
         median = record["median_ms"][key]
         print(f"R0 key press -> {label:>23}: median {median:6.0f} ms = {median / ref:5.1f} x reference")

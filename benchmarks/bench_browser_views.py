@@ -123,15 +123,19 @@ async ([code, selector, kind, n, timeoutMs]) => {
 
 
 def kernel_json(page, expr):
-    return json.loads(page.evaluate(
-        """async (code) => {
+    return json.loads(
+        page.evaluate(
+            """async (code) => {
           const kernel = window.jupyterapp.shell.currentWidget.sessionContext.session.kernel;
           const future = kernel.requestExecute({ code, store_history: false });
           let text = '';
           future.onIOPub = (msg) => { if (msg.header.msg_type === 'stream') text += msg.content.text; };
           await future.done;
           return text;
-        }""", f"import json as _j; print(_j.dumps({expr}))"))
+        }""",
+            f"import json as _j; print(_j.dumps({expr}))",
+        )
+    )
 
 
 def measure(page, code, selector, kind, n, timeout_ms):
@@ -148,11 +152,11 @@ def fmt(ms):
 def run(reps, with_bq_1e5):
     lab = labtools.start_lab()
     from playwright.sync_api import sync_playwright
+
     rows, brush_rows = [], []
     try:
         with sync_playwright() as pw:
-            browser = pw.chromium.launch(executable_path=labtools.CHROMIUM, headless=True,
-                                         args=labtools.CHROMIUM_ARGS)
+            browser = pw.chromium.launch(executable_path=labtools.CHROMIUM, headless=True, args=labtools.CHROMIUM_ARGS)
             page = browser.new_page(viewport={"width": 1280, "height": 1400})
             name = labtools.write_notebook(lab, "bench_views.ipynb", setup_cells(SIZES, reps))
             labtools.open_and_run(page, lab, name, timeout_ms=300_000)
@@ -176,21 +180,29 @@ def run(reps, with_bq_1e5):
                     kernel_json(page, "KERNEL_MS.clear() or 0")
                     bq_reps = reps if n < BQPLOT_MAX else min(reps, 2)
                     for r in range(bq_reps):
-                        code = (f"X, Y, C = DATA[{n}][{r}]\n"
-                                "def _set():\n"
-                                "    with dots.hold_sync():\n"
-                                "        dots.x, dots.y, dots.color = X, Y, C\n"
-                                "timed(_set)")
+                        code = (
+                            f"X, Y, C = DATA[{n}][{r}]\n"
+                            "def _set():\n"
+                            "    with dots.hold_sync():\n"
+                            "        dots.x, dots.y, dots.color = X, Y, C\n"
+                            "timed(_set)"
+                        )
                         runs.append(measure(page, code, ".b-bq", "svg", n, 180_000))
                     kms = kernel_json(page, "KERNEL_MS")
                     rows.append(("bqplot Scatter (SVG)", n, runs, statistics.median(kms), "svg"))
                     # free the browser from 1e5 SVG nodes before the next size
-                    kernel_json(page, "setattr(dots, 'x', np.zeros(1)) or setattr(dots, 'y', np.zeros(1)) "
-                                      "or setattr(dots, 'color', np.zeros(1)) or 0")
+                    kernel_json(
+                        page,
+                        "setattr(dots, 'x', np.zeros(1)) or setattr(dots, 'y', np.zeros(1)) "
+                        "or setattr(dots, 'color', np.zeros(1)) or 0",
+                    )
 
             # ---- brush over 1e5 stars -> mask in Python ----
-            kernel_json(page, "setattr(w, 'density', 'auto') or "
-                              f"w.set_data(*DATA[{BRUSH_N}][0], view_range=(-150, 150, -130, 90)) or 0")
+            kernel_json(
+                page,
+                "setattr(w, 'density', 'auto') or "
+                f"w.set_data(*DATA[{BRUSH_N}][0], view_range=(-150, 150, -130, 90)) or 0",
+            )
             view = page.locator(".b-scatter")
             view.scroll_into_view_if_needed()
             page.wait_for_function("() => document.querySelector('.b-scatter').dataset.domain === '[-150,150,-130,90]'")
@@ -219,15 +231,20 @@ def run(reps, with_bq_1e5):
                 page.mouse.down()
                 page.mouse.move(bx, by, steps=6)
                 page.mouse.up()
-                page.wait_for_function(f"() => window.__acks.some(a => a[1].endsWith(' {r + 1}'))",
-                                       timeout=60_000)
+                page.wait_for_function(f"() => window.__acks.some(a => a[1].endsWith(' {r + 1}'))", timeout=60_000)
                 up_perf, up_wall = page.evaluate("() => window.__ups[window.__ups.length - 1]")
                 ack_perf = page.evaluate(f"() => window.__acks.find(a => a[1].endsWith(' {r + 1}'))[0]")
                 hit_ms = float(view.evaluate("el => el.dataset.selectMs"))
                 received = kernel_json(page, "RECEIVED")[r]
                 count = kernel_json(page, "int(w.selected_mask.sum())")
-                brush_rows.append({"one_way": received - up_wall, "round_trip": ack_perf - up_perf,
-                                   "hit_ms": hit_ms, "selected": count})
+                brush_rows.append(
+                    {
+                        "one_way": received - up_wall,
+                        "round_trip": ack_perf - up_perf,
+                        "hit_ms": hit_ms,
+                        "selected": count,
+                    }
+                )
             browser.close()
     finally:
         labtools.shutdown_kernels(lab)
@@ -259,15 +276,18 @@ def report(rows, brush_rows, reps):
         print(f"{'selected':>9} {'JS hit-test ms':>14} {'release->mask ms':>17} {'round trip ms':>14}")
         for b in brush_rows:
             print(f"{b['selected']:>9,} {fmt(b['hit_ms']):>14} {fmt(b['one_way']):>17} {fmt(b['round_trip']):>14}")
-        print(f"median release->mask: {fmt(statistics.median(b['one_way'] for b in brush_rows))} ms, "
-              f"round trip: {fmt(statistics.median(b['round_trip'] for b in brush_rows))} ms")
+        print(
+            f"median release->mask: {fmt(statistics.median(b['one_way'] for b in brush_rows))} ms, "
+            f"round trip: {fmt(statistics.median(b['round_trip'] for b in brush_rows))} ms"
+        )
 
 
 def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--reps", type=int, default=3)
-    parser.add_argument("--skip-bqplot-1e5", action="store_true",
-                        help="skip bqplot at 1e5 points (takes ~10-25 s per repetition)")
+    parser.add_argument(
+        "--skip-bqplot-1e5", action="store_true", help="skip bqplot at 1e5 points (takes ~10-25 s per repetition)"
+    )
     args = parser.parse_args(argv)
     t = time.monotonic()
     rows, brush_rows = run(args.reps, not args.skip_bqplot_1e5)

@@ -26,8 +26,18 @@ import time
 
 import numpy as np
 
-CORRELATIONS = ("ra_dec_corr", "ra_parallax_corr", "ra_pmra_corr", "ra_pmdec_corr", "dec_parallax_corr",
-                "dec_pmra_corr", "dec_pmdec_corr", "parallax_pmra_corr", "parallax_pmdec_corr", "pmra_pmdec_corr")
+CORRELATIONS = (
+    "ra_dec_corr",
+    "ra_parallax_corr",
+    "ra_pmra_corr",
+    "ra_pmdec_corr",
+    "dec_parallax_corr",
+    "dec_pmra_corr",
+    "dec_pmdec_corr",
+    "parallax_pmra_corr",
+    "parallax_pmdec_corr",
+    "pmra_pmdec_corr",
+)
 
 
 def make_stars(n, seed=1, errors=False):
@@ -43,9 +53,12 @@ def make_stars(n, seed=1, errors=False):
     }
     if errors:
         stars.update(
-            ra_error=rng.uniform(0.01, 0.3, n), dec_error=rng.uniform(0.01, 0.3, n),
-            parallax_error=0.05 * stars["parallax"], pmra_error=rng.uniform(0.02, 0.3, n),
-            pmdec_error=rng.uniform(0.02, 0.3, n), radial_velocity_error=rng.uniform(0.5, 5.0, n),
+            ra_error=rng.uniform(0.01, 0.3, n),
+            dec_error=rng.uniform(0.01, 0.3, n),
+            parallax_error=0.05 * stars["parallax"],
+            pmra_error=rng.uniform(0.02, 0.3, n),
+            pmdec_error=rng.uniform(0.02, 0.3, n),
+            radial_velocity_error=rng.uniform(0.5, 5.0, n),
         )
         # Valid correlations: small random values keep every 5x5 matrix positive definite.
         stars.update({name: rng.uniform(-0.15, 0.15, n) for name in CORRELATIONS})
@@ -75,7 +88,7 @@ def bench_plain(n, repeat):
 
     from mwkin import SolarFrame
     from mwkin.distances import InverseParallax
-    from mwkin.kinematics import galactocentric_from_observables, cylindrical_from_cartesian, to_galactocentric
+    from mwkin.kinematics import cylindrical_from_cartesian, galactocentric_from_observables, to_galactocentric
 
     stars = make_stars(n)
     table = as_table(stars)
@@ -88,14 +101,27 @@ def bench_plain(n, repeat):
         return to_galactocentric(table, frame, distance=choice)
 
     def core():
-        gc = galactocentric_from_observables(stars["ra"], stars["dec"], 1.0 / stars["parallax"], stars["pmra"],
-                                             stars["pmdec"], stars["radial_velocity"], frame)
+        gc = galactocentric_from_observables(
+            stars["ra"],
+            stars["dec"],
+            1.0 / stars["parallax"],
+            stars["pmra"],
+            stars["pmdec"],
+            stars["radial_velocity"],
+            frame,
+        )
         return gc, cylindrical_from_cartesian(*(gc[k] for k in ("x", "y", "z", "vx", "vy", "vz")))
 
     def theirs():
-        c = SkyCoord(ra=stars["ra"] * u.deg, dec=stars["dec"] * u.deg, distance=(1.0 / stars["parallax"]) * u.kpc,
-                     pm_ra_cosdec=stars["pmra"] * masyr, pm_dec=stars["pmdec"] * masyr,
-                     radial_velocity=stars["radial_velocity"] * kms, frame="icrs")
+        c = SkyCoord(
+            ra=stars["ra"] * u.deg,
+            dec=stars["dec"] * u.deg,
+            distance=(1.0 / stars["parallax"]) * u.kpc,
+            pm_ra_cosdec=stars["pmra"] * masyr,
+            pm_dec=stars["pmdec"] * masyr,
+            radial_velocity=stars["radial_velocity"] * kms,
+            frame="icrs",
+        )
         gc = c.transform_to(astropy_frame)
         return gc, gc.represent_as(CylindricalRepresentation, CylindricalDifferential)
 
@@ -113,18 +139,26 @@ def bench_plain(n, repeat):
         "vz [km/s]": np.max(np.abs(out["vz"].value - gc.v_z.to_value(kms))),
         "R [kpc]": np.max(np.abs(out["R"].value - cyl.rho.to_value(u.kpc))),
         # astropy's cylindrical phi and d_phi run the other way: phi_ours = 180 - phi, v_phi = -rho d_phi
-        "phi [deg]": np.max(np.abs(np.mod(out["phi"].value - (180.0 - cyl.phi.to_value(u.deg)) + 180.0, 360.0)
-                                   - 180.0)),
-        "v_phi [km/s]": np.max(np.abs(out["v_phi"].value + (cyl.rho * cyl.differentials["s"].d_phi)
-                                      .to_value(kms, u.dimensionless_angles()))),
+        "phi [deg]": np.max(
+            np.abs(np.mod(out["phi"].value - (180.0 - cyl.phi.to_value(u.deg)) + 180.0, 360.0) - 180.0)
+        ),
+        "v_phi [km/s]": np.max(
+            np.abs(
+                out["v_phi"].value + (cyl.rho * cyl.differentials["s"].d_phi).to_value(kms, u.dimensionless_angles())
+            )
+        ),
         "v_R [km/s]": np.max(np.abs(out["v_R"].value - cyl.differentials["s"].d_rho.to_value(kms))),
     }
     print(f"== {n:.0e} stars, no uncertainties (best of {repeat}) ==")
     print(f"astropy SkyCoord.transform_to(Galactocentric) + cylindrical: {t_theirs:8.3f} s")
-    print(f"mwkin to_galactocentric (table in, checks, flags, 20 columns): {t_ours:8.3f} s"
-          f"   ratio astropy/mwkin = {t_theirs / t_ours:5.2f}  (goal >= 5)")
-    print(f"mwkin array functions (Cartesian + cylindrical only):         {t_core:8.3f} s"
-          f"   ratio astropy/mwkin = {t_theirs / t_core:5.2f}")
+    print(
+        f"mwkin to_galactocentric (table in, checks, flags, 20 columns): {t_ours:8.3f} s"
+        f"   ratio astropy/mwkin = {t_theirs / t_ours:5.2f}  (goal >= 5)"
+    )
+    print(
+        f"mwkin array functions (Cartesian + cylindrical only):         {t_core:8.3f} s"
+        f"   ratio astropy/mwkin = {t_theirs / t_core:5.2f}"
+    )
     print("largest differences from astropy: " + ", ".join(f"{k} {v:.2e}" for k, v in diffs.items()))
     return t_ours
 
@@ -138,8 +172,9 @@ def bench_linear(n, repeat):
     to_galactocentric(table[:1000], errors="linear", distance=choice)
     t_plain, _ = best_of(lambda: to_galactocentric(table, distance=choice), repeat)
     t_lin, _ = best_of(lambda: to_galactocentric(table, errors="linear", distance=choice), repeat)
-    t_cov, _ = best_of(lambda: to_galactocentric(table, errors="linear", distance=choice,
-                                                 return_covariance=True), max(1, repeat - 1))
+    t_cov, _ = best_of(
+        lambda: to_galactocentric(table, errors="linear", distance=choice, return_covariance=True), max(1, repeat - 1)
+    )
     print(f"== {n:.0e} stars with all Gaia uncertainty and correlation columns (best of {repeat}) ==")
     print(f"plain conversion of that table:           {t_plain:8.3f} s")
     print(f"errors='linear':                          {t_lin:8.3f} s   ratio {t_lin / t_plain:5.2f}  (goal <= 3)")
@@ -174,10 +209,12 @@ def bench_memory(n):
         code = _MEMORY_CHILD.format(here=here, n=n, cov=cov)
         res = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
         m = json.loads(res.stdout.strip().splitlines()[-1])
-        print(f"return_covariance={cov!s:5}: allocations during the call (tracemalloc peak) "
-              f"{m['traced_peak'] / 2**30:5.2f} GB; process peak RSS {m['rss_peak_kb'] / 2**20:5.2f} GB "
-              f"(of which {m['rss_before_kb'] / 2**20:4.2f} GB before the call: Python, astropy, the input table)"
-              f"  (goal < 2 GB)")
+        print(
+            f"return_covariance={cov!s:5}: allocations during the call (tracemalloc peak) "
+            f"{m['traced_peak'] / 2**30:5.2f} GB; process peak RSS {m['rss_peak_kb'] / 2**20:5.2f} GB "
+            f"(of which {m['rss_before_kb'] / 2**20:4.2f} GB before the call: Python, astropy, the input table)"
+            f"  (goal < 2 GB)"
+        )
 
 
 def _load():

@@ -20,16 +20,16 @@ from __future__ import annotations
 import os
 import time
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 from astropy.table import QTable
 
-from mwkin.distances import InverseParallax
 from mwkin.coords import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC
+from mwkin.distances import InverseParallax
 from mwkin.oort import fit_oort
-from mwkin.oort.sample import prepare_sample
-from mwkin.oort.model import PARAMETERS
 from mwkin.oort.model import DESIGN as _T
+from mwkin.oort.model import PARAMETERS
+from mwkin.oort.sample import prepare_sample
 from mwkin.oort.solver import _linear_step, solve
 
 K = K_KMS_PER_MASYR_KPC
@@ -64,7 +64,7 @@ def mock(n, seed):
     t["parallax_pmra_corr"] = np.full(n, -0.1)
     t["radial_velocity"] = ((pos_i / d * vel_i).sum(0) + 1.0 * rng.normal(size=n)) * u.km / u.s
     t["radial_velocity_error"] = np.full(n, 1.0) * u.km / u.s
-    t.meta["mwkin_source"] = "benchmark mock"    # already in standard columns: skip read_catalog
+    t.meta["mwkin_source"] = "benchmark mock"  # already in standard columns: skip read_catalog
     return t
 
 
@@ -98,40 +98,50 @@ def dense_whitened_design(blocks, weights):
         l21 = (w[4] - l20 * l10) / l11
         l22 = np.sqrt(w[5] - l20**2 - l21**2)
         lt = [[l00, l10, l20], [0.0, l11, l21], [0.0, 0.0, l22]]
-        basis = np.stack([np.ones_like(block.x), block.x, block.y])        # (3, n): 1, x, y
-        design = np.einsum("ajf,fn->naj", _T, basis)                       # (n, 3, 7)
+        basis = np.stack([np.ones_like(block.x), block.x, block.y])  # (3, n): 1, x, y
+        design = np.einsum("ajf,fn->naj", _T, basis)  # (n, 3, 7)
         rows_x.append(np.stack([sum(lt[a][b] * design[:, b, :].T for b in range(3)).T for a in range(3)]))
         rows_y.append(np.stack([sum(lt[a][b] * block.u[b] for b in range(3)) for a in range(3)]))
     return np.concatenate(rows_x, axis=1), np.concatenate(rows_y, axis=1)
 
 
 def main():
-    print(f"Oort-constant fit benchmark (numpy {np.__version__}); load average at start "
-          f"{os.getloadavg()[0]:.1f} on {os.cpu_count()} cores (wall times grow with the load)")
+    print(
+        f"Oort-constant fit benchmark (numpy {np.__version__}); load average at start "
+        f"{os.getloadavg()[0]:.1f} on {os.cpu_count()} cores (wall times grow with the load)"
+    )
     n = 1_000_000
     stars = mock(n, seed=1)
-    fit_oort(stars)                                   # warm-up (imports, caches)
+    fit_oort(stars)  # warm-up (imports, caches)
     t_fit, fit = best_of(3, lambda: fit_oort(stars, use="both"))
     print(f"\n1) {n:.0e} stars with proper motions and radial velocities ({fit.n_used} in 0-0.5 kpc)")
-    print(f"   fit_oort, full (ML ellipsoid, {fit.n_iterations} iterations, residuals): {t_fit:.3f} s wall, "
-          f"{CPU[-1]:.3f} s CPU (goal < 1 s)")
+    print(
+        f"   fit_oort, full (ML ellipsoid, {fit.n_iterations} iterations, residuals): {t_fit:.3f} s wall, "
+        f"{CPU[-1]:.3f} s CPU (goal < 1 s)"
+    )
 
     prep = prepare_sample(stars, use="both", distance=InverseParallax(), distance_range=(0.0, 0.5))
     solution = solve(prep.blocks)
     x, y = dense_whitened_design(prep.blocks, solution.weights)
     x, y = x.reshape(-1, 7), y.ravel()
-    t_lstsq, (p_lstsq, *_) = best_of(1, lambda: np.linalg.lstsq(x, y, rcond=None))
-    print(f"   reference numpy.linalg.lstsq on the dense {x.shape[0]} x {x.shape[1]} whitened design, "
-          f"same weights, one pass: {t_lstsq:.3f} s")
+    t_lstsq, (p_lstsq, *_) = best_of(1, lambda: np.linalg.lstsq(x, y, rcond=None))  # noqa: F821 (x, y are deleted only after the call)
+    print(
+        f"   reference numpy.linalg.lstsq on the dense {x.shape[0]} x {x.shape[1]} whitened design, "
+        f"same weights, one pass: {t_lstsq:.3f} s"
+    )
     print(f"   ratio reference lstsq / full fit: {t_lstsq / t_fit:.2f}")
     t_pass, _ = best_of(3, lambda: _linear_step(prep.blocks, solution.covs, solution.theta))
-    print(f"   like for like, one weighted least-squares pass from moments (weights included): {t_pass:.3f} s, "
-          f"ratio lstsq / pass: {t_lstsq / t_pass:.1f}")
+    print(
+        f"   like for like, one weighted least-squares pass from moments (weights included): {t_pass:.3f} s, "
+        f"ratio lstsq / pass: {t_lstsq / t_pass:.1f}"
+    )
     errors = np.sqrt(np.diag(solution.covariance))
     diff = np.abs(p_lstsq - solution.p) / errors
-    print(f"   parameter agreement: largest |difference| = {diff.max():.2e} sigma "
-          f"({PARAMETERS[int(diff.argmax())]}); values " +
-          ", ".join(f"{name} {v:.3f}" for name, v in zip(PARAMETERS, solution.p)))
+    print(
+        f"   parameter agreement: largest |difference| = {diff.max():.2e} sigma "
+        f"({PARAMETERS[int(diff.argmax())]}); values "
+        + ", ".join(f"{name} {v:.3f}" for name, v in zip(PARAMETERS, solution.p))
+    )
     del x, y
 
     n_boot, n = 200, 100_000
@@ -139,8 +149,10 @@ def main():
     t_plain, _ = best_of(3, lambda: fit_oort(stars))
     t_boot, fit = best_of(2, lambda: fit_oort(stars, bootstrap=n_boot, seed=7))
     print(f"\n2) bootstrap, {n_boot} resamples on {n:.0e} stars (load average now {os.getloadavg()[0]:.1f})")
-    print(f"   fit_oort(bootstrap={n_boot}): {t_boot:.3f} s in all, {t_boot - t_plain:.3f} s for the "
-          f"resampling (goal < 5 s)")
+    print(
+        f"   fit_oort(bootstrap={n_boot}): {t_boot:.3f} s in all, {t_boot - t_plain:.3f} s for the "
+        f"resampling (goal < 5 s)"
+    )
     samples = fit.bootstrap["samples"]
     ratio = samples.std(axis=0, ddof=1) / np.array([fit.errors[p] for p in PARAMETERS])
     print("   bootstrap std / Fisher error: " + ", ".join(f"{p} {r:.2f}" for p, r in zip(PARAMETERS, ratio)))
@@ -158,8 +170,10 @@ def main():
 
     t_naive, _ = best_of(1, naive)
     t_naive *= n_boot / n_naive
-    print(f"   reference: re-indexed resamples + numpy.linalg.lstsq on the dense design, {n_naive} resamples "
-          f"timed, scaled to {n_boot}: {t_naive:.2f} s")
+    print(
+        f"   reference: re-indexed resamples + numpy.linalg.lstsq on the dense design, {n_naive} resamples "
+        f"timed, scaled to {n_boot}: {t_naive:.2f} s"
+    )
     print(f"   ratio reference / our resampling: {t_naive / max(t_boot - t_plain, 1e-9):.1f}")
 
 

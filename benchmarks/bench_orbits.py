@@ -35,8 +35,14 @@ from mwkin.orbits.inputs import _cartesian  # noqa: E402
 
 def disc_sample(n, seed=1):
     rng = np.random.default_rng(seed)
-    cyl = (rng.uniform(5.0, 11.0, n), rng.uniform(-0.5, 0.5, n), rng.normal(0, 0.3, n),
-           rng.normal(0, 35, n), rng.normal(215, 25, n), rng.normal(0, 20, n))
+    cyl = (
+        rng.uniform(5.0, 11.0, n),
+        rng.uniform(-0.5, 0.5, n),
+        rng.normal(0, 0.3, n),
+        rng.normal(0, 35, n),
+        rng.normal(215, 25, n),
+        rng.normal(0, 20, n),
+    )
     return np.column_stack(_cartesian(*cyl)), np.column_stack(cyl)
 
 
@@ -78,14 +84,21 @@ def main(quick=False):
     xyz, cyl = disc_sample(1)
     t = np.linspace(0, 10.0, 10001)
     integrate_orbits(xyz, pot, t=t)  # warm-up: galpy import, potential set-up
-    timings = interleaved({
-        "ours": lambda: integrate_orbits(xyz, pot, t=t),
-        "galpy": lambda: Orbit(galpy_vxvv(cyl)[0]).integrate(t / t_unit, MWPotential2014, method="dop853_c",
-                                                             progressbar=False),
-    }, rounds=15, reduce=min)
+    timings = interleaved(
+        {
+            "ours": lambda: integrate_orbits(xyz, pot, t=t),
+            "galpy": lambda: Orbit(galpy_vxvv(cyl)[0]).integrate(
+                t / t_unit, MWPotential2014, method="dop853_c", progressbar=False
+            ),
+        },
+        rounds=15,
+        reduce=min,
+    )
     ours, bare = timings["ours"], timings["galpy"]
-    print(f"1. one 10-Gyr orbit, 10,001 points: integrate_orbits {ours * 1e3:.1f} ms (goal < 50 ms); "
-          f"bare galpy Orbit {bare * 1e3:.1f} ms; ratio ours/galpy = {ours / bare:.3f}")
+    print(
+        f"1. one 10-Gyr orbit, 10,001 points: integrate_orbits {ours * 1e3:.1f} ms (goal < 50 ms); "
+        f"bare galpy Orbit {bare * 1e3:.1f} ms; ratio ours/galpy = {ours / bare:.3f}"
+    )
 
     # 2. 1,000 orbits over 10 Gyr, same grid for all three, in interleaved slices so that changes in the
     # load of the shared machine hit the three alike.
@@ -99,20 +112,26 @@ def main(quick=False):
     for k, idx in enumerate(slices):
         methods = {
             "ours": lambda: integrate_orbits(xyz[idx], pot, t=t),
-            "galpy batch": lambda: Orbit(vxvv[idx]).integrate(t_nat, MWPotential2014, method="dop853_c",
-                                                              progressbar=False),
-            "galpy loop": lambda: [Orbit(row).integrate(t_nat, MWPotential2014, method="dop853_c",
-                                                        progressbar=False) for row in vxvv[idx]],
+            "galpy batch": lambda: Orbit(vxvv[idx]).integrate(
+                t_nat, MWPotential2014, method="dop853_c", progressbar=False
+            ),
+            "galpy loop": lambda: [
+                Orbit(row).integrate(t_nat, MWPotential2014, method="dop853_c", progressbar=False) for row in vxvv[idx]
+            ],
         }
-        order = list(methods)[k % 3:] + list(methods)[:k % 3]
+        order = list(methods)[k % 3 :] + list(methods)[: k % 3]
         best = interleaved({name: methods[name] for name in order}, rounds=2, reduce=min)
         for name, value in best.items():
             totals[name] += value
     t_ours, t_batch, t_loop = totals["ours"], totals["galpy batch"], totals["galpy loop"]
-    print(f"2. {n} orbits x 10 Gyr (1,001 points each, 1 thread): integrate_orbits {t_ours:.2f} s, "
-          f"galpy batch {t_batch:.2f} s, galpy loop {t_loop:.2f} s")
-    print(f"   ratio ours/galpy-batch = {t_ours / t_batch:.3f} (overhead goal < 1.10); "
-          f"ratio galpy-loop/ours = {t_loop / t_ours:.2f}")
+    print(
+        f"2. {n} orbits x 10 Gyr (1,001 points each, 1 thread): integrate_orbits {t_ours:.2f} s, "
+        f"galpy batch {t_batch:.2f} s, galpy loop {t_loop:.2f} s"
+    )
+    print(
+        f"   ratio ours/galpy-batch = {t_ours / t_batch:.3f} (overhead goal < 1.10); "
+        f"ratio galpy-loop/ours = {t_loop / t_ours:.2f}"
+    )
 
     # 3. Staeckel for 10^4 stars vs integrating them
     n_st = 2000 if quick else 10000
@@ -122,9 +141,11 @@ def main(quick=False):
     n_int = 200 if quick else 1000
     t_int = best_of(lambda: orbit_parameters(xyz[:n_int], pot, method="integrate"), 1)
     t_int_all = t_int * n_st / n_int
-    print(f"3. Staeckel parameters for {n_st} stars: {t_staeckel:.2f} s ({t_staeckel / n_st * 1e6:.0f} us/star); "
-          f"integrating them (default 3 Gyr, 3,001 points; timed on {n_int}, scaled): {t_int_all:.1f} s; "
-          f"ratio integrate/Staeckel = {t_int_all / t_staeckel:.0f}")
+    print(
+        f"3. Staeckel parameters for {n_st} stars: {t_staeckel:.2f} s ({t_staeckel / n_st * 1e6:.0f} us/star); "
+        f"integrating them (default 3 Gyr, 3,001 points; timed on {n_int}, scaled): {t_int_all:.1f} s; "
+        f"ratio integrate/Staeckel = {t_int_all / t_staeckel:.0f}"
+    )
 
 
 if __name__ == "__main__":

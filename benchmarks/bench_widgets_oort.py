@@ -21,7 +21,7 @@ import numpy as np
 from astropy.table import QTable
 
 import mwkin as mk
-from mwkin.oort import fit_oort, fit_in_distance_bins
+from mwkin.oort import fit_in_distance_bins, fit_oort
 from mwkin.widgets import FrameState, OortFitter, PotentialState, VelocityPanel
 
 
@@ -40,8 +40,9 @@ def sample(n, seed=1):
     x, y, z = r * np.cos(th) - frame.R0, r * np.sin(th), rng.normal(0, 0.15, n)
     R = np.hypot(x, y)
     v_phi, v_R, v_z = 230.0 + rng.normal(0, 20, n), rng.normal(0, 30, n), rng.normal(0, 15, n)
-    obs = mk.from_galactocentric(np.stack([x, y, z, v_R * x / R + v_phi * y / R, v_R * y / R - v_phi * x / R, v_z], 1),
-                                 frame)
+    obs = mk.from_galactocentric(
+        np.stack([x, y, z, v_R * x / R + v_phi * y / R, v_R * y / R - v_phi * x / R, v_z], 1), frame
+    )
     t = QTable()
     for name in ("ra", "dec", "pmra", "pmdec", "radial_velocity"):
         t[name] = obs[name]
@@ -64,9 +65,18 @@ def bare_fit(widget):
     request = widget._last_request
     s = request["settings"]
     start = time.perf_counter()
-    fit_oort(request["stars"], request["frame"], use=s["use"], distance=request["distance"],
-             distance_range=tuple(s["distance_range"]), quality=request["quality"], robust=s["robust"],
-             bootstrap=s["bootstrap"], seed=s["seed"], potential=request["potential"])
+    fit_oort(
+        request["stars"],
+        request["frame"],
+        use=s["use"],
+        distance=request["distance"],
+        distance_range=tuple(s["distance_range"]),
+        quality=request["quality"],
+        robust=s["robust"],
+        bootstrap=s["bootstrap"],
+        seed=s["seed"],
+        potential=request["potential"],
+    )
     return time.perf_counter() - start
 
 
@@ -109,8 +119,10 @@ def main():
 
     frame_state, potential_state = FrameState(), PotentialState()
     widget = OortFitter(stars, frame=frame_state, potential=potential_state, distance_range=(0.0, 1.0)).wait()
-    print(f"OortFitter first fit: {widget.result.n_used} stars used, "
-          f"view = {'canvas SampleScatter' if widget.mu_view.is_canvas else 'bqplot fallback'}")
+    print(
+        f"OortFitter first fit: {widget.result.n_used} stars used, "
+        f"view = {'canvas SampleScatter' if widget.mu_view.is_canvas else 'bqplot fallback'}"
+    )
 
     highs = [1.0 + 0.02 * (i % 2 + 1) * (1 if i % 4 < 2 else -1) for i in range(k)]
     changes = [lambda hi=hi: setattr(widget.distance_range, "value", (0.0, hi)) for hi in highs]
@@ -134,11 +146,20 @@ def main():
     widget._bins_runner.wait(120)
     own = time.perf_counter() - start
     start = time.perf_counter()
-    fit_in_distance_bins(stars, request["bins"], request["frame"], use=s["use"], distance=request["distance"],
-                         quality=request["quality"], robust=s["robust"])
+    fit_in_distance_bins(
+        stars,
+        request["bins"],
+        request["frame"],
+        use=s["use"],
+        distance=request["distance"],
+        quality=request["quality"],
+        robust=s["robust"],
+    )
     full = time.perf_counter() - start
-    print(f"OortFitter distance bins ({len(request['bins'])} bins, after the plots, cached): {own * 1000:.0f} ms "
-          f"(bare fit_in_distance_bins on the whole table: {full * 1000:.0f} ms, ratio {own / full:.2f})")
+    print(
+        f"OortFitter distance bins ({len(request['bins'])} bins, after the plots, cached): {own * 1000:.0f} ms "
+        f"(bare fit_in_distance_bins on the whole table: {full * 1000:.0f} ms, ratio {own / full:.2f})"
+    )
 
     frame_state = FrameState()
     panel = VelocityPanel(stars, frame=frame_state).wait()
@@ -154,11 +175,9 @@ def main():
         compute_s.append(panel._runner.last_seconds)
         request = panel._last_request
         start = time.perf_counter()
-        mk.to_galactocentric(request["stars"], request["frame"], errors=request["errors"],
-                             distance=request["distance"])
+        mk.to_galactocentric(request["stars"], request["frame"], errors=request["errors"], distance=request["distance"])
         bare_s.append(time.perf_counter() - start)
-    report("VelocityPanel, frame R0 change (for information)", widget_s, compute_s, bare_s, None,
-           "to_galactocentric")
+    report("VelocityPanel, frame R0 change (for information)", widget_s, compute_s, bare_s, None, "to_galactocentric")
 
 
 if __name__ == "__main__":

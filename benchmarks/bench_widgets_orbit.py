@@ -54,7 +54,7 @@ def measure_frame(T_GYR, N_POINTS):
     frame = FrameState()
     explorer = OrbitExplorer(frame=frame, n_points=N_POINTS, t_forward=T_GYR, threaded=True).wait()
     t = np.linspace(0.0, T_GYR, N_POINTS)
-    R0_values = 8.0 + 0.3 * np.sin(np.arange(N_CHANGES + 1))      # every value differs from the last
+    R0_values = 8.0 + 0.3 * np.sin(np.arange(N_CHANGES + 1))  # every value differs from the last
     widget, compute, bare = [], [], []
     for R0 in R0_values[1:]:
         before = explorer.galaxy_view.track_x
@@ -86,7 +86,7 @@ def measure_drag(T_GYR, N_POINTS):
         if g.track_x == before or abs(explorer.result.track(0)[0]["vx"].value - v[0]) > 1e-9:
             raise RuntimeError("the dragged velocity did not reach the result and the view")
         if i == 0:
-            continue   # the first drag also converts the observables to phase space
+            continue  # the first drag also converts the observables to phase space
         widget.append(elapsed)
         compute.append(explorer._runner.last_seconds)
         bare.append(_bare(explorer, t))
@@ -118,23 +118,25 @@ def browser(n_drags, kernel_drag_ms):
     lab = labtools.start_lab()
     try:
         with sync_playwright() as pw:
-            chromium = pw.chromium.launch(executable_path=labtools.CHROMIUM, headless=True,
-                                          args=labtools.CHROMIUM_ARGS)
+            chromium = pw.chromium.launch(executable_path=labtools.CHROMIUM, headless=True, args=labtools.CHROMIUM_ARGS)
             try:
                 page = chromium.new_context(viewport={"width": 1280, "height": 1000}).new_page()
                 page.set_default_timeout(120_000)
                 name = labtools.write_notebook(lab, "bench_orbit_drag.ipynb", ORBIT_CELLS)
                 labtools.open_and_run(page, lab, name)
                 page.wait_for_function(
-                    f"() => Number(document.querySelector('{VIEW}')?.dataset.trackPoints) === {N_POINTS}")
+                    f"() => Number(document.querySelector('{VIEW}')?.dataset.trackPoints) === {N_POINTS}"
+                )
                 timings = measure_drag_latency(page, n_drags)
             finally:
                 chromium.close()
     finally:
         labtools.shutdown_kernels(lab)
         labtools.stop_lab(lab)
-    print(f"Browser (JupyterLab, headless chromium): end of a drag -> orbit redrawn, demo-survey star, "
-          f"MWPotential2014, 1 Gyr, {N_POINTS} points, medians of {n_drags} drags")
+    print(
+        f"Browser (JupyterLab, headless chromium): end of a drag -> orbit redrawn, demo-survey star, "
+        f"MWPotential2014, 1 Gyr, {N_POINTS} points, medians of {n_drags} drags"
+    )
     for key, label in (("release", "mouse release -> redrawn "), ("last_move", "last pointer move -> redrawn")):
         med = statistics.median(timings[key])
         print(f"  {label}        : {med:7.1f} ms   ({', '.join(f'{v:.0f}' for v in timings[key])} ms)")
@@ -152,8 +154,9 @@ def main():
     for T_GYR, N_POINTS in CASES:
         what = f"one star, {T_GYR:g} Gyr with {N_POINTS} output points, median of {N_CHANGES} changes"
         report(f"OrbitExplorer, frame change (R0), {what}", *measure_frame(T_GYR, N_POINTS))
-        ms = report(f"OrbitExplorer, velocity arrow dragged (as sent by the browser), {what}",
-                    *measure_drag(T_GYR, N_POINTS))
+        ms = report(
+            f"OrbitExplorer, velocity arrow dragged (as sent by the browser), {what}", *measure_drag(T_GYR, N_POINTS)
+        )
         if N_POINTS == 2001:
             drag_ms = ms
     if args.browser:

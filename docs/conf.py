@@ -64,7 +64,7 @@ autosummary_generate = True
 autosummary_generate_overwrite = True
 autosummary_imported_members = True
 autodoc_member_order = "bysource"
-autodoc_typehints = "none"          # the numpydoc Parameters sections carry the types and units
+autodoc_typehints = "none"  # the numpydoc Parameters sections carry the types and units
 
 numpydoc_show_class_members = False  # the class template lists methods and attributes itself
 numpydoc_class_members_toctree = False
@@ -91,8 +91,9 @@ def _public_reference(app, env, node, contnode):
                 continue
             retargeted = node.deepcopy()
             retargeted["reftarget"] = candidate
-            resolved = domain.resolve_xref(env, node["refdoc"], app.builder, node["reftype"], candidate,
-                                           retargeted, contnode)
+            resolved = domain.resolve_xref(
+                env, node["refdoc"], app.builder, node["reftype"], candidate, retargeted, contnode
+            )
             if resolved is not None:
                 return resolved
     return None
@@ -122,14 +123,14 @@ def _init_signature(app, what, name, obj, options, signature, return_annotation)
         sig = inspect.signature(obj.__init__)
     except (TypeError, ValueError):
         return None
-    params = list(sig.parameters.values())[1:]   # without self
+    params = list(sig.parameters.values())[1:]  # without self
     return str(sig.replace(parameters=params, return_annotation=inspect.Signature.empty)), return_annotation
 
 
 # -- Example notebooks -------------------------------------------------------------------------------
 
 NOTEBOOK_SOURCE = ROOT / "example_notebooks"
-NOTEBOOK_COPY = DOCS / "notebooks"   # git-ignored; the notebooks run here and write into output/
+NOTEBOOK_COPY = DOCS / "notebooks"  # git-ignored; the notebooks run here and write into output/
 
 
 def _copy_notebooks():
@@ -147,37 +148,43 @@ def _copy_notebooks():
 
 _copy_notebooks()
 
-nb_execution_mode = "force"           # run whenever Sphinx reads them: always from a clean _build, else when changed
-nb_execution_timeout = 300            # seconds, per cell
+nb_execution_mode = "force"  # run whenever Sphinx reads them: always from a clean _build, else when changed
+nb_execution_timeout = 300  # seconds, per cell
 nb_execution_raise_on_error = True
 nb_execution_show_tb = True
-nb_execution_in_temp = False          # run inside notebooks/, like the notebooks' own folder
+nb_execution_in_temp = False  # run inside notebooks/, like the notebooks' own folder
 nb_kernel_rgx_aliases = {".*": "python3"}
 nb_merge_streams = True
-nb_ipywidgets_js: dict[str, dict[str, str]] = {}   # would load require.js and the widget manager from a CDN
+nb_ipywidgets_js: dict[str, dict[str, str]] = {}  # would load require.js and the widget manager from a CDN
 
 # Live widgets need a kernel and, in a static page, a widget manager from a CDN; neither is here. So
 # each widget output becomes a one-line note (rather than its long text repr), and the saved widget
 # state, megabytes per page with nothing to read it, is left out. Their figures still appear: the
 # notebooks save them with export_figure and display the PNG files.
 WIDGET_VIEW = re.compile(r'<script type="application/vnd\.jupyter\.widget-view\+json">.*?</script>', re.DOTALL)
-WIDGET_NOTE = ('<p class="mwkin-widget-note"><em>[Interactive widget: it is drawn live in JupyterLab '
-               'with a running kernel, not in this static page.]</em></p>')
+WIDGET_NOTE = (
+    '<p class="mwkin-widget-note"><em>[Interactive widget: it is drawn live in JupyterLab '
+    "with a running kernel, not in this static page.]</em></p>"
+)
 
 
 def _static_widget_outputs(app, pagename, templatename, context, doctree):
     scripts = context.get("script_files")
     if isinstance(scripts, list):
-        scripts[:] = [js for js in scripts if getattr(js, "attributes", {}).get("type")
-                      != "application/vnd.jupyter.widget-state+json"]
+        scripts[:] = [
+            js
+            for js in scripts
+            if getattr(js, "attributes", {}).get("type") != "application/vnd.jupyter.widget-state+json"
+        ]
     if "body" in context:
         context["body"] = WIDGET_VIEW.sub(WIDGET_NOTE, context["body"])
 
 
 # The python3 kernel of this environment first, ahead of any user-wide kernel of the same name.
 os.environ["JUPYTER_PATH"] = os.pathsep.join(
-    p for p in (str(pathlib.Path(sys.prefix) / "share" / "jupyter"), os.environ.get("JUPYTER_PATH")) if p)
-os.environ.setdefault("PYDEVD_DISABLE_FILE_VALIDATION", "1")   # no debugger notice on the kernel's stderr
+    p for p in (str(pathlib.Path(sys.prefix) / "share" / "jupyter"), os.environ.get("JUPYTER_PATH")) if p
+)
+os.environ.setdefault("PYDEVD_DISABLE_FILE_VALIDATION", "1")  # no debugger notice on the kernel's stderr
 os.environ.setdefault("MPLBACKEND", "Agg")
 
 
@@ -185,4 +192,4 @@ def setup(app):
     app.connect("missing-reference", _public_reference)
     app.connect("autodoc-process-signature", _init_signature)
     app.connect("env-check-consistency", _check_public_names)
-    app.connect("html-page-context", _static_widget_outputs, priority=900)   # after myst-nb's own
+    app.connect("html-page-context", _static_widget_outputs, priority=900)  # after myst-nb's own

@@ -96,13 +96,16 @@ TOUR = [
     correlation coefficients). As in a real magnitude-limited survey, only the brighter stars (30 %)
     have a radial velocity, and the parallaxes of the faint, distant stars are noisy.
     """),
-    code(TRUTH_HELPER, '''
+    code(
+        TRUTH_HELPER,
+        """
     sample = mk.demo.survey(n=20000, seed=1)
     print(len(sample), "stars; columns:", ", ".join(sample.colnames))
     print(sample.meta["description"])
     print("The model the stars were drawn from:")
     show_truth(sample)
-    '''),
+    """,
+    ),
     md("""
     ## 1. The solar frame
 
@@ -307,7 +310,7 @@ ORBIT = [
     apocentre, maximum height, eccentricity, energy and angular momentum. Every widget here exposes the
     same things: `.status`, `.result`, `.config`, `code()` and `export_figure()`.
     """),
-    code('''
+    code("""
     import json
     import pathlib
 
@@ -319,7 +322,7 @@ ORBIT = [
     output.mkdir(exist_ok=True)
     sample = mk.demo.survey(n=2000, seed=2)
     frame_state, potential_state = FrameState(), PotentialState()
-    '''),
+    """),
     md("""
     ## A star from the sample
 
@@ -453,7 +456,7 @@ VELOCITY = [
     and a selection made with the mouse (box or lasso) is available from Python as a boolean mask over
     the input rows. The sample can also be a file uploaded in the widget.
     """),
-    code('''
+    code("""
     import json
     import pathlib
 
@@ -465,7 +468,7 @@ VELOCITY = [
     output.mkdir(exist_ok=True)
     sample = mk.demo.survey(n=20000, seed=3)
     frame_state = FrameState()
-    '''),
+    """),
     code("""
     panel = VelocityPanel(sample, frame=frame_state)
     panel
@@ -600,7 +603,8 @@ OORT = [
     the model against Galactic longitude, the residuals, a parameter table, the fits in distance bins
     and the values implied by the current potential.
     """),
-    code('''
+    code(
+        """
     import json
     import pathlib
 
@@ -612,7 +616,9 @@ OORT = [
     output.mkdir(exist_ok=True)
     sample = mk.demo.survey(n=20000, seed=4)
     frame_state, potential_state = FrameState(), PotentialState()
-    ''', TRUTH_HELPER),
+    """,
+        TRUTH_HELPER,
+    ),
     code("""
     fitter = OortFitter(sample, frame=frame_state, potential=potential_state, distance_range=(0.0, 0.5))
     fitter
@@ -720,7 +726,7 @@ SHARED = [
     result, so the whole analysis can be written to a JSON file, sent to a colleague and reloaded into
     fresh widgets, which then give the same numbers. This notebook does exactly that and checks it.
     """),
-    code('''
+    code("""
     import json
     import pathlib
 
@@ -736,7 +742,7 @@ SHARED = [
     parallax_snr = np.asarray(sample["parallax"] / sample["parallax_error"], dtype=float)
     has_rv = np.isfinite(np.asarray(sample["radial_velocity"], dtype=float))
     row = int(np.flatnonzero(has_rv & (parallax_snr > 20))[0])
-    '''),
+    """),
     md("""
     ## One state, several widgets
 

@@ -22,13 +22,21 @@ import sys
 import warnings
 from collections.abc import Mapping
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 
 from .units import ImplausibleValueWarning, to_value
 
-__all__ = ["require_mapping", "check_keys", "real_number", "real_vector", "text", "unit_text",
-           "is_plain", "warn_implausible"]
+__all__ = [
+    "require_mapping",
+    "check_keys",
+    "real_number",
+    "real_vector",
+    "text",
+    "unit_text",
+    "is_plain",
+    "warn_implausible",
+]
 
 _PACKAGE_DIR = os.path.dirname(os.path.abspath(__file__)) + os.sep
 _COUNT_WORDS = {1: "one", 2: "two", 3: "three", 4: "four"}
@@ -119,7 +127,8 @@ def _plain_real(value):
 def is_plain(value):
     """True when ``value`` carries no unit of its own (a plain number or a sequence of them)."""
     return not isinstance(value, u.Quantity) and not (
-        isinstance(value, (list, tuple)) and any(isinstance(v, u.Quantity) for v in value))
+        isinstance(value, (list, tuple)) and any(isinstance(v, u.Quantity) for v in value)
+    )
 
 
 def real_number(value, name, unit, error, *, finite=True):
@@ -189,15 +198,18 @@ def real_vector(value, name, unit, error, *, components, finite=True):
     """
     n = len(components)
     shown = unit_text(unit)
-    expected = (f"{name} must have {_COUNT_WORDS.get(n, n)} components ({', '.join(components)}) "
-                f"in {shown}")
+    expected = f"{name} must have {_COUNT_WORDS.get(n, n)} components ({', '.join(components)}) in {shown}"
     if isinstance(value, u.Quantity):
         if value.ndim != 1:
             raise error(f"{expected}, got {_describe(value)}")
         values = to_value(value, unit, name)
         items = [float(v) for v in values]
-    elif isinstance(value, (str, bytes, Mapping, set, frozenset)) or _plain_real(value) or value is None \
-            or isinstance(value, (bool, np.bool_)):
+    elif (
+        isinstance(value, (str, bytes, Mapping, set, frozenset))
+        or _plain_real(value)
+        or value is None
+        or isinstance(value, (bool, np.bool_))
+    ):
         raise error(f"{expected}, got {_describe(value)}")
     else:
         if isinstance(value, np.ndarray) and value.ndim != 1:
@@ -208,8 +220,9 @@ def real_vector(value, name, unit, error, *, components, finite=True):
             raise error(f"{expected}, got {_describe(value)}") from None
     if len(items) != n:
         raise error(f"{expected}, got {len(items)}: {_describe(value)}")
-    return tuple(real_number(v, f"{name}[{i}] ({components[i]})", unit, error, finite=finite)
-                 for i, v in enumerate(items))
+    return tuple(
+        real_number(v, f"{name}[{i}] ({components[i]})", unit, error, finite=finite) for i, v in enumerate(items)
+    )
 
 
 def text(value, name, error):
@@ -226,10 +239,12 @@ def _caller_stacklevel():
     level = 2
     while frame is not None:
         filename = frame.f_code.co_filename
-        inside = (filename.startswith(_PACKAGE_DIR)
-                  or (filename == "<string>" and frame.f_code.co_name == "__init__")
-                  # a value set on a widget state reaches us through traitlets' validation machinery
-                  or f"{os.sep}traitlets{os.sep}" in filename)
+        inside = (
+            filename.startswith(_PACKAGE_DIR)
+            or (filename == "<string>" and frame.f_code.co_name == "__init__")
+            # a value set on a widget state reaches us through traitlets' validation machinery
+            or f"{os.sep}traitlets{os.sep}" in filename
+        )
         if not inside:
             break
         frame = frame.f_back

@@ -54,8 +54,10 @@ class _Parser(argparse.ArgumentParser):
 
 # ----------------------------------------------------------------- option types
 
+
 def _integer(low, what=""):
     """argparse type: an integer >= ``low``."""
+
     def parse(text):
         try:
             value = int(text)
@@ -64,6 +66,7 @@ def _integer(low, what=""):
         if value < low:
             raise argparse.ArgumentTypeError(f"expected an integer >= {low}{what}, got {text!r}")
         return value
+
     return parse
 
 
@@ -82,6 +85,7 @@ def _number(unit, low=None, low_open=False):
             bound = f"> {low:g}" if low_open else f">= {low:g}"
             raise argparse.ArgumentTypeError(f"expected a number {bound}{unit_text}, got {text!r}")
         return value
+
     return parse
 
 
@@ -90,22 +94,36 @@ def _add_frame_options(parser):
     group.add_argument("--frame", default="astropy v4.0", help="frame preset name (see `mwkin presets`)")
     group.add_argument("--R0", type=_number("kpc", 0.0, low_open=True), help="Sun-centre distance, kpc")
     group.add_argument("--z-sun", type=_number("pc"), help="height of the Sun above the mid-plane, pc")
-    group.add_argument("--v-sun", type=_number("km/s"), nargs=3, metavar=("VX", "VY", "VZ"),
-                       help="solar velocity in Galactocentric Cartesian axes, km/s")
+    group.add_argument(
+        "--v-sun",
+        type=_number("km/s"),
+        nargs=3,
+        metavar=("VX", "VY", "VZ"),
+        help="solar velocity in Galactocentric Cartesian axes, km/s",
+    )
 
 
 def _add_distance_options(parser):
     group = parser.add_argument_group("distances")
     group.add_argument("--distance-column", help="use this column (kpc) instead of inverse parallax")
-    group.add_argument("--min-parallax-snr", type=_number("", 0.0), default=5.0,
-                       help="inverse parallax only above this parallax/error (default 5)")
-    group.add_argument("--parallax-zero-point", type=_number("mas"), default=0.0,
-                       help="parallax zero point in mas, subtracted from the parallaxes (e.g. -0.017)")
+    group.add_argument(
+        "--min-parallax-snr",
+        type=_number("", 0.0),
+        default=5.0,
+        help="inverse parallax only above this parallax/error (default 5)",
+    )
+    group.add_argument(
+        "--parallax-zero-point",
+        type=_number("mas"),
+        default=0.0,
+        help="parallax zero point in mas, subtracted from the parallaxes (e.g. -0.017)",
+    )
 
 
 def _add_overwrite_option(parser):
-    parser.add_argument("--overwrite", action="store_true",
-                        help="replace an existing output file (an input file is never replaced)")
+    parser.add_argument(
+        "--overwrite", action="store_true", help="replace an existing output file (an input file is never replaced)"
+    )
 
 
 def _frame(args):
@@ -113,8 +131,11 @@ def _frame(args):
 
     try:
         frame = SolarFrame.preset(args.frame)
-        changes = {k: v for k, v in (("R0", args.R0), ("z_sun", args.z_sun),
-                                     ("v_sun", tuple(args.v_sun) if args.v_sun else None)) if v is not None}
+        changes = {
+            k: v
+            for k, v in (("R0", args.R0), ("z_sun", args.z_sun), ("v_sun", tuple(args.v_sun) if args.v_sun else None))
+            if v is not None
+        }
         return frame.replace(**changes) if changes else frame
     except (KeyError, ValueError) as exc:
         raise CLIError(f"solar frame (--frame/--R0/--z-sun/--v-sun): {_message(exc)}") from None
@@ -130,6 +151,7 @@ def _distance(args):
 
 # ----------------------------------------------------------------- safe outputs
 
+
 def _table_format(path, option):
     """The astropy format for an output table, from its suffix; the suffixes are read_catalog's own."""
     from .catalog.files import _FORMATS, _SUFFIXES
@@ -137,8 +159,7 @@ def _table_format(path, option):
     ext = os.path.splitext(path)[1].lower()
     if ext not in _SUFFIXES:
         shown = repr(ext) if ext else "(none)"
-        raise CLIError(f"{option}: cannot write {path!r}: unknown suffix {shown}; supported: "
-                       f"{', '.join(_SUFFIXES)}")
+        raise CLIError(f"{option}: cannot write {path!r}: unknown suffix {shown}; supported: {', '.join(_SUFFIXES)}")
     return _FORMATS[_SUFFIXES[ext]]
 
 
@@ -156,8 +177,10 @@ def _check_output(path, option, inputs, overwrite):
         raise CLIError(f"{option}: the output path is empty")
     for name in inputs:
         if _same_file(path, name):
-            raise CLIError(f"{option}: {path!r} is the input file {name!r}; refusing to write over an input "
-                           f"(choose another output path)")
+            raise CLIError(
+                f"{option}: {path!r} is the input file {name!r}; refusing to write over an input "
+                f"(choose another output path)"
+            )
     if os.path.isdir(path):
         raise CLIError(f"{option}: {path!r} is a directory, not a file")
     if os.path.lexists(path) and not overwrite:
@@ -200,12 +223,15 @@ def _write_atomically(path, write, overwrite):
         try:
             os.link(tmp, path)
         except FileExistsError:
-            raise CLIError(f"{path!r} was created by someone else during the run; not replaced "
-                           f"(pass --overwrite to replace it)") from None
+            raise CLIError(
+                f"{path!r} was created by someone else during the run; not replaced (pass --overwrite to replace it)"
+            ) from None
         except OSError:  # a file system without hard links: check, then rename
             if os.path.lexists(path):
-                raise CLIError(f"{path!r} was created by someone else during the run; not replaced "
-                               f"(pass --overwrite to replace it)") from None
+                raise CLIError(
+                    f"{path!r} was created by someone else during the run; not replaced "
+                    f"(pass --overwrite to replace it)"
+                ) from None
             os.replace(tmp, path)
     finally:
         if os.path.lexists(tmp):
@@ -218,6 +244,7 @@ def _write_table(table, path, astropy_format, overwrite):
 
 
 # ----------------------------------------------------------------- commands
+
 
 def _cmd_presets(args):
     from .frames import SolarFrame
@@ -251,8 +278,9 @@ def _cmd_convert(args):
     _check_output(args.output, "output", [args.input], args.overwrite)
     frame, distance = _frame(args), _distance(args)
     stars = read_catalog(args.input)
-    out = to_galactocentric(stars, frame=frame, errors=args.errors, distance=distance,
-                            n_samples=args.n_samples, seed=args.seed)
+    out = to_galactocentric(
+        stars, frame=frame, errors=args.errors, distance=distance, n_samples=args.n_samples, seed=args.seed
+    )
     for reason, count in out.meta.get("dropped", {}).items():
         if count:
             print(f"  {count} stars: {reason}")
@@ -289,8 +317,16 @@ def _cmd_oort(args):
     if args.json:
         _check_output(args.json, "--json", [args.input], args.overwrite)
     frame, distance = _frame(args), _distance(args)
-    fit = fit_oort(read_catalog(args.input), frame=frame, use=args.use, distance=distance,
-                   distance_range=(low, high), robust=args.robust, bootstrap=args.bootstrap, seed=args.seed)
+    fit = fit_oort(
+        read_catalog(args.input),
+        frame=frame,
+        use=args.use,
+        distance=distance,
+        distance_range=(low, high),
+        robust=args.robust,
+        bootstrap=args.bootstrap,
+        seed=args.seed,
+    )
     print(fit.summary())
     if args.json:
         text = json.dumps(fit.to_dict(), indent=2)  # serialise first: a failure leaves no file at all
@@ -349,8 +385,9 @@ def build_parser():
     p = sub.add_parser("oort", help="fit the Oort constants and the solar motion")
     p.add_argument("input")
     p.add_argument("--use", choices=("proper_motions", "radial_velocities", "both"), default="proper_motions")
-    p.add_argument("--distance-range", type=_number("kpc", 0.0), nargs=2, default=(0.0, 0.5),
-                   metavar=("MIN", "MAX"), help="kpc")
+    p.add_argument(
+        "--distance-range", type=_number("kpc", 0.0), nargs=2, default=(0.0, 0.5), metavar=("MIN", "MAX"), help="kpc"
+    )
     p.add_argument("--robust", action="store_true", help="reject outliers by iterative clipping")
     p.add_argument("--bootstrap", type=_integer(0), default=0)
     p.add_argument("--seed", type=_integer(0), default=None)
@@ -364,8 +401,9 @@ def build_parser():
 
 def _message(exc):
     """The text of an exception on one line (KeyError's repr quotes dropped)."""
-    text = exc.args[0] if isinstance(exc, KeyError) and len(exc.args) == 1 and isinstance(exc.args[0], str) \
-        else str(exc)
+    text = (
+        exc.args[0] if isinstance(exc, KeyError) and len(exc.args) == 1 and isinstance(exc.args[0], str) else str(exc)
+    )
     lines = [line.strip() for line in str(text).splitlines() if line.strip()]
     # A list of problems ("...:", "- a", "- b") becomes "...: a; b".
     lines = [line[2:] if line.startswith("- ") else line for line in lines]
@@ -397,8 +435,7 @@ def main(argv=None):
     prog = f"mwkin {args.command}"
 
     def show(message, category, filename, lineno, file=None, line=None):
-        print(f"{prog}: warning: {_message(message) if isinstance(message, Exception) else message}",
-              file=sys.stderr)
+        print(f"{prog}: warning: {_message(message) if isinstance(message, Exception) else message}", file=sys.stderr)
 
     with warnings.catch_warnings():
         warnings.showwarning = show

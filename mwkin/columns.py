@@ -80,8 +80,7 @@ _DESCRIPTIONS = {
     **{f"{name}_error": f"uncertainty (1 sigma) of {name}" for name in VALUE_COLUMNS[1:]},
     # "ra_pmdec_corr" -> "correlation coefficient of ra and pmdec" (no standard name before
     # "_corr" has an underscore except radial_velocity, which has no correlation column)
-    **{name: f"correlation coefficient of {name[:-5].replace('_', ' and ', 1)}"
-       for name in CORRELATION_COLUMNS},
+    **{name: f"correlation coefficient of {name[:-5].replace('_', ' and ', 1)}" for name in CORRELATION_COLUMNS},
 }
 
 # Other spellings -> standard name. Matching is case-insensitive, so "PLX" and "plx" are both covered
@@ -216,11 +215,17 @@ OUTPUT_COLUMNS = {
     "vy": (KMS, "Galactocentric velocity along y"),
     "vz": (KMS, "Galactocentric velocity along z"),
     "R": (u.kpc, "Galactocentric cylindrical radius sqrt(x^2 + y^2)"),
-    "phi": (u.deg, f"Galactocentric azimuth atan2(y, -x): 0 at the Sun, increasing {_ROT} "
-                   "(astropy's cylindrical phi is atan2(y, x), the other sense)"),
+    "phi": (
+        u.deg,
+        f"Galactocentric azimuth atan2(y, -x): 0 at the Sun, increasing {_ROT} "
+        "(astropy's cylindrical phi is atan2(y, x), the other sense)",
+    ),
     "v_R": (KMS, "Galactocentric radial velocity (x vx + y vy)/R, positive outward"),
-    "v_phi": (KMS, f"Galactocentric azimuthal velocity (y vx - x vy)/R, positive {_ROT} (the Sun has "
-                   "about +245 km/s); astropy's cylindrical differential has the opposite sign"),
+    "v_phi": (
+        KMS,
+        f"Galactocentric azimuthal velocity (y vx - x vy)/R, positive {_ROT} (the Sun has "
+        "about +245 km/s); astropy's cylindrical differential has the opposite sign",
+    ),
     "v_z": (KMS, "Galactocentric vertical velocity (= vz)"),
     "X": (u.kpc, "heliocentric Galactic X, toward the Galactic centre (l = 0, b = 0)"),
     "Y": (u.kpc, "heliocentric Galactic Y, toward l = 90 deg (direction of rotation)"),
@@ -307,4 +312,3 @@ def alias_doc_table():
     lines += [f"{a:<{left}}  {b}" for a, b in rows]
     lines.append(rule)
     return "\n".join(lines)
-

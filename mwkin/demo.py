@@ -12,13 +12,13 @@ from __future__ import annotations
 
 import math
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 from astropy.table import QTable
 
 from .columns import CORRELATION_COLUMNS, CORRELATION_PAIRS
-from .frames import SolarFrame
 from .coords import K_KMS_PER_MASYR_KPC
+from .frames import SolarFrame
 from .kinematics import from_galactocentric
 from .units import KMS, MASYR
 
@@ -225,13 +225,19 @@ def survey(n=20000, seed=1, frame=None, *, noise=True):
 
     columns = {
         "source_id": np.arange(1, n + 1, dtype=np.int64),
-        "ra": ra * u.deg, "ra_error": sigma[0] * u.mas,
-        "dec": dec * u.deg, "dec_error": sigma[1] * u.mas,
-        "parallax": plx * u.mas, "parallax_error": sigma[2] * u.mas,
-        "pmra": pmra * MASYR, "pmra_error": sigma[3] * MASYR,
-        "pmdec": pmdec * MASYR, "pmdec_error": sigma[4] * MASYR,
+        "ra": ra * u.deg,
+        "ra_error": sigma[0] * u.mas,
+        "dec": dec * u.deg,
+        "dec_error": sigma[1] * u.mas,
+        "parallax": plx * u.mas,
+        "parallax_error": sigma[2] * u.mas,
+        "pmra": pmra * MASYR,
+        "pmra_error": sigma[3] * MASYR,
+        "pmdec": pmdec * MASYR,
+        "pmdec_error": sigma[4] * MASYR,
         **{name: corr[i] * u.dimensionless_unscaled for i, name in enumerate(_CORR_NAMES)},
-        "radial_velocity": rv * KMS, "radial_velocity_error": rv_error * KMS,
+        "radial_velocity": rv * KMS,
+        "radial_velocity_error": rv_error * KMS,
         "phot_g_mean_mag": mag * u.mag,
     }
     table = QTable(columns)
@@ -241,22 +247,26 @@ def survey(n=20000, seed=1, frame=None, *, noise=True):
     vx, vy, vz = frame.v_sun
     table.meta["frame"] = frame.to_dict()  # the frame the stars were observed with, as on every result
     table.meta["description"] = (
-        "Synthetic survey made by mwkin.demo.survey: a model disc around the Sun with known truth "
-        "(not real data)")
+        "Synthetic survey made by mwkin.demo.survey: a model disc around the Sun with known truth (not real data)"
+    )
     table.meta["truth"] = {
         "description": "synthetic: axisymmetric disc, power-law mean flow, Gaussian velocity ellipsoid",
         "rotation_curve": "v_mean(R) = v0 (R / R_sun)^beta",
-        "v0_kms": p["v0_kms"], "beta": p["beta"], "R_sun_kpc": R_sun,
+        "v0_kms": p["v0_kms"],
+        "beta": p["beta"],
+        "R_sun_kpc": R_sun,
         "A_kms_kpc": 0.5 * omega0 * (1.0 - p["beta"]),
         "B_kms_kpc": -0.5 * omega0 * (1.0 + p["beta"]),
-        "C_kms_kpc": 0.0, "K_kms_kpc": 0.0,
+        "C_kms_kpc": 0.0,
+        "K_kms_kpc": 0.0,
         "Omega0_kms_kpc": omega0,
         "solar_motion_kms": {"U": vx, "V": vy - p["v0_kms"], "W": vz},
-        "dispersions_kms": {"sigma_R": p["sigma_R_kms"], "sigma_phi": p["sigma_phi_kms"],
-                            "sigma_z": p["sigma_z_kms"]},
+        "dispersions_kms": {"sigma_R": p["sigma_R_kms"], "sigma_phi": p["sigma_phi_kms"], "sigma_z": p["sigma_z_kms"]},
         "frame": frame.to_dict(),
         "model": {k: v for k, v in p.items()},
-        "seed": seed, "n": n, "noise": bool(noise),
+        "seed": seed,
+        "n": n,
+        "noise": bool(noise),
         "k_kms_per_masyr_kpc": K_KMS_PER_MASYR_KPC,
     }
     return table

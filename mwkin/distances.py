@@ -26,11 +26,11 @@ from __future__ import annotations
 import warnings
 from dataclasses import dataclass
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 
-from .columns import column_values
 from ._validate import real_number, require_mapping, text
+from .columns import column_values
 from .units import to_value
 
 __all__ = [
@@ -53,8 +53,10 @@ REASONS = {
     "no_distance": "no distance (NaN, zero or negative) in the distance column",
 }
 
-_BIAS_CAVEAT = ("1/parallax is biased at low parallax signal-to-noise (Bailer-Jones 2015, PASP 127, 994); "
-                "keep the cut at ~5 or more")
+_BIAS_CAVEAT = (
+    "1/parallax is biased at low parallax signal-to-noise (Bailer-Jones 2015, PASP 127, 994); "
+    "keep the cut at ~5 or more"
+)
 
 
 class DistanceError(ValueError):
@@ -96,7 +98,8 @@ def warn_if_distances_look_like_pc(values, label, assumed, fix):
         warnings.warn(
             f"{label}: the median distance is {median:.6g}, taken as {assumed}, i.e. beyond "
             f"{SUSPICIOUS_MEDIAN_KPC:g} kpc; are the distances in pc? If so, state the unit ({fix})",
-            DistanceUnitWarning, stacklevel=3,
+            DistanceUnitWarning,
+            stacklevel=3,
         )
 
 
@@ -181,9 +184,17 @@ def _result(distance, error, codes, names, parameter, value, value_error, ignore
         if error is not None:
             error[~usable] = np.nan
     return DistanceResult(
-        distance_kpc=distance, distance_error_kpc=error, usable=usable, reason_code=codes,
-        reason_names=tuple(names), counts=counts, parameter=parameter, parameter_value=value,
-        parameter_error=value_error, ignored_columns=ignored[0], notes=ignored[1],
+        distance_kpc=distance,
+        distance_error_kpc=error,
+        usable=usable,
+        reason_code=codes,
+        reason_names=tuple(names),
+        counts=counts,
+        parameter=parameter,
+        parameter_value=value,
+        parameter_error=value_error,
+        ignored_columns=ignored[0],
+        notes=ignored[1],
     )
 
 
@@ -263,8 +274,11 @@ class InverseParallax:
             If there is no ``parallax`` column, or no ``parallax_error`` column while a cut is asked for.
         """
         if "parallax" not in table.colnames:
-            hint = (" The table has a 'distance' column: use DistanceColumn('distance')."
-                    if "distance" in table.colnames else "")
+            hint = (
+                " The table has a 'distance' column: use DistanceColumn('distance')."
+                if "distance" in table.colnames
+                else ""
+            )
             raise DistanceError(f"InverseParallax needs a 'parallax' column (mas); none found.{hint}")
         plx = _column_values(table, "parallax", u.mas)
         if self.zero_point_mas:
@@ -305,8 +319,9 @@ class InverseParallax:
                 error *= distance
             else:
                 error = None
-        return _result(distance, error, codes, self.reasons, "parallax", plx, plx_err,
-                       _ignored(table, ("distance",), "parallax"))
+        return _result(
+            distance, error, codes, self.reasons, "parallax", plx, plx_err, _ignored(table, ("distance",), "parallax")
+        )
 
     def describe(self):
         """One line for provenance, with the bias caveat."""
@@ -323,7 +338,7 @@ class InverseParallax:
         """Inverse of :meth:`to_dict`."""
         params = _params(data, cls.method, ("min_snr", "zero_point_mas"))
         for key, unit in (("min_snr", ""), ("zero_point_mas", "mas")):
-            if key in params:    # True is not a number, "5" is not one either: named, not converted
+            if key in params:  # True is not a number, "5" is not one either: named, not converted
                 params[key] = real_number(params[key], key, unit, DistanceError)
         return cls(**params)
 
@@ -376,20 +391,31 @@ class DistanceColumn:
         """
         if self.column not in table.colnames:
             raise DistanceError(
-                f"DistanceColumn: there is no column {self.column!r} (kpc); columns found: "
-                f"{', '.join(table.colnames)}"
+                f"DistanceColumn: there is no column {self.column!r} (kpc); columns found: {', '.join(table.colnames)}"
             )
         dist = _column_values(table, self.column, u.kpc)
         if getattr(table[self.column], "unit", None) is None:  # plain numbers, taken as kpc
-            warn_if_distances_look_like_pc(dist, f"DistanceColumn({self.column!r})", "kpc (no unit given)",
-                                           "give the column a unit, e.g. table[name].unit = 'pc'")
+            warn_if_distances_look_like_pc(
+                dist,
+                f"DistanceColumn({self.column!r})",
+                "kpc (no unit given)",
+                "give the column a unit, e.g. table[name].unit = 'pc'",
+            )
         error_name = f"{self.column}_error"
         has_error = error_name in table.colnames
         err = _column_values(table, error_name, u.kpc) if has_error else np.zeros_like(dist)
         with np.errstate(invalid="ignore"):
             codes = (~(dist > 0)).astype(np.uint8)
-        return _result(dist.copy(), err.copy() if has_error else None, codes, self.reasons, "distance", dist, err,
-                       _ignored(table, ("parallax",), self.column))
+        return _result(
+            dist.copy(),
+            err.copy() if has_error else None,
+            codes,
+            self.reasons,
+            "distance",
+            dist,
+            err,
+            _ignored(table, ("parallax",), self.column),
+        )
 
     def describe(self):
         """One line for provenance."""
@@ -442,7 +468,5 @@ def distance_from_dict(data):
     try:
         cls = _CHOICES[data["method"]]
     except (KeyError, TypeError):
-        raise DistanceError(
-            f"unknown distance method {data.get('method')!r}; known: {', '.join(_CHOICES)}"
-        ) from None
+        raise DistanceError(f"unknown distance method {data.get('method')!r}; known: {', '.join(_CHOICES)}") from None
     return cls.from_dict(data)

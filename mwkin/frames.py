@@ -23,18 +23,27 @@ import math
 import types
 from dataclasses import dataclass, field
 
+import astropy.units as u
 import numpy as np
 
-import astropy.units as u
-
-from ._validate import (check_keys, is_plain, real_number, real_vector, require_mapping, text,
-                        warn_implausible)
+from ._validate import check_keys, is_plain, real_number, real_vector, require_mapping, text, warn_implausible
 from .coords import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC, _rot, tangent_basis
 from .units import KMS, to_value
 
-__all__ = ["SolarFrame", "Preset", "ReflexProperMotion", "FrameError", "UnknownPresetError", "warn_if_implausible",
-           "frame_or_default", "reflex_comparison", "DEFAULT_PRESET", "DEFAULT_FRAME_PARAMETERS",
-           "SGR_A_STAR_PROPER_MOTION", "SCHOENRICH2010_SOLAR_MOTION"]
+__all__ = [
+    "SolarFrame",
+    "Preset",
+    "ReflexProperMotion",
+    "FrameError",
+    "UnknownPresetError",
+    "warn_if_implausible",
+    "frame_or_default",
+    "reflex_comparison",
+    "DEFAULT_PRESET",
+    "DEFAULT_FRAME_PARAMETERS",
+    "SGR_A_STAR_PROPER_MOTION",
+    "SCHOENRICH2010_SOLAR_MOTION",
+]
 
 #: Name of the preset a :class:`SolarFrame` built without arguments equals.
 DEFAULT_PRESET = "astropy v4.0"
@@ -72,9 +81,15 @@ class UnknownPresetError(FrameError, KeyError):
 _V_SUN_COMPONENTS = ("vx", "vy", "vz")
 
 #: to_dict key -> (field name, unit as written in messages); the one list of the serialised keys.
-_DICT_FIELDS = {"R0_kpc": ("R0", "kpc"), "z_sun_pc": ("z_sun", "pc"), "v_sun_kms": ("v_sun", "km/s"),
-                "roll_deg": ("roll", "deg"), "galcen_ra_deg": ("galcen_ra", "deg"),
-                "galcen_dec_deg": ("galcen_dec", "deg"), "label": ("label", "")}
+_DICT_FIELDS = {
+    "R0_kpc": ("R0", "kpc"),
+    "z_sun_pc": ("z_sun", "pc"),
+    "v_sun_kms": ("v_sun", "km/s"),
+    "roll_deg": ("roll", "deg"),
+    "galcen_ra_deg": ("galcen_ra", "deg"),
+    "galcen_dec_deg": ("galcen_dec", "deg"),
+    "label": ("label", ""),
+}
 _DICT_KEYS = {key: unit for key, (name, unit) in _DICT_FIELDS.items() if name != "label"}
 _FIELD_UNITS = {name: u.Unit(unit) for name, unit in _DICT_FIELDS.values() if name != "label"}
 
@@ -98,9 +113,15 @@ def warn_if_implausible(R0=None, z_sun=None, v_sun=None):
     mwkin.units.ImplausibleValueWarning
         Naming the value, the unit it was taken in and the unit it was probably meant in.
     """
-    plain, skip = 0.0, 0.0 * u.one   # a Quantity counts as a stated unit: not checked
-    _warn_if_implausible(skip if R0 is None else plain, skip if z_sun is None else plain,
-                         skip if v_sun is None else plain, R0, z_sun, v_sun)
+    plain, skip = 0.0, 0.0 * u.one  # a Quantity counts as a stated unit: not checked
+    _warn_if_implausible(
+        skip if R0 is None else plain,
+        skip if z_sun is None else plain,
+        skip if v_sun is None else plain,
+        R0,
+        z_sun,
+        v_sun,
+    )
 
 
 def _warn_if_implausible(R0_given, z_sun_given, v_sun_given, R0, z_sun, v_sun):
@@ -108,20 +129,26 @@ def _warn_if_implausible(R0_given, z_sun_given, v_sun_given, R0, z_sun, v_sun):
     low, high = R0_PLAUSIBLE_KPC
     if is_plain(R0_given) and not low <= R0 < high:
         hint = "pc" if R0 >= high else "Mpc"
-        warn_implausible(f"R0 = {R0:g} kpc (plain number, taken in kpc) is implausible for the Sun-centre "
-                         f"distance (expected about 8 kpc); was it given in {hint}? Pass a Quantity to "
-                         f"state the unit.")
+        warn_implausible(
+            f"R0 = {R0:g} kpc (plain number, taken in kpc) is implausible for the Sun-centre "
+            f"distance (expected about 8 kpc); was it given in {hint}? Pass a Quantity to "
+            f"state the unit."
+        )
     # z_sun = 0 exactly is a deliberate choice (the Sun in the plane), not a slip.
     if is_plain(z_sun_given) and 0.0 < abs(z_sun) < Z_SUN_MIN_PLAUSIBLE_PC:
-        warn_implausible(f"z_sun = {z_sun:g} pc (plain number, taken in pc) is implausibly small for the "
-                         f"Sun's height above the mid-plane (expected about 20 pc); was it given in kpc "
-                         f"({z_sun:g} kpc = {1000 * z_sun:g} pc)? Pass a Quantity to state the unit.")
+        warn_implausible(
+            f"z_sun = {z_sun:g} pc (plain number, taken in pc) is implausibly small for the "
+            f"Sun's height above the mid-plane (expected about 20 pc); was it given in kpc "
+            f"({z_sun:g} kpc = {1000 * z_sun:g} pc)? Pass a Quantity to state the unit."
+        )
     if is_plain(v_sun_given):
         for i, (axis, value) in enumerate(zip(_V_SUN_COMPONENTS, v_sun)):
             if abs(value) > MAX_PLAUSIBLE_SPEED_KMS:
-                warn_implausible(f"v_sun[{i}] ({axis}) = {value:g} km/s (plain number, taken in km/s) is "
-                                 f"implausibly large for the solar velocity (expected |v| < "
-                                 f"{MAX_PLAUSIBLE_SPEED_KMS:g} km/s); was it given in m/s?")
+                warn_implausible(
+                    f"v_sun[{i}] ({axis}) = {value:g} km/s (plain number, taken in km/s) is "
+                    f"implausibly large for the solar velocity (expected |v| < "
+                    f"{MAX_PLAUSIBLE_SPEED_KMS:g} km/s); was it given in m/s?"
+                )
 
 
 @dataclass(frozen=True)
@@ -219,8 +246,14 @@ class SolarFrame:
         if not -90.0 <= dec <= 90.0:
             raise FrameError(f"galcen_dec must lie in [-90, 90] deg, got {dec} deg")
         _warn_if_implausible(self.R0, self.z_sun, self.v_sun, R0, z_sun, v_sun)
-        for name, value in (("R0", R0), ("z_sun", z_sun), ("v_sun", v_sun), ("roll", roll),
-                            ("galcen_ra", ra), ("galcen_dec", dec)):
+        for name, value in (
+            ("R0", R0),
+            ("z_sun", z_sun),
+            ("v_sun", v_sun),
+            ("roll", roll),
+            ("galcen_ra", ra),
+            ("galcen_dec", dec),
+        ):
             object.__setattr__(self, name, value)
 
     # ----------------------------------------------------------------- construction
@@ -250,8 +283,10 @@ class SolarFrame:
         vc_value = real_number(vc, "vc", "km/s", FrameError)
         U, V, W = (real_number(x, n, "km/s", FrameError) for x, n in ((U, "U"), (V, "V"), (W, "W")))
         if is_plain(vc) and abs(vc_value) > MAX_PLAUSIBLE_SPEED_KMS:
-            warn_implausible(f"vc = {vc_value:g} km/s (circular velocity, taken in km/s) is implausibly "
-                             f"large for the Milky Way (expected about 200-260 km/s); was it given in m/s?")
+            warn_implausible(
+                f"vc = {vc_value:g} km/s (circular velocity, taken in km/s) is implausibly "
+                f"large for the Milky Way (expected about 200-260 km/s); was it given in m/s?"
+            )
         v_sun = (U, vc_value + V, W)
         if not all(is_plain(x) for x in (vc, U, V, W)):
             v_sun = v_sun * KMS  # a stated unit is no slip: do not warn about the sum again
@@ -297,8 +332,9 @@ class SolarFrame:
         """
         unknown = sorted(set(changes) - set(_FIELD_UNITS) - {"label"})
         if unknown:
-            raise FrameError(f"replace() got unknown parameters {unknown}; a SolarFrame has "
-                             f"{sorted(_FIELD_UNITS) + ['label']}")
+            raise FrameError(
+                f"replace() got unknown parameters {unknown}; a SolarFrame has {sorted(_FIELD_UNITS) + ['label']}"
+            )
         changes.setdefault("label", "")
         for name, unit in _FIELD_UNITS.items():
             if name not in changes:
@@ -327,8 +363,12 @@ class SolarFrame:
         v = (v_sun.d_xyz if hasattr(v_sun, "d_xyz") else v_sun.xyz).to_value(KMS)
         coord = g.galcen_coord.transform_to("icrs") if g.galcen_coord.name != "icrs" else g.galcen_coord
         return cls(
-            R0=g.galcen_distance, z_sun=g.z_sun, v_sun=tuple(v), roll=g.roll,
-            galcen_ra=coord.ra, galcen_dec=coord.dec,
+            R0=g.galcen_distance,
+            z_sun=g.z_sun,
+            v_sun=tuple(v),
+            roll=g.roll,
+            galcen_ra=coord.ra,
+            galcen_dec=coord.dec,
         )
 
     # ----------------------------------------------------------------- serialisation
@@ -449,16 +489,13 @@ class SolarFrame:
         lat = math.asin(pos_gal[2] / distance)
         _, e_l, e_b = tangent_basis(np.array([lon]), np.array([lat]))
         scale = K_KMS_PER_MASYR_KPC * distance
-        return ReflexProperMotion(
-            mu_l_star=float(e_l[:, 0] @ vel_gal) / scale, mu_b=float(e_b[:, 0] @ vel_gal) / scale
-        )
+        return ReflexProperMotion(mu_l_star=float(e_l[:, 0] @ vel_gal) / scale, mu_b=float(e_b[:, 0] @ vel_gal) / scale)
 
     def describe(self):
         """One-line human-readable summary, used in provenance lines."""
         name = f"{self.label}: " if self.label else ""
         vx, vy, vz = self.v_sun
-        return (f"{name}R0={self.R0:g} kpc, z_sun={self.z_sun:g} pc, "
-                f"v_sun=({vx:g}, {vy:g}, {vz:g}) km/s")
+        return f"{name}R0={self.R0:g} kpc, z_sun={self.z_sun:g} pc, v_sun=({vx:g}, {vy:g}, {vz:g}) km/s"
 
 
 def _sgr_a_star_azimuthal_velocity(R0_kpc):
@@ -482,8 +519,12 @@ def reflex_comparison(frame):
     """
     reflex = frame.reflex_proper_motion()
     (ml, sl), (mb, sb) = SGR_A_STAR_PROPER_MOTION["mu_l"], SGR_A_STAR_PROPER_MOTION["mu_b"]
-    return {"mu_l": reflex.mu_l_star, "mu_b": reflex.mu_b,
-            "sigma_l": (reflex.mu_l_star - ml) / sl, "sigma_b": (reflex.mu_b - mb) / sb}
+    return {
+        "mu_l": reflex.mu_l_star,
+        "mu_b": reflex.mu_b,
+        "sigma_l": (reflex.mu_l_star - ml) / sl,
+        "sigma_b": (reflex.mu_b - mb) / sb,
+    }
 
 
 def frame_or_default(frame, *, table=None, error=FrameError):
@@ -518,8 +559,10 @@ def frame_or_default(frame, *, table=None, error=FrameError):
         try:
             return SolarFrame.from_dict(meta_frame)
         except ValueError as exc:
-            raise error(f"the table's meta['frame'] is not a valid solar frame ({exc}); pass frame= "
-                        "explicitly or fix the metadata") from None
+            raise error(
+                f"the table's meta['frame'] is not a valid solar frame ({exc}); pass frame= "
+                "explicitly or fix the metadata"
+            ) from None
     return SolarFrame.preset(DEFAULT_PRESET)
 
 
@@ -529,27 +572,49 @@ _PRESETS = {
         Preset(
             name=DEFAULT_PRESET,
             description="astropy's Galactocentric defaults since v4.0",
-            citation=("R0: GRAVITY Collaboration 2018, A&A 615, L15; v_sun: Drimmel & Poggio 2018, "
-                      "RNAAS 2, 210; z_sun: Bennett & Bovy 2019, MNRAS 482, 1417"),
+            citation=(
+                "R0: GRAVITY Collaboration 2018, A&A 615, L15; v_sun: Drimmel & Poggio 2018, "
+                "RNAAS 2, 210; z_sun: Bennett & Bovy 2019, MNRAS 482, 1417"
+            ),
             params=dict(DEFAULT_FRAME_PARAMETERS),
         ),
         Preset(
             name="Schoenrich 2010 + GRAVITY 2019",
-            description=("solar motion (U, W) relative to the LSR from Schoenrich et al., R0 from GRAVITY 2019, "
-                         "azimuthal velocity from the Sgr A* proper motion"),
-            citation=("U, W: Schoenrich, Binney & Dehnen 2010, MNRAS 403, 1829; R0 = 8.178 kpc: GRAVITY "
-                      "Collaboration 2019, A&A 625, L10; v_y = k R0 |mu_l(Sgr A*)| with mu_l = -6.411 mas/yr: "
-                      "Reid & Brunthaler 2020, ApJ 892, 39; z_sun: Bennett & Bovy 2019, MNRAS 482, 1417"),
-            params=dict(R0=8.178, z_sun=20.8, v_sun=(SCHOENRICH2010_SOLAR_MOTION[0], _sgr_a_star_azimuthal_velocity(8.178),
-                                                      SCHOENRICH2010_SOLAR_MOTION[2])),
+            description=(
+                "solar motion (U, W) relative to the LSR from Schoenrich et al., R0 from GRAVITY 2019, "
+                "azimuthal velocity from the Sgr A* proper motion"
+            ),
+            citation=(
+                "U, W: Schoenrich, Binney & Dehnen 2010, MNRAS 403, 1829; R0 = 8.178 kpc: GRAVITY "
+                "Collaboration 2019, A&A 625, L10; v_y = k R0 |mu_l(Sgr A*)| with mu_l = -6.411 mas/yr: "
+                "Reid & Brunthaler 2020, ApJ 892, 39; z_sun: Bennett & Bovy 2019, MNRAS 482, 1417"
+            ),
+            params=dict(
+                R0=8.178,
+                z_sun=20.8,
+                v_sun=(
+                    SCHOENRICH2010_SOLAR_MOTION[0],
+                    _sgr_a_star_azimuthal_velocity(8.178),
+                    SCHOENRICH2010_SOLAR_MOTION[2],
+                ),
+            ),
         ),
         Preset(
             name="astropy pre-v4.0",
             description="astropy's Galactocentric defaults before v4.0",
-            citation=("R0: Gillessen et al. 2009, ApJ 692, 1075; v_sun: Schoenrich, Binney & Dehnen 2010 "
-                      "with vc = 220 km/s (Bovy et al. 2012, ApJ 759, 131); z_sun: Chen et al. 2001, ApJ 553, 184"),
-            params=dict(R0=8.3, z_sun=27.0, v_sun=(SCHOENRICH2010_SOLAR_MOTION[0], 220.0 + SCHOENRICH2010_SOLAR_MOTION[1],
-                                                    SCHOENRICH2010_SOLAR_MOTION[2])),
+            citation=(
+                "R0: Gillessen et al. 2009, ApJ 692, 1075; v_sun: Schoenrich, Binney & Dehnen 2010 "
+                "with vc = 220 km/s (Bovy et al. 2012, ApJ 759, 131); z_sun: Chen et al. 2001, ApJ 553, 184"
+            ),
+            params=dict(
+                R0=8.3,
+                z_sun=27.0,
+                v_sun=(
+                    SCHOENRICH2010_SOLAR_MOTION[0],
+                    220.0 + SCHOENRICH2010_SOLAR_MOTION[1],
+                    SCHOENRICH2010_SOLAR_MOTION[2],
+                ),
+            ),
         ),
     ]
 }

@@ -14,12 +14,38 @@ import numpy as np
 
 from .catalog import CatalogError, read_catalog
 
-__all__ = ["OUTPUT_COLUMNS", "DEFAULT_KEEP", "PartitionError", "galactocentric_partition",
-           "to_galactocentric_dask", "local_client"]
+__all__ = [
+    "OUTPUT_COLUMNS",
+    "DEFAULT_KEEP",
+    "PartitionError",
+    "galactocentric_partition",
+    "to_galactocentric_dask",
+    "local_client",
+]
 
 #: Columns written for every star by :func:`to_galactocentric_dask`.
-OUTPUT_COLUMNS = ("x", "y", "z", "vx", "vy", "vz", "R", "phi", "v_R", "v_phi", "v_z",
-                  "X", "Y", "Z", "U", "V", "W", "l", "b", "distance")
+OUTPUT_COLUMNS = (
+    "x",
+    "y",
+    "z",
+    "vx",
+    "vy",
+    "vz",
+    "R",
+    "phi",
+    "v_R",
+    "v_phi",
+    "v_z",
+    "X",
+    "Y",
+    "Z",
+    "U",
+    "V",
+    "W",
+    "l",
+    "b",
+    "distance",
+)
 
 
 #: Input columns copied into the result when the input has them (identify the stars across partitions).
@@ -98,12 +124,22 @@ def _partition_error(exc, df, partition_info, path_column, partition_paths):
 def _flag_series(values, index):
     import pandas as pd
 
-    return pd.Series(np.asarray(values, dtype=object).astype(str) if len(values) else [], index=index,
-                     dtype=_FLAG_DTYPE)
+    return pd.Series(
+        np.asarray(values, dtype=object).astype(str) if len(values) else [], index=index, dtype=_FLAG_DTYPE
+    )
 
 
-def galactocentric_partition(df, frame=None, distance=None, errors="none", columns=OUTPUT_COLUMNS,
-                             keep=DEFAULT_KEEP, path_column="path", partition_paths=None, partition_info=None):
+def galactocentric_partition(
+    df,
+    frame=None,
+    distance=None,
+    errors="none",
+    columns=OUTPUT_COLUMNS,
+    keep=DEFAULT_KEEP,
+    path_column="path",
+    partition_paths=None,
+    partition_info=None,
+):
     """Convert one pandas partition; returns a pandas DataFrame with plain float columns.
 
     Parameters
@@ -170,8 +206,16 @@ def _empty_frame(df, kept, names):
     return frame
 
 
-def to_galactocentric_dask(ddf, frame=None, distance=None, errors="none", columns=OUTPUT_COLUMNS,
-                           keep=DEFAULT_KEEP, path_column="path", partition_paths=None):
+def to_galactocentric_dask(
+    ddf,
+    frame=None,
+    distance=None,
+    errors="none",
+    columns=OUTPUT_COLUMNS,
+    keep=DEFAULT_KEEP,
+    path_column="path",
+    partition_paths=None,
+):
     """Map :func:`galactocentric_partition` over a Dask DataFrame (lazy; call ``.compute()``).
 
     Parameters
@@ -213,10 +257,19 @@ def to_galactocentric_dask(ddf, frame=None, distance=None, errors="none", column
     if partition_paths is not None:
         partition_paths = tuple(str(p) for p in partition_paths)
         if len(partition_paths) != ddf.npartitions:
-            raise ValueError(f"partition_paths: {len(partition_paths)} paths for {ddf.npartitions} partitions; "
-                             f"give one file per partition")
-    options = dict(frame=frame, distance=distance, errors=errors, columns=columns, keep=tuple(keep),
-                   path_column=path_column, partition_paths=partition_paths)
+            raise ValueError(
+                f"partition_paths: {len(partition_paths)} paths for {ddf.npartitions} partitions; "
+                f"give one file per partition"
+            )
+    options = dict(
+        frame=frame,
+        distance=distance,
+        errors=errors,
+        columns=columns,
+        keep=tuple(keep),
+        path_column=path_column,
+        partition_paths=partition_paths,
+    )
     meta = galactocentric_partition(ddf._meta, **options)
     return ddf.map_partitions(galactocentric_partition, meta=meta, **options)
 
@@ -227,5 +280,6 @@ def local_client(address=None, n_workers=2, threads_per_worker=1):
 
     if address:
         return Client(address)
-    return Client(LocalCluster(n_workers=n_workers, threads_per_worker=threads_per_worker, processes=True,
-                               dashboard_address=None))
+    return Client(
+        LocalCluster(n_workers=n_workers, threads_per_worker=threads_per_worker, processes=True, dashboard_address=None)
+    )

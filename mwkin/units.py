@@ -7,8 +7,8 @@ and raises a :class:`UnitMismatchError` that names the argument when the unit ca
 
 from __future__ import annotations
 
-import numpy as np
 import astropy.units as u
+import numpy as np
 
 __all__ = ["UnitMismatchError", "ImplausibleValueWarning", "to_value", "KMS", "MASYR"]
 

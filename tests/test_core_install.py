@@ -47,14 +47,15 @@ def core_python(tmp_path_factory) -> pathlib.Path:
     _run([sys.executable, "-m", "venv", "--without-pip", str(venv)])
     python = venv / "bin" / "python"
     # The project venv's pip installs into the fresh interpreter, dependencies included.
-    _run([sys.executable, "-m", "pip", "--python", str(python), "install", "--disable-pip-version-check",
-          str(wheel)])
+    _run([sys.executable, "-m", "pip", "--python", str(python), "install", "--disable-pip-version-check", str(wheel)])
     return python
 
 
 def test_core_install_has_no_widget_library_or_jupyterlab(core_python):
-    probe = ("import importlib.util, json, sys; "
-             f"print(json.dumps({{m: importlib.util.find_spec(m) is not None for m in {list(NOT_IN_CORE)!r}}}))")
+    probe = (
+        "import importlib.util, json, sys; "
+        f"print(json.dumps({{m: importlib.util.find_spec(m) is not None for m in {list(NOT_IN_CORE)!r}}}))"
+    )
     found = _run([str(core_python), "-c", probe], cwd=core_python.parent).stdout.strip().splitlines()[-1]
     assert "true" not in found, f"installed with the core: {found}"
 
@@ -64,13 +65,15 @@ def test_readme_tour_runs_in_the_core_install(core_python, tmp_path):
     script.write_text(readme_tour())
     done = _run([str(core_python), str(script)], cwd=tmp_path)
     assert "Oort-constant fit" in done.stdout
-    assert str(REPO_ROOT) not in _run([str(core_python), "-c", "import mwkin; print(mwkin.__file__)"],
-                                      cwd=tmp_path).stdout
+    assert (
+        str(REPO_ROOT) not in _run([str(core_python), "-c", "import mwkin; print(mwkin.__file__)"], cwd=tmp_path).stdout
+    )
 
 
 def test_widgets_without_the_extra_name_the_extra(core_python, tmp_path):
-    done = subprocess.run([str(core_python), "-c", "import mwkin.widgets"], capture_output=True, text=True,
-                          cwd=tmp_path, timeout=300)
+    done = subprocess.run(
+        [str(core_python), "-c", "import mwkin.widgets"], capture_output=True, text=True, cwd=tmp_path, timeout=300
+    )
     assert done.returncode != 0
     last = done.stderr.strip().splitlines()[-1]
     assert last.startswith("ImportError: mwkin.widgets needs the 'widgets' extra")

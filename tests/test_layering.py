@@ -48,8 +48,7 @@ print(json.dumps(report))
 
 def _imported_widget_libraries(modules: list[str]) -> dict[str, list[str]]:
     code = _PROBE.format(watched=WIDGET_LIBRARIES, modules=modules)
-    done = subprocess.run([sys.executable, "-c", code], cwd=REPO_ROOT, capture_output=True,
-                          text=True, timeout=300)
+    done = subprocess.run([sys.executable, "-c", code], cwd=REPO_ROOT, capture_output=True, text=True, timeout=300)
     assert done.returncode == 0, f"importing {modules} failed:\n{done.stderr[-3000:]}"
     return json.loads(done.stdout.strip().splitlines()[-1])
 

@@ -33,7 +33,8 @@ def _js_files() -> list[str]:
         return []
     skip = {"node_modules"}
     return sorted(
-        p.relative_to(JS_DIR).as_posix() for p in JS_DIR.rglob("*")
+        p.relative_to(JS_DIR).as_posix()
+        for p in JS_DIR.rglob("*")
         if p.is_file() and not skip & set(p.relative_to(JS_DIR).parts)
     )
 
@@ -42,8 +43,7 @@ def _js_files() -> list[str]:
 def wheel(tmp_path_factory) -> pathlib.Path:
     out = tmp_path_factory.mktemp("dist")
     # --no-isolation: hatchling is already in the project venv; no download needed.
-    _run([sys.executable, "-m", "build", "--wheel", "--no-isolation", "--outdir", str(out),
-          str(REPO_ROOT)])
+    _run([sys.executable, "-m", "build", "--wheel", "--no-isolation", "--outdir", str(out), str(REPO_ROOT)])
     (path,) = out.glob("mwkin-*.whl")
     return path
 
@@ -54,11 +54,10 @@ def fresh_python(wheel, tmp_path_factory) -> pathlib.Path:
     _run([sys.executable, "-m", "venv", "--without-pip", str(venv)])
     python = venv / "bin" / "python"
     # The project venv's pip installs into the fresh interpreter (pip >= 22.3 has --python).
-    _run([sys.executable, "-m", "pip", "--python", str(python), "install", "--no-deps",
-          "--no-index", str(wheel)])
-    fresh_site = pathlib.Path(_run(
-        [str(python), "-c", "import sysconfig; print(sysconfig.get_paths()['purelib'])"]
-    ).stdout.strip())
+    _run([sys.executable, "-m", "pip", "--python", str(python), "install", "--no-deps", "--no-index", str(wheel)])
+    fresh_site = pathlib.Path(
+        _run([str(python), "-c", "import sysconfig; print(sysconfig.get_paths()['purelib'])"]).stdout.strip()
+    )
     deps = {sysconfig.get_paths()["purelib"], sysconfig.get_paths()["platlib"]}
     (fresh_site / "zz_project_venv_dependencies.pth").write_text("\n".join(sorted(deps)) + "\n")
     return python

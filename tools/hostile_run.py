@@ -85,11 +85,13 @@ CASES: dict[str, Case] = {}
 
 def case(cid, area, title, timeout=DEFAULT_TIMEOUT):
     """Register a case: ``func(folder) -> (verdict, reason)``, run with ``folder`` as the working dir."""
+
     def register(func):
         if cid in CASES:
             raise RuntimeError(f"duplicate case id {cid}")
         CASES[cid] = Case(cid, area, title, func, timeout)
         return func
+
     return register
 
 
@@ -200,6 +202,7 @@ def file_digest(path):
 # ====================================================================================== fixtures
 def mk():
     import mwkin
+
     return mwkin
 
 
@@ -240,6 +243,7 @@ def basic(**changes):
 
 def basic_table(**changes):
     from astropy.table import Table
+
     return Table(basic(**changes))
 
 
@@ -418,7 +422,8 @@ def _(d):
     off = {k: v for k, v in diffs.items() if abs(v[0] - v[1]) > 0.05 * max(abs(v[1]), 0.05)}
     if off:
         return BAD, "silently wrong, no flag or warning: " + ", ".join(
-            f"{k}={a:.3g} (3001-point grid: {b:.3g})" for k, (a, b) in off.items())
+            f"{k}={a:.3g} (3001-point grid: {b:.3g})" for k, (a, b) in off.items()
+        )
     return GOOD, "two-point grid gave the right parameters"
 
 
@@ -449,8 +454,11 @@ def _staeckel_vs_integrated(stars, label):
                 bad.append(f"zmax {vals['zmax']:.3g} kpc against {zi:.3g} kpc integrated")
             if abs(vals["rapo"] - ri) > 0.2 * ri:
                 bad.append(f"rapo {vals['rapo']:.3g} kpc against {ri:.3g} kpc integrated")
-        out.append((BAD, f"{label} {i}: unflagged " + "; ".join(bad)) if bad
-                   else (GOOD, f"{label} {i}: {fmt_params(vals)} agrees with integration"))
+        out.append(
+            (BAD, f"{label} {i}: unflagged " + "; ".join(bad))
+            if bad
+            else (GOOD, f"{label} {i}: {fmt_params(vals)} agrees with integration")
+        )
     return worst(out)
 
 
@@ -461,9 +469,13 @@ def _(d):
 
 @case("O05", "orbits", "Staeckel on halo stars with e near 1 (zmax against integration)")
 def _(d):
-    stars = np.array([[-8.1, 0.0, 0.1, 320.0, 8.0, 90.0],
-                      [-8.1, 0.0, 0.1, -280.0, 15.0, 160.0],
-                      [-8.1, 0.0, 0.5, 200.0, -5.0, 260.0]])
+    stars = np.array(
+        [
+            [-8.1, 0.0, 0.1, 320.0, 8.0, 90.0],
+            [-8.1, 0.0, 0.1, -280.0, 15.0, 160.0],
+            [-8.1, 0.0, 0.5, 200.0, -5.0, 260.0],
+        ]
+    )
     return _staeckel_vs_integrated(stars, "halo star")
 
 
@@ -483,8 +495,9 @@ def _(d):
 
 @case("O07", "orbits", "unsorted time grid")
 def _(d):
-    return _time_error_case(np.array([0.0, 0.2, 0.1, 0.3]),
-                            [("-0.1", "0.2", "index 1", "indices 1", "sorted", "order")])
+    return _time_error_case(
+        np.array([0.0, 0.2, 0.1, 0.3]), [("-0.1", "0.2", "index 1", "indices 1", "sorted", "order")]
+    )
 
 
 @case("O08", "orbits", "zero-length time grid")
@@ -509,6 +522,7 @@ def _(d):
 @case("O10", "orbits", "time grid as a Quantity in Myr")
 def _(d):
     import astropy.units as u
+
     o = attempt(mk().integrate_orbits, _eccentric_star(), mwpot(), t=np.linspace(0, 1000, 1001) * u.Myr)
     if o.exc:
         return WEAK, f"refuses a time grid in Myr: {one_line(o.exc)}"
@@ -523,6 +537,7 @@ def _(d):
 @case("O11", "orbits", "time grid as a Quantity in km (wrong unit)")
 def _(d):
     import astropy.units as u
+
     return _time_error_case(np.linspace(0, 1, 11) * u.km, [("km",)])
 
 
@@ -564,8 +579,9 @@ def _(d):
 def _(d):
     o = attempt(mk().integrate_orbits, np.zeros((0, 6)), mwpot(), t=np.linspace(0, 1, 11))
     if o.exc:
-        return judge_error(o.exc, [("stars", "table", "input", "phase")],
-                           [("no rows", "0 rows", "empty", "no stars", "(0, 6)")])
+        return judge_error(
+            o.exc, [("stars", "table", "input", "phase")], [("no rows", "0 rows", "empty", "no stars", "(0, 6)")]
+        )
     if len(o.value) == 0:
         return GOOD, "empty input gives an empty OrbitSet"
     return BAD, f"{len(o.value)} orbits from nothing"
@@ -625,9 +641,16 @@ def _(d):
 @case("O21", "orbits", "dict of Quantities with velocities in m/s")
 def _(d):
     import astropy.units as u
+
     x = sun_star()[0]
-    stars = {"x": [x[0]] * u.kpc, "y": [x[1]] * u.kpc, "z": [x[2] * 1000] * u.pc,
-             "vx": [x[3] * 1000] * u.m / u.s, "vy": [x[4] * 1000] * u.m / u.s, "vz": [x[5] * 1000] * u.m / u.s}
+    stars = {
+        "x": [x[0]] * u.kpc,
+        "y": [x[1]] * u.kpc,
+        "z": [x[2] * 1000] * u.pc,
+        "vx": [x[3] * 1000] * u.m / u.s,
+        "vy": [x[4] * 1000] * u.m / u.s,
+        "vz": [x[5] * 1000] * u.m / u.s,
+    }
     o = attempt(mk().orbit_parameters, stars, mwpot())
     if o.exc:
         return WEAK, f"Quantities in pc and m/s refused: {one_line(o.exc)}"
@@ -653,9 +676,13 @@ def _(d):
 
 @case("O24", "orbits", "control: Staeckel on ordinary disc stars (no flag, agrees with integration)")
 def _(d):
-    stars = np.array([[-8.1, 0.0, 0.02, 10.0, 225.0, 8.0],
-                      [-7.5, 1.0, -0.1, -35.0, 200.0, 20.0],
-                      [-9.0, -0.5, 0.2, 50.0, 235.0, -15.0]])
+    stars = np.array(
+        [
+            [-8.1, 0.0, 0.02, 10.0, 225.0, 8.0],
+            [-7.5, 1.0, -0.1, -35.0, 200.0, 20.0],
+            [-9.0, -0.5, 0.2, 50.0, 235.0, -15.0],
+        ]
+    )
     s = attempt(mk().orbit_parameters, stars, mwpot(), method="staeckel")
     if s.exc:
         return BAD, f"ordinary disc stars fail: {one_line(s.exc)}"
@@ -754,8 +781,11 @@ def _(d):
     if o.exc:
         return judge_error(o.exc, [("R0", "R")], [0])
     A = fval(o.value.A)
-    return (WEAK, f"NaN/inf Oort constants (A = {A}) without an error") if not np.all(np.isfinite(A)) \
+    return (
+        (WEAK, f"NaN/inf Oort constants (A = {A}) without an error")
+        if not np.all(np.isfinite(A))
         else (BAD, f"finite Oort constants at R0 = 0: A = {A}")
+    )
 
 
 @case("P10", "potential", "three_component with bulge model 'king'")
@@ -802,8 +832,11 @@ def _(d):
 @case("F03", "frame", "SolarFrame.from_dict with nested lists")
 def _(d):
     out = []
-    for key, value, name in (("R0_kpc", [8.1], "R0"), ("v_sun_kms", [[12.9, 245.6, 7.78]], "v_sun"),
-                             ("z_sun_pc", [[20.8]], "z_sun")):
+    for key, value, name in (
+        ("R0_kpc", [8.1], "R0"),
+        ("v_sun_kms", [[12.9, 245.6, 7.78]], "v_sun"),
+        ("z_sun_pc", [[20.8]], "z_sun"),
+    ):
         o = attempt(mk().SolarFrame.from_dict, _frame_dict(**{key: value}))
         if o.exc:
             v, r = judge_error(o.exc, [(key, name)], [(repr(value), "list", "nested", "shape", "sequence")])
@@ -814,8 +847,11 @@ def _(d):
             ok = isinstance(got, tuple) and len(got) == 3 and all(isinstance(g, float) for g in got)
         else:
             ok = isinstance(got, float)
-        out.append((GOOD, f"{key}={value!r} read as {got!r}") if ok else
-                   (WEAK, f"{key}={value!r} accepted and kept as {type(got).__name__} {got!r}"))
+        out.append(
+            (GOOD, f"{key}={value!r} read as {got!r}")
+            if ok
+            else (WEAK, f"{key}={value!r} accepted and kept as {type(got).__name__} {got!r}")
+        )
     return worst(out)
 
 
@@ -930,6 +966,7 @@ def _(d):
 @case("F14", "frame", "SolarFrame(R0 in km/s)")
 def _(d):
     import astropy.units as u
+
     o = attempt(mk().SolarFrame, R0=8.1 * u.km / u.s)
     return judge_error(o.exc, ["R0"], [("km / s", "km/s")]) if o.exc else (BAD, "R0 in km/s accepted")
 
@@ -948,8 +985,11 @@ def _(d):
     if o.exc:
         out.append(judge_error(o.exc, ["R0"], ["8.3"]))
     else:
-        out.append((GOOD, "R0='8.3' read as 8.3") if o.value.R0 == 8.3 and isinstance(o.value.R0, float)
-                   else (BAD, f"R0='8.3' became {o.value.R0!r}"))
+        out.append(
+            (GOOD, "R0='8.3' read as 8.3")
+            if o.value.R0 == 8.3 and isinstance(o.value.R0, float)
+            else (BAD, f"R0='8.3' became {o.value.R0!r}")
+        )
     o = attempt(f.replace, R_0=8.3)
     out.append(judge_error(o.exc, [("R_0",)], []) if o.exc else (BAD, "unknown field accepted"))
     return worst(out)
@@ -964,16 +1004,19 @@ def _(d):
 # ====================================================================================== CATALOG
 @case("C01", "catalog", "CSV with a duplicated column name (pmra twice)")
 def _(d):
-    Path("dup.csv").write_text("ra,dec,parallax,parallax_error,pmra,pmdec,pmra\n"
-                               "10,5,2,0.05,3,-1,30\n200,-30,1,0.05,-2,4,-20\n")
+    Path("dup.csv").write_text(
+        "ra,dec,parallax,parallax_error,pmra,pmdec,pmra\n10,5,2,0.05,3,-1,30\n200,-30,1,0.05,-2,4,-20\n"
+    )
     o = attempt(mk().read_catalog, "dup.csv")
     if o.exc:
-        return judge_error(o.exc, ["pmra"],
-                           [("twice", "duplicate", "more than once", "pmra_2", "2 columns", "same name")])
+        return judge_error(
+            o.exc, ["pmra"], [("twice", "duplicate", "more than once", "pmra_2", "2 columns", "same name")]
+        )
     t = o.value
     extra = [c for c in t.colnames if c.startswith("pmra") and c != "pmra"]
-    return BAD, (f"duplicated column read silently: pmra = {fval(t['pmra']).tolist()}, the other kept as "
-                 f"{extra or 'nothing'}")
+    return BAD, (
+        f"duplicated column read silently: pmra = {fval(t['pmra']).tolist()}, the other kept as {extra or 'nothing'}"
+    )
 
 
 @case("C02", "catalog", "alias clash: pmra and pm_ra both present")
@@ -990,11 +1033,18 @@ def _(d):
 def _(d):
     import pyarrow as pa
     import pyarrow.parquet as pq
+
     n = 200
     ra = np.linspace(10.0, 350.0, n)
-    cols = {"source_id": np.arange(n, dtype=np.int64), "ra": ra, "dec": np.linspace(-60, 60, n),
-            "parallax": np.full(n, 2.0), "parallax_error": np.full(n, 0.05),
-            "pmra": np.linspace(-5, 5, n), "pmdec": np.linspace(5, -5, n)}
+    cols = {
+        "source_id": np.arange(n, dtype=np.int64),
+        "ra": ra,
+        "dec": np.linspace(-60, 60, n),
+        "parallax": np.full(n, 2.0),
+        "parallax_error": np.full(n, 0.05),
+        "pmra": np.linspace(-5, 5, n),
+        "pmdec": np.linspace(5, -5, n),
+    }
     table = pa.table(cols)
     kwargs = dict(compression=None, use_dictionary=False)
     try:
@@ -1012,8 +1062,8 @@ def _(d):
     if first < 0:
         return BAD, "setup: could not find the ra values in the first data page"
     k0, k1 = 5, 6
-    raw[first + 8 * k0: first + 8 * k0 + 8] = bytes(8)
-    raw[first + 8 * k1: first + 8 * k1 + 8] = struct.pack("<d", 5e-310)
+    raw[first + 8 * k0 : first + 8 * k0 + 8] = bytes(8)
+    raw[first + 8 * k1 : first + 8 * k1 + 8] = struct.pack("<d", 5e-310)
     Path("c.parquet").write_bytes(bytes(raw))
     o = attempt(mk().read_catalog, "c.parquet")
     if o.exc:
@@ -1025,18 +1075,29 @@ def _(d):
     flagged = bool(np.all(np.asarray(o.value["has_nan"])[changed])) if "has_nan" in o.value.colnames else False
     if flagged and np.all(np.isnan(got[changed])):
         return GOOD, f"corrupted rows {changed.tolist()} NaN and flagged"
-    return BAD, (f"silently wrong ra ({note}): rows {changed.tolist()} read as "
-                 f"{[float(got[i]) for i in changed]} deg, written {[round(float(ra[i]), 4) for i in changed]}")
+    return BAD, (
+        f"silently wrong ra ({note}): rows {changed.tolist()} read as "
+        f"{[float(got[i]) for i in changed]} deg, written {[round(float(ra[i]), 4) for i in changed]}"
+    )
 
 
 @case("C36", "catalog", "Parquet with page checksums, one ra value bit-flipped to a plausible number")
 def _(d):
     import pyarrow as pa
     import pyarrow.parquet as pq
+
     n = 100
     ra = np.linspace(20.0, 340.0, n)
-    table = pa.table({"ra": ra, "dec": np.linspace(-50, 50, n), "parallax": np.full(n, 2.0),
-                      "parallax_error": np.full(n, 0.05), "pmra": np.linspace(-5, 5, n), "pmdec": np.zeros(n)})
+    table = pa.table(
+        {
+            "ra": ra,
+            "dec": np.linspace(-50, 50, n),
+            "parallax": np.full(n, 2.0),
+            "parallax_error": np.full(n, 0.05),
+            "pmra": np.linspace(-5, 5, n),
+            "pmdec": np.zeros(n),
+        }
+    )
     try:
         pq.write_table(table, "f.parquet", compression=None, use_dictionary=False, write_page_checksum=True)
     except TypeError:
@@ -1044,14 +1105,15 @@ def _(d):
     meta = pq.ParquetFile("f.parquet").metadata
     chunk = meta.row_group(0).column(meta.schema.names.index("ra"))
     raw = bytearray(Path("f.parquet").read_bytes())
-    first = raw.find(ra[:4].astype("<f8").tobytes(), chunk.data_page_offset,
-                     chunk.data_page_offset + chunk.total_compressed_size)
+    first = raw.find(
+        ra[:4].astype("<f8").tobytes(), chunk.data_page_offset, chunk.data_page_offset + chunk.total_compressed_size
+    )
     if first < 0:
         return BAD, "setup: could not find the ra values in the data page"
     k = 10
     raw[first + 8 * k + 6] ^= 0x10  # lowest exponent bit: the value halves or doubles
     Path("f.parquet").write_bytes(bytes(raw))
-    flipped = struct.unpack("<d", bytes(raw[first + 8 * k: first + 8 * k + 8]))[0]
+    flipped = struct.unpack("<d", bytes(raw[first + 8 * k : first + 8 * k + 8]))[0]
     try:  # does the file itself let a reader notice? (pyarrow verifies checksums on request)
         pq.read_table("f.parquet", page_checksum_verification=True)
         detectable = "pyarrow's checksum check does not notice"
@@ -1065,8 +1127,10 @@ def _(d):
     got = fval(o.value["ra"])
     if got[k] == ra[k]:
         return GOOD, "value read as written"
-    return BAD, (f"row {k} ra read as {got[k]:.6g} deg (written {ra[k]:.6g}; the damaged bytes give "
-                 f"{flipped:.6g}) silently; {detectable}")
+    return BAD, (
+        f"row {k} ra read as {got[k]:.6g} deg (written {ra[k]:.6g}; the damaged bytes give "
+        f"{flipped:.6g}) silently; {detectable}"
+    )
 
 
 def _judge_read_same(o, names, expect_rows=4, label=""):
@@ -1078,8 +1142,11 @@ def _judge_read_same(o, names, expect_rows=4, label=""):
         return (GOOD if v == GOOD else WEAK), f"{label} refused: {r}"
     t = o.value
     try:
-        ok = (len(t) == expect_rows and np.allclose(fval(t["ra"]), BASIC["ra"])
-              and np.allclose(fval(t["pmdec"]), BASIC["pmdec"]))
+        ok = (
+            len(t) == expect_rows
+            and np.allclose(fval(t["ra"]), BASIC["ra"])
+            and np.allclose(fval(t["pmdec"]), BASIC["pmdec"])
+        )
     except Exception as exc:  # noqa: BLE001
         return BAD, f"{label} read into something else: {one_line(exc)}"
     return (GOOD, f"{label} read correctly") if ok else (BAD, f"{label} read with wrong values")
@@ -1094,8 +1161,7 @@ def _(d):
 @case("C05", "catalog", "CSV with ';' delimiters")
 def _(d):
     write_csv("semi.csv", basic(), delim=";")
-    return _judge_read_same(attempt(mk().read_catalog, "semi.csv"), [(";", "delimiter", "semicolon")],
-                            label="';' CSV")
+    return _judge_read_same(attempt(mk().read_catalog, "semi.csv"), [(";", "delimiter", "semicolon")], label="';' CSV")
 
 
 @case("C06", "catalog", "CSV with tab delimiters")
@@ -1171,6 +1237,7 @@ def _(d):
 def _(d):
     import pyarrow as pa
     import pyarrow.parquet as pq
+
     cols = basic()
     text = [str(v) for v in cols["pmra"]]
     table = pa.table({**{k: v for k, v in cols.items() if k != "pmra"}, "pmra": pa.array(text, pa.string())})
@@ -1230,17 +1297,29 @@ def _(d):
 def _(d):
     import astropy.units as u
     from astropy.coordinates import SkyCoord
+
     t = basic_table(**{k: [v[1]] for k, v in BASIC.items()})
     frame = mk().SolarFrame(R0=8.2, z_sun=25.0, v_sun=(11.1, 240.0, 7.3))
     o = attempt(mk().to_galactocentric, t, frame=frame)
     if o.exc:
         return BAD, f"a valid one-row table fails: {one_line(o.exc)}"
-    c = SkyCoord(ra=t["ra"][0] * u.deg, dec=t["dec"][0] * u.deg, distance=(1 / t["parallax"][0]) * u.kpc,
-                 pm_ra_cosdec=t["pmra"][0] * u.mas / u.yr, pm_dec=t["pmdec"][0] * u.mas / u.yr,
-                 radial_velocity=t["radial_velocity"][0] * u.km / u.s)
+    c = SkyCoord(
+        ra=t["ra"][0] * u.deg,
+        dec=t["dec"][0] * u.deg,
+        distance=(1 / t["parallax"][0]) * u.kpc,
+        pm_ra_cosdec=t["pmra"][0] * u.mas / u.yr,
+        pm_dec=t["pmdec"][0] * u.mas / u.yr,
+        radial_velocity=t["radial_velocity"][0] * u.km / u.s,
+    )
     g = c.transform_to(frame.to_astropy())  # reference: astropy's own Galactocentric frame
-    ref = [g.x.to_value(u.kpc), g.y.to_value(u.kpc), g.z.to_value(u.kpc),
-           g.v_x.to_value(u.km / u.s), g.v_y.to_value(u.km / u.s), g.v_z.to_value(u.km / u.s)]
+    ref = [
+        g.x.to_value(u.kpc),
+        g.y.to_value(u.kpc),
+        g.z.to_value(u.kpc),
+        g.v_x.to_value(u.km / u.s),
+        g.v_y.to_value(u.km / u.s),
+        g.v_z.to_value(u.km / u.s),
+    ]
     got = [float(fval(o.value[k])[0]) for k in ("x", "y", "z", "vx", "vy", "vz")]
     err = max(abs(a - b) for a, b in zip(got, ref))
     if err > 1e-6:
@@ -1252,6 +1331,7 @@ def _(d):
 def _(d):
     import astropy.units as u
     from astropy.table import QTable
+
     t = QTable({k: np.array(v, dtype=float) for k, v in BASIC.items() if k != "source_id"})
     t["ra"] = np.radians(BASIC["ra"]) * u.rad
     t["dec"] = np.array(BASIC["dec"]) * u.deg
@@ -1261,8 +1341,9 @@ def _(d):
     o = attempt(mk().read_catalog, "units.ecsv")
     if o.exc:
         return WEAK, f"stated units refused: {one_line(o.exc)}"
-    ok = (np.allclose(fval(o.value["ra"]), BASIC["ra"], rtol=1e-12)
-          and np.allclose(fval(o.value["pmra"]), BASIC["pmra"], rtol=1e-9))
+    ok = np.allclose(fval(o.value["ra"]), BASIC["ra"], rtol=1e-12) and np.allclose(
+        fval(o.value["pmra"]), BASIC["pmra"], rtol=1e-9
+    )
     return (GOOD, "converted to deg and mas/yr") if ok else (BAD, "wrong conversion of rad / deg/yr")
 
 
@@ -1270,6 +1351,7 @@ def _(d):
 def _(d):
     import astropy.units as u
     from astropy.table import QTable
+
     t = QTable(basic_table())
     t["radial_velocity"] = np.array(BASIC["radial_velocity"]) * 1000 * u.m / u.s
     t.write("rv.ecsv", overwrite=True)
@@ -1283,8 +1365,12 @@ def _(d):
 @case("C19", "catalog", "CSV with radial velocities in m/s but no unit (|rv| ~ 30000)")
 def _(d):
     write_csv("rvms.csv", basic(radial_velocity=[10000.0, -20000.0, 5000.0, 30000.0]))
-    return _warn_case(lambda: mk().read_catalog("rvms.csv"), [("radial_velocity",)], [("km/s", "km / s", "m/s")],
-                      "radial velocities of 30000 km/s")
+    return _warn_case(
+        lambda: mk().read_catalog("rvms.csv"),
+        [("radial_velocity",)],
+        [("km/s", "km / s", "m/s")],
+        "radial velocities of 30000 km/s",
+    )
 
 
 @case("C20", "catalog", "correlation column above 1")
@@ -1407,6 +1493,7 @@ def _(d):
 @case("C34", "catalog", "pandas DataFrame with an object column of numbers and None")
 def _(d):
     import pandas as pd
+
     df = pd.DataFrame(basic())
     df["pmra"] = pd.Series([3.0, None, 1.0, 4.0], dtype=object)
     o = attempt(mk().read_catalog, df)
@@ -1808,6 +1895,7 @@ def _(d):
 # ====================================================================================== DASK
 def _dask_input(n=400, nparts=3, bad_row=None):
     import dask.dataframe as dd
+
     s = survey(n, 7)
     df = s.to_pandas()
     if "source_id" in df.columns:
@@ -1820,6 +1908,7 @@ def _dask_input(n=400, nparts=3, bad_row=None):
 
 def _dask_convert():
     import mwkin.scale as ms
+
     fn = getattr(ms, "to_galactocentric_dask", None) or getattr(ms, "to_galactocentric", None)
     if fn is None:
         raise RuntimeError(f"mwkin.scale has no to_galactocentric[_dask]; names: {getattr(ms, '__all__', dir(ms))}")
@@ -1831,6 +1920,7 @@ def _(d):
     import dask
     import dask.dataframe as dd
     import pandas as pd
+
     s, df = _dask_input()
     out = _dask_convert()(dd.read_parquet("in_dir"))
     with dask.config.set(scheduler="synchronous"):
@@ -1861,6 +1951,7 @@ def _(d):
 def _(d):
     import dask
     import dask.dataframe as dd
+
     _dask_input()
     with dask.config.set(scheduler="synchronous"):  # Dask writes a folder; users often name it *.parquet
         o = attempt(_dask_convert()(dd.read_parquet("in_dir")).to_parquet, "out.parquet")
@@ -1872,8 +1963,13 @@ def _(d):
         o = attempt(mk().read_catalog, path)
         if o.exc:
             # the output holds Galactocentric columns, not observables: naming what is missing is clear
-            out.append(judge_error(o.exc, [("ra", "director", path, os.path.basename(path))],
-                                   [("missing", "columns found", "director", "not a file")]))
+            out.append(
+                judge_error(
+                    o.exc,
+                    [("ra", "director", path, os.path.basename(path))],
+                    [("missing", "columns found", "director", "not a file")],
+                )
+            )
         else:
             out.append((GOOD, f"{path}: read {len(o.value)} rows"))
     return worst(out)
@@ -1884,6 +1980,7 @@ def _(d):
     import dask
     import dask.dataframe as dd
     import pandas as pd
+
     s, _ = _dask_input(n=60, nparts=2)
     with dask.config.set(scheduler="synchronous"):
         o = attempt(_dask_convert()(dd.read_parquet("in_dir")).to_parquet, "out.parquet")
@@ -1905,6 +2002,7 @@ def _(d):
 def _(d):
     import dask
     import dask.dataframe as dd
+
     bad = 330
     s, df = _dask_input(bad_row=bad)
     sid = int(df.loc[bad, "source_id"])
@@ -1926,6 +2024,7 @@ def _(d):
 @case("D05", "dask", "to_galactocentric_dask with errors='montecarlo'", timeout=120)
 def _(d):
     import dask.dataframe as dd
+
     _dask_input(n=40, nparts=2)
     o = attempt(_dask_convert(), dd.read_parquet("in_dir"), errors="montecarlo")
     return judge_error(o.exc, ["errors"], ["montecarlo"]) if o.exc else (BAD, "montecarlo silently accepted")
@@ -1934,6 +2033,7 @@ def _(d):
 # ====================================================================================== WIDGETS
 def W():
     import mwkin.widgets as w
+
     return w
 
 
@@ -1969,9 +2069,11 @@ def _(d):
     w = W()
     fs, ps = w.FrameState(), w.PotentialState()
     s = survey(1500, 3)
-    widgets = [w.VelocityPanel(s, frame=fs, potential=ps, threaded=False),
-               w.OortFitter(s, frame=fs, potential=ps, threaded=False),
-               w.OrbitExplorer(frame=fs, potential=ps, threaded=False)]
+    widgets = [
+        w.VelocityPanel(s, frame=fs, potential=ps, threaded=False),
+        w.OortFitter(s, frame=fs, potential=ps, threaded=False),
+        w.OrbitExplorer(frame=fs, potential=ps, threaded=False),
+    ]
     fs.R0 = 8.5
     _wait(*widgets)
     not_ready = [(type(x).__name__, _status(x)) for x in widgets if not _ready(x) or _result_R0(x) != 8.5]
@@ -1997,6 +2099,7 @@ def _(d):
 
 def _trait_error():
     import traitlets
+
     return traitlets.TraitError
 
 
@@ -2185,8 +2288,12 @@ def _(d):
     w = W()
     of = w.OortFitter(threaded=False)
     out = []
-    for target, value in ((of.load_config, ["frame"]), (of.load_config, "config.json"),
-                          (w.FrameState().load_config, 5), (w.PotentialState().load_config, None)):
+    for target, value in (
+        (of.load_config, ["frame"]),
+        (of.load_config, "config.json"),
+        (w.FrameState().load_config, 5),
+        (w.PotentialState().load_config, None),
+    ):
         o = attempt(target, value)
         if o.exc:
             v, r = judge_error(o.exc, [("dict", "mapping", "JSON object")], [(type(value).__name__,)])
@@ -2407,8 +2514,14 @@ def run_case_here(cid):
     finally:
         os.chdir(old)
         shutil.rmtree(folder, ignore_errors=True)
-    return {"id": cid, "area": c.area, "title": c.title, "verdict": verdict, "reason": one_line(reason, 400),
-            "seconds": round(time.perf_counter() - t0, 2)}
+    return {
+        "id": cid,
+        "area": c.area,
+        "title": c.title,
+        "verdict": verdict,
+        "reason": one_line(reason, 400),
+        "seconds": round(time.perf_counter() - t0, 2),
+    }
 
 
 def worker_loop():
@@ -2417,6 +2530,7 @@ def worker_loop():
     devnull = os.open(os.devnull, os.O_WRONLY)
     os.dup2(devnull, 1)  # stray prints of the library must not mix with the answers
     import mwkin  # noqa: F401 - warm-up, not counted against the first case's timeout
+
     out.write(_MARK + json.dumps({"ready": True}) + "\n")
     for line in sys.stdin:
         cid = line.strip()
@@ -2430,16 +2544,22 @@ class Worker:
 
     def __init__(self, log_dir):
         self.log = open(os.path.join(log_dir, f"worker-{time.monotonic_ns()}.log"), "w")
-        self.proc = subprocess.Popen([sys.executable, os.path.abspath(__file__), "--worker"],
-                                     stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=self.log,
-                                     text=True, start_new_session=True, cwd=str(Path(__file__).resolve().parents[1]))
+        self.proc = subprocess.Popen(
+            [sys.executable, os.path.abspath(__file__), "--worker"],
+            stdin=subprocess.PIPE,
+            stdout=subprocess.PIPE,
+            stderr=self.log,
+            text=True,
+            start_new_session=True,
+            cwd=str(Path(__file__).resolve().parents[1]),
+        )
         self.lines = queue.Queue()
         threading.Thread(target=self._read, daemon=True).start()
 
     def _read(self):
         for line in self.proc.stdout:
             if line.startswith(_MARK):
-                self.lines.put(json.loads(line[len(_MARK):]))
+                self.lines.put(json.loads(line[len(_MARK) :]))
         self.lines.put(None)
 
     def get(self, timeout):
@@ -2482,8 +2602,14 @@ def drive(pending, results, log_dir, progress):
             if not isinstance(ready, dict):
                 worker.kill()
                 worker = None
-                results[cid] = {"id": cid, "area": c.area, "title": c.title, "verdict": BAD,
-                                "reason": f"worker could not start ({ready})", "seconds": 0.0}
+                results[cid] = {
+                    "id": cid,
+                    "area": c.area,
+                    "title": c.title,
+                    "verdict": BAD,
+                    "reason": f"worker could not start ({ready})",
+                    "seconds": 0.0,
+                }
                 progress(results[cid])
                 continue
         t0 = time.perf_counter()
@@ -2492,17 +2618,27 @@ def drive(pending, results, log_dir, progress):
         if answer == "timeout":
             worker.kill()
             worker = None
-            answer = {"id": cid, "area": c.area, "title": c.title, "verdict": BAD,
-                      "reason": f"hang: no answer within {c.timeout:g} s (worker killed)",
-                      "seconds": round(time.perf_counter() - t0, 2)}
+            answer = {
+                "id": cid,
+                "area": c.area,
+                "title": c.title,
+                "verdict": BAD,
+                "reason": f"hang: no answer within {c.timeout:g} s (worker killed)",
+                "seconds": round(time.perf_counter() - t0, 2),
+            }
         elif answer is None:
             rc = worker.proc.wait()
             tail = worker.log_tail()
             worker.kill()
             worker = None
-            answer = {"id": cid, "area": c.area, "title": c.title, "verdict": BAD,
-                      "reason": f"crash: the worker died with exit code {rc} ({tail})",
-                      "seconds": round(time.perf_counter() - t0, 2)}
+            answer = {
+                "id": cid,
+                "area": c.area,
+                "title": c.title,
+                "verdict": BAD,
+                "reason": f"crash: the worker died with exit code {rc} ({tail})",
+                "seconds": round(time.perf_counter() - t0, 2),
+            }
         results[cid] = answer
         progress(answer)
     if worker is not None:
@@ -2526,8 +2662,11 @@ def main(argv=None):
     parser.add_argument("--case", help="run one case in this process and print its verdict")
     parser.add_argument("--jobs", type=int, default=2, help="worker processes (default 2)")
     parser.add_argument("--list", action="store_true", help="list the cases and exit")
-    parser.add_argument("--self-test", action="store_true",
-                        help="check the harness: a hanging and a crashing case must be classified bad")
+    parser.add_argument(
+        "--self-test",
+        action="store_true",
+        help="check the harness: a hanging and a crashing case must be classified bad",
+    )
     parser.add_argument("--worker", action="store_true", help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
     if args.worker:
@@ -2547,8 +2686,9 @@ def main(argv=None):
         r = run_case_here(args.case)
         print_table([r])
         return 0
-    selected = [c.id for c in CASES.values()
-                if not args.only or args.only.lower() in f"{c.id} {c.area} {c.title}".lower()]
+    selected = [
+        c.id for c in CASES.values() if not args.only or args.only.lower() in f"{c.id} {c.area} {c.title}".lower()
+    ]
     if not selected:
         parser.error(f"no case matches {args.only!r}")
     pending = queue.Queue()
@@ -2563,12 +2703,16 @@ def main(argv=None):
     def progress(r):
         with lock:
             done[0] += 1
-            print(f"[{done[0]:>3}/{len(selected)}] {r['id']:<5} {r['verdict']:<5} {r['seconds']:>6.1f} s",
-                  file=sys.stderr, flush=True)
+            print(
+                f"[{done[0]:>3}/{len(selected)}] {r['id']:<5} {r['verdict']:<5} {r['seconds']:>6.1f} s",
+                file=sys.stderr,
+                flush=True,
+            )
 
     log_dir = tempfile.mkdtemp(prefix="hostile-logs-")
-    threads = [threading.Thread(target=drive, args=(pending, results, log_dir, progress))
-               for _ in range(max(1, args.jobs))]
+    threads = [
+        threading.Thread(target=drive, args=(pending, results, log_dir, progress)) for _ in range(max(1, args.jobs))
+    ]
     for t in threads:
         t.start()
     for t in threads:
@@ -2582,8 +2726,10 @@ def main(argv=None):
     print(f"cases {len(rows)}, good {counts[GOOD]}, weak {counts[WEAK]}, bad {counts[BAD]}")
     if args.self_test:
         expect = {"S01": "hang", "S02": "crash", "S03": "answered"}
-        ok = all(results.get(k, {}).get("reason", "").startswith(v) or v in results.get(k, {}).get("reason", "")
-                 for k, v in expect.items())
+        ok = all(
+            results.get(k, {}).get("reason", "").startswith(v) or v in results.get(k, {}).get("reason", "")
+            for k, v in expect.items()
+        )
         ok = ok and [results[k]["verdict"] for k in ("S01", "S02", "S03")] == [BAD, BAD, GOOD]
         print("self-test " + ("passed" if ok else "FAILED"))
         return 0 if ok else 1

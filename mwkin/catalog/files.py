@@ -33,7 +33,6 @@ _TEXT_FORMATS = ("ascii.csv", "ascii.ecsv")  # the formats encoding= applies to
 _DEFAULT_ENCODING = "utf-8-sig"  # UTF-8, with a byte order mark (if any) removed
 
 
-
 def _load(source, format, encoding=None):
     """Return (table, description, owned, format used or None)."""
     text_only = f"encoding= applies only to CSV and ECSV files (text), got encoding={encoding!r} for "
@@ -98,8 +97,12 @@ def _seekable(fileobj):
 
 #: First bytes of the binary formats (FITS standard 4.0, Sect. 4.4.1.1; Apache Parquet format
 #: specification, "PAR1"; the XML declaration or VOTABLE element of a VOTable) [from memory].
-_MAGIC = ((b"SIMPLE  =", "fits", "FITS"), (b"PAR1", "parquet", "Parquet"), (b"<?xml", "votable", "XML/VOTable"),
-          (b"<VOTABLE", "votable", "VOTable"))
+_MAGIC = (
+    (b"SIMPLE  =", "fits", "FITS"),
+    (b"PAR1", "parquet", "Parquet"),
+    (b"<?xml", "votable", "XML/VOTable"),
+    (b"<VOTABLE", "votable", "VOTable"),
+)
 
 
 def _check_content_matches_format(path, astropy_format):
@@ -111,8 +114,10 @@ def _check_content_matches_format(path, astropy_format):
         return  # the reader reports it
     for magic, fmt, spoken in _MAGIC:
         if head.startswith(magic) and astropy_format != fmt:
-            raise CatalogError(f"{path} is read as {astropy_format} (from its name or format=), but its content "
-                               f"is a {spoken} file (it starts with {magic!r}): rename it or pass format={fmt!r}")
+            raise CatalogError(
+                f"{path} is read as {astropy_format} (from its name or format=), but its content "
+                f"is a {spoken} file (it starts with {magic!r}): rename it or pass format={fmt!r}"
+            )
 
 
 def _verify_parquet_checksums(path):
@@ -127,8 +132,9 @@ def _verify_parquet_checksums(path):
     try:
         pq.read_table(path, page_checksum_verification=True)
     except OSError as exc:
-        raise CatalogError(f"{path} is damaged: a Parquet data page fails its checksum ({exc}); nothing was "
-                           "read from it") from None
+        raise CatalogError(
+            f"{path} is damaged: a Parquet data page fails its checksum ({exc}); nothing was read from it"
+        ) from None
     except Exception:  # noqa: BLE001 - any other problem is reported by the reader with its own message
         return
 
@@ -147,7 +153,7 @@ def _read_file(source, astropy_format, description, encoding=None):
 
 def _decode_problem(description, exc, used, default):
     """Message for a text file that is not in the encoding it was read with."""
-    bad = exc.object[exc.start:exc.start + 4] if isinstance(exc.object, bytes) else b""
+    bad = exc.object[exc.start : exc.start + 4] if isinstance(exc.object, bytes) else b""
     where = ""
     if isinstance(exc.object, bytes) and len(exc.object) > exc.start:
         line = exc.object.count(b"\n", 0, exc.start) + 1
@@ -155,12 +161,15 @@ def _decode_problem(description, exc, used, default):
     if bad[:2] in (b"\xff\xfe", b"\xfe\xff") and exc.start == 0:
         hint = "it starts with a UTF-16 byte order mark: pass encoding='utf-16'"
     elif default:
-        hint = ("it is not UTF-8, so it is probably in a legacy 8-bit encoding such as Latin-1 "
-                "(ISO-8859-1) or Windows-1252: pass encoding='latin-1' (or the file's real encoding)")
+        hint = (
+            "it is not UTF-8, so it is probably in a legacy 8-bit encoding such as Latin-1 "
+            "(ISO-8859-1) or Windows-1252: pass encoding='latin-1' (or the file's real encoding)"
+        )
     else:
         hint = "pass the file's real encoding as encoding="
-    return (f"could not read {description} as {used} text: byte {bad[:1]!r}{where} cannot be decoded "
-            f"({exc.reason}); {hint}")
+    return (
+        f"could not read {description} as {used} text: byte {bad[:1]!r}{where} cannot be decoded ({exc.reason}); {hint}"
+    )
 
 
 def _duplicates(names):
@@ -251,8 +260,9 @@ def _check_header(source, astropy_format, encoding, description):
         return
     repeated = _duplicates(names or [])
     if repeated:
-        text = "; ".join(f"{name!r} is columns {' and '.join(str(i + 1) for i in where)}"
-                         for name, where in repeated.items())
+        text = "; ".join(
+            f"{name!r} is columns {' and '.join(str(i + 1) for i in where)}" for name, where in repeated.items()
+        )
         raise CatalogError(
             f"{description}: the header gives a column name more than once ({text}, counting from 1); "
             f"a reader would keep the first and silently rename the others. Rename or drop the "
@@ -283,5 +293,3 @@ def _looks_like_ecsv(path, encoding=None):
             return fh.readline().startswith("# %ECSV")
     except (OSError, UnicodeDecodeError, LookupError):
         return False
-
-

@@ -8,13 +8,13 @@ import astropy.units as u
 import numpy as np
 from astropy.table import QTable
 
-from ..distances import SUSPICIOUS_MEDIAN_KPC, warn_if_distances_look_like_pc
 from ..columns import (
     _DESCRIPTIONS,
     ALIAS_UNITS,
     REQUIRED_COLUMNS,
     STANDARD_UNITS,
 )
+from ..distances import SUSPICIOUS_MEDIAN_KPC, warn_if_distances_look_like_pc
 from .files import _load
 from .values import (
     CatalogError,
@@ -151,9 +151,7 @@ def _read_catalog(source, format=None, aliases=None, units=None, copy=True, enco
     lowered = {_key(name): name for name in table.colnames}
     for alias in aliases or {}:
         if _key(alias) not in lowered:
-            raise CatalogError(
-                f"aliases: there is no column {alias!r}; columns found: {_list_names(table.colnames)}"
-            )
+            raise CatalogError(f"aliases: there is no column {alias!r}; columns found: {_list_names(table.colnames)}")
     found = {}
     for name in table.colnames:
         std = lookup.get(_key(name))
@@ -176,12 +174,12 @@ def _read_catalog(source, format=None, aliases=None, units=None, copy=True, enco
     if "parallax" not in original_of and "distance" not in original_of:
         missing.append("parallax or distance")
     if missing:
-        hints = "; ".join(
-            f"{m}: {', '.join(sum((_spellings(part) for part in m.split(' or ')), []))}" for m in missing
+        hints = "; ".join(f"{m}: {', '.join(sum((_spellings(part) for part in m.split(' or ')), []))}" for m in missing)
+        message = (
+            f"missing required column(s): {', '.join(missing)}. Columns found: "
+            f"{_list_names(table.colnames)}. Names recognised (any case): {hints}. "
+            f"Pass aliases={{'your_column': 'standard_name'}} for other names"
         )
-        message = (f"missing required column(s): {', '.join(missing)}. Columns found: "
-                   f"{_list_names(table.colnames)}. Names recognised (any case): {hints}. "
-                   f"Pass aliases={{'your_column': 'standard_name'}} for other names")
         cause = _missing_column_cause(table.colnames, lookup, description)
         # The likely cause goes first: it is the fix, and the list of recognised names is long.
         raise CatalogError(f"{cause[2:]}. Hence: {message}" if cause else message)
@@ -215,8 +213,11 @@ def _read_catalog(source, format=None, aliases=None, units=None, copy=True, enco
             continue
         writable = ours or owned
         # The unit is an assumption when neither the column, units= nor the name states one.
-        assumed = ((unit is None or unit == u.dimensionless_unscaled) and std not in stated_units
-                   and _key(original) not in ALIAS_UNITS)
+        assumed = (
+            (unit is None or unit == u.dimensionless_unscaled)
+            and std not in stated_units
+            and _key(original) not in ALIAS_UNITS
+        )
         unit, problem = _resolve_unit(std, original, unit, stated_units.get(std), label)
         if problem:
             found_here.append(problem)
@@ -241,7 +242,8 @@ def _read_catalog(source, format=None, aliases=None, units=None, copy=True, enco
     ra_wrapped = 0
     unit_assumed = {}
     for (std, label, values, writable, target, found_here, assumed), summary in zip(
-            pending, _summaries([item[2] for item in pending])):
+        pending, _summaries([item[2] for item in pending])
+    ):
         unit_assumed[std] = (label, assumed)
         found_here.extend(_range_problems(std, values, label, target, summary))
         if std == "ra" and not found_here:
@@ -327,10 +329,12 @@ def _missing_column_cause(names, lookup, description):
     for delimiter, spoken in _OTHER_DELIMITERS.items():
         glued = [name for name in names if delimiter in name]
         if glued and any(_key(part) in lookup for name in glued for part in name.split(delimiter)):
-            return (f". The likely cause: {description} separates its columns with {spoken}, not commas, "
-                    f"so a header such as {glued[0][:60]!r} was read as one column name. read_catalog reads "
-                    f"comma-separated CSV: convert the file, or read it with astropy "
-                    f"(Table.read(path, format='ascii.csv', delimiter={delimiter!r})) and pass the table")
+            return (
+                f". The likely cause: {description} separates its columns with {spoken}, not commas, "
+                f"so a header such as {glued[0][:60]!r} was read as one column name. read_catalog reads "
+                f"comma-separated CSV: convert the file, or read it with astropy "
+                f"(Table.read(path, format='ascii.csv', delimiter={delimiter!r})) and pass the table"
+            )
     return ""
 
 
@@ -346,10 +350,13 @@ class VelocityUnitWarning(UserWarning):
 def _warn_if_velocities_look_like_m_per_s(label, values):
     finite = np.abs(values[np.isfinite(values)])
     if finite.size and float(np.median(finite)) > SUSPICIOUS_MEDIAN_RV_KMS:
-        warnings.warn(f"{label}: the median |radial velocity| is {float(np.median(finite)):.6g}, taken as km/s "
-                      f"(no unit given), i.e. beyond {SUSPICIOUS_MEDIAN_RV_KMS:g} km/s; are the velocities in "
-                      "m/s? If so, state the unit (units={'radial_velocity': 'm/s'})", VelocityUnitWarning,
-                      stacklevel=4)
+        warnings.warn(
+            f"{label}: the median |radial velocity| is {float(np.median(finite)):.6g}, taken as km/s "
+            f"(no unit given), i.e. beyond {SUSPICIOUS_MEDIAN_RV_KMS:g} km/s; are the velocities in "
+            "m/s? If so, state the unit (units={'radial_velocity': 'm/s'})",
+            VelocityUnitWarning,
+            stacklevel=4,
+        )
 
 
 def _warn_if_distance_in_pc(std, label, values, summary, unit_stated):

@@ -18,9 +18,9 @@ from ..columns import (
     STANDARD_UNITS,
 )
 
-
 _N_SHOWN = 5  # offending rows quoted in an error message
 _BOM = "\ufeff"  # the byte order mark, as a character
+
 
 class CatalogError(ValueError):
     """A star table that cannot be used as it is.
@@ -29,8 +29,6 @@ class CatalogError(ValueError):
     doubly given columns, units that do not fit, and values out of range. The message names the
     column, the rows and the unit at fault.
     """
-
-
 
 
 RA_LIMIT_DEG = 1080.0
@@ -228,7 +226,7 @@ class _Summary:
         lo, hi = math.inf, -math.inf
         scratch = None
         for start in range(0, values.size, _SCAN_BLOCK):  # the reductions while the block is in cache
-            block = values[start:start + _SCAN_BLOCK]
+            block = values[start : start + _SCAN_BLOCK]
             b_lo, b_hi = float(block.min()), float(block.max())  # NaN if any value is NaN
             if math.isnan(b_lo) or math.isnan(b_hi):
                 break
@@ -236,7 +234,7 @@ class _Summary:
             if b_lo < _TINY and b_hi > -_TINY and not self.subnormal:  # the block reaches near zero
                 if scratch is None:
                     scratch = np.empty(min(values.size, _SCAN_BLOCK))
-                size = np.abs(block, out=scratch[:block.size])
+                size = np.abs(block, out=scratch[: block.size])
                 if float(size.min()) < _TINY:  # zero or subnormal: tell them apart
                     self.subnormal = _has_subnormal(size)
         else:
@@ -254,8 +252,9 @@ class _Summary:
         if math.isnan(self.lo):  # no rows, or only NaN, which always passes
             return True
         above = self.lo > lo if lo_open else self.lo >= lo
-        return bool(above and self.hi <= hi and math.isfinite(self.lo) and math.isfinite(self.hi)
-                    and not self.subnormal)
+        return bool(
+            above and self.hi <= hi and math.isfinite(self.lo) and math.isfinite(self.hi) and not self.subnormal
+        )
 
 
 def _has_subnormal(size):
@@ -314,9 +313,13 @@ def _range_problems(std, values, label, unit, summary=None):
         return []
     checks = [(np.isinf(values), "infinite values at")]
     if std == "ra":
-        checks.append((np.abs(values) > RA_LIMIT_DEG,
-                       f"values beyond +-{RA_LIMIT_DEG:g} deg (three turns; not wrapped: no right "
-                       f"ascension is written like that, check the unit or the file) at"))
+        checks.append(
+            (
+                np.abs(values) > RA_LIMIT_DEG,
+                f"values beyond +-{RA_LIMIT_DEG:g} deg (three turns; not wrapped: no right "
+                f"ascension is written like that, check the unit or the file) at",
+            )
+        )
     elif std == "dec":
         checks.append(((values < -90.0) | (values > 90.0), "values outside [-90, 90] deg at"))
     elif std in ERROR_COLUMNS:
@@ -326,12 +329,17 @@ def _range_problems(std, values, label, unit, summary=None):
     elif std == "distance":
         checks.append((values <= 0.0, "distances that are not positive at"))
     elif std == "radial_velocity":
-        checks.append(((np.abs(values) >= _C_KMS) & np.isfinite(values),
-                       f"speeds of light ({_C_KMS:.6g} km/s) or more at"))
+        checks.append(
+            ((np.abs(values) >= _C_KMS) & np.isfinite(values), f"speeds of light ({_C_KMS:.6g} km/s) or more at")
+        )
     if summary is None or summary.subnormal:
-        checks.append((_subnormal_mask(values),
-                       "subnormal values (nonzero and below 2.2e-308 in size, which no measurement gives: "
-                       "is the file damaged?) at"))
+        checks.append(
+            (
+                _subnormal_mask(values),
+                "subnormal values (nonzero and below 2.2e-308 in size, which no measurement gives: "
+                "is the file damaged?) at",
+            )
+        )
     problems = []
     for bad, what in checks:
         if bad.any():
@@ -355,5 +363,3 @@ def _wrap_ra(values, summary=None, writable=True):
         np.mod(values, 360.0, out=values, where=np.isfinite(values))
         values[values == 360.0] = 0.0  # np.mod(-1e-20, 360) rounds to 360
     return values, n
-
-

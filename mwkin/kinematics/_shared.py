@@ -4,9 +4,8 @@ from __future__ import annotations
 
 import math
 
-
-from ..coords import K_KMS_PER_MASYR_KPC
 from ..columns import CORRELATION_PAIRS, PHASE_SPACE_COLUMNS
+from ..coords import K_KMS_PER_MASYR_KPC
 
 _K = K_KMS_PER_MASYR_KPC  # km/s per (mas/yr kpc)
 _MAS_TO_RAD = math.pi / (180.0 * 3.6e6)
@@ -48,5 +47,3 @@ _PIVOT_TOLERANCE = 1e-9
 
 class KinematicsError(ValueError):
     """Bad arguments to a kinematics function (the message names the argument and the value)."""
-
-

@@ -5,8 +5,8 @@ from __future__ import annotations
 import astropy.units as u
 import numpy as np
 
-from ..distances import _column_values
 from ..coords import ICRS_TO_GALACTIC
+from ..distances import _column_values
 from ..units import KMS, MASYR
 from ._shared import (
     _CARTESIAN,
@@ -121,8 +121,7 @@ def _rotate_in_place(P, Z, rot, i, j, ws, m):
     # diagonal are stored (Z_ki = -Z_ik), so when exactly one of the two lies below it the turn
     # goes the other way.
     z = {(0, 1): 0, (0, 2): 1, (1, 2): 2}
-    _turn_pair(Z[z[min(i, k), max(i, k)]], Z[z[min(j, k), max(j, k)]], c, s, tmp[0], t2[0],
-               flip=(i < k) != (j < k))
+    _turn_pair(Z[z[min(i, k), max(i, k)]], Z[z[min(j, k), max(j, k)]], c, s, tmp[0], t2[0], flip=(i < k) != (j < k))
 
 
 def _turn_pair(a, b, c, s, tmp, tmp2, flip=False):
@@ -193,7 +192,9 @@ class _Linear:
             h50 = np.multiply(kt, pmra, ws.vec("h50", m))
             np.multiply(h50, s_a, h50)
         H = [
-            {2: a}, {0: pa}, {1: pd},
+            {2: a},
+            {0: pa},
+            {1: pd},
             {0: h30, 1: h31, 5: sig["rv"]},
             {0: h40, 2: mul("h42", kma, a), 3: mul("h43", kd, sig["pmra"])},
             {0: h50, 1: mul("h51", rv, s_d), 2: mul("h52", kmd, a), 4: mul("h54", kd, sig["pmdec"])},
@@ -222,9 +223,18 @@ class _Linear:
                 helio = axis.upper() * 2
                 np.sqrt(rr[sym[helio]], out[_HELIO[i]])
                 np.sqrt(vv[sym[helio]], out[_HELIO[i + 3]])
-            self._cylindrical([rr[sym[k]] for k in ("xx", "xy", "yy")], [vv[sym[k]] for k in ("xx", "xy", "yy")],
-                              [yy[ysym[k]] for k in ("xx", "xy", "yy")], zz[zanti["xy"]], sl, bv["inv_R"], ws, m,
-                              tmp, out)
+            self._cylindrical(
+                [rr[sym[k]] for k in ("xx", "xy", "yy")],
+                [vv[sym[k]] for k in ("xx", "xy", "yy")],
+                [yy[ysym[k]] for k in ("xx", "xy", "yy")],
+                zz[zanti["xy"]],
+                sl,
+                bv["inv_R"],
+                ws,
+                m,
+                tmp,
+                out,
+            )
             self._galactic(sa, ca, sd, cd, bv["cos2_b"], s_a, s_d, rho.get((0, 1)), ws, m, tmp, out)
         if a is None:
             out["distance"][...] = 0.0
@@ -232,8 +242,13 @@ class _Linear:
             np.abs(a, out["distance"])
         if self.covs is not None:  # the maps then give every entry, Galactocentric first
             for key, f in (("cov_galactocentric", 0), ("cov_heliocentric", 1)):
-                _fill_covariance(self.covs[key][sl], rr[6 * f:6 * f + 6], vv[6 * f:6 * f + 6],
-                                 yy[6 * f:6 * f + 6], zz[3 * f:3 * f + 3])
+                _fill_covariance(
+                    self.covs[key][sl],
+                    rr[6 * f : 6 * f + 6],
+                    vv[6 * f : 6 * f + 6],
+                    yy[6 * f : 6 * f + 6],
+                    zz[3 * f : 3 * f + 3],
+                )
 
     @staticmethod
     def _local_covariance(H, rho, ws, m, tmp):
@@ -261,8 +276,8 @@ class _Linear:
             if j < 3:  # position-position
                 if not H[i] or not H[j]:
                     return None
-                (k, hi), = H[i].items()
-                (l, hj), = H[j].items()
+                ((k, hi),) = H[i].items()
+                ((l, hj),) = H[j].items()
                 if i == j:
                     return np.multiply(hi, hi, target)
                 c = r(k, l)
@@ -422,15 +437,21 @@ def _error_columns(table, res):
     A missing uncertainty column gives None (its terms are skipped), a missing correlation column no
     entry; ra_error and dec_error stay in mas. The radial velocity is uncorrelated with the astrometry.
     """
+
     def err(name, unit):
         return _column_values(table, name, unit) if name in table.colnames else None
 
     p_err = res.parameter_error
     if p_err is not None and not np.any(p_err):
         p_err = None
-    sig = {"ra": err("ra_error", u.mas), "dec": err("dec_error", u.mas), "p": p_err,
-           "pmra": err("pmra_error", MASYR), "pmdec": err("pmdec_error", MASYR),
-           "rv": err("radial_velocity_error", KMS)}
+    sig = {
+        "ra": err("ra_error", u.mas),
+        "dec": err("dec_error", u.mas),
+        "p": p_err,
+        "pmra": err("pmra_error", MASYR),
+        "pmdec": err("pmdec_error", MASYR),
+        "rv": err("radial_velocity_error", KMS),
+    }
     rho = {}
     for key, name in _CORRELATIONS.items():
         if res.parameter != "parallax" and 2 in key:
@@ -445,8 +466,10 @@ def _error_inputs(table, res, d):
     correlations and d(distance)/d(parameter), for the Monte Carlo draws."""
     sig, rho = _error_columns(table, res)
     scale = {"ra": _MAS_TO_RAD, "dec": _MAS_TO_RAD}
-    sig = [0.0 if sig[k] is None else (sig[k] * scale[k] if k in scale else sig[k])
-           for k in ("ra", "dec", "p", "pmra", "pmdec", "rv")]
+    sig = [
+        0.0 if sig[k] is None else (sig[k] * scale[k] if k in scale else sig[k])
+        for k in ("ra", "dec", "p", "pmra", "pmdec", "rv")
+    ]
     dd_dp = -d * d if res.parameter == "parallax" else np.ones_like(d)
     return sig, rho, dd_dp
 
@@ -454,5 +477,3 @@ def _error_inputs(table, res, d):
 def _take(value, index):
     """value[index] for arrays, the value itself for the float 0.0."""
     return value[index] if _nonzero(value) else value
-
-

@@ -168,8 +168,9 @@ def _montecarlo_block(inp, sig, rho, n_samples, rng, parameter, geo, levels):
     pmra = inp["pmra"][:, None] + noise[..., 3]
     pmdec = inp["pmdec"][:, None] + noise[..., 4]
     rv = inp["rv"][:, None] + noise[..., 5]
-    draws = _forward_all(sa_s.ravel(), ca_s.ravel(), uz.ravel(), cd_s.ravel(), d.ravel(), pmra.ravel(),
-                         pmdec.ravel(), rv.ravel(), geo)
+    draws = _forward_all(
+        sa_s.ravel(), ca_s.ravel(), uz.ravel(), cd_s.ravel(), d.ravel(), pmra.ravel(), pmdec.ravel(), rv.ravel(), geo
+    )
     result = {}
     for name in OUTPUT_COLUMNS:
         values = draws[name].reshape(n, n_samples)
@@ -180,8 +181,11 @@ def _montecarlo_block(inp, sig, rho, n_samples, rng, parameter, geo, levels):
         else:
             qs = _sorted_percentiles(values, levels)
         result[name] = [q * _DEG for q in qs] if name in _ANGLES else qs
-    counts = {"draws": int(np.count_nonzero(bad_draw)), "stars": int(np.count_nonzero(bad_draw.any(axis=1))),
-              "clipped": n_clipped}
+    counts = {
+        "draws": int(np.count_nonzero(bad_draw)),
+        "stars": int(np.count_nonzero(bad_draw.any(axis=1))),
+        "clipped": n_clipped,
+    }
     return result, counts, bad_draw.mean(axis=1)
 
 
@@ -197,13 +201,20 @@ def _montecarlo(table, res, d, has_position, inp, n_samples, seed, levels, geo):
     block = max(1, _MC_DRAWS_PER_BLOCK // n_samples)
     totals = {"draws": 0, "stars": 0, "clipped": 0}
     for start in range(0, rows.size, block):
-        idx = rows[start:start + block]
+        idx = rows[start : start + block]
         chunk = {k: v[idx] for k, v in inp.items()}
         chunk["d"] = d[idx]
         chunk["p"] = res.parameter_value[idx]
         result, counts, frac = _montecarlo_block(
-            chunk, [_take(s, idx) for s in sig_all], {k: v[idx] for k, v in rho_all.items()},
-            n_samples, rng, res.parameter, geo, all_levels)
+            chunk,
+            [_take(s, idx) for s in sig_all],
+            {k: v[idx] for k, v in rho_all.items()},
+            n_samples,
+            rng,
+            res.parameter,
+            geo,
+            all_levels,
+        )
         for name, qs in result.items():
             for target, q in zip(stats[name], qs):
                 target[idx] = q
@@ -216,12 +227,19 @@ def _montecarlo(table, res, d, has_position, inp, n_samples, seed, levels, geo):
             columns[f"{name}_p{q:g}"] = (values, unit, f"Monte Carlo {q:g}th percentile of {name}")
     for name, (unit, _) in OUTPUT_COLUMNS.items():
         lo, hi = stats[name][-2], stats[name][-1]
-        columns[f"sigma_{name}"] = (0.5 * (hi - lo), unit,
-                                    f"Monte Carlo uncertainty of {name}: half the central 68.27% width")
+        columns[f"sigma_{name}"] = (
+            0.5 * (hi - lo),
+            unit,
+            f"Monte Carlo uncertainty of {name}: half the central 68.27% width",
+        )
     columns["mc_excluded_fraction"] = (
-        excluded, None, "fraction of Monte Carlo draws excluded for a non-positive parallax or distance")
-    meta = {"mc_nonpositive_draws": totals["draws"], "mc_stars_with_nonpositive_draws": totals["stars"],
-            "mc_clipped_correlations": totals["clipped"]}
+        excluded,
+        None,
+        "fraction of Monte Carlo draws excluded for a non-positive parallax or distance",
+    )
+    meta = {
+        "mc_nonpositive_draws": totals["draws"],
+        "mc_stars_with_nonpositive_draws": totals["stars"],
+        "mc_clipped_correlations": totals["clipped"],
+    }
     return columns, meta
-
-

@@ -10,9 +10,9 @@ from astropy.table import QTable
 
 from .._blocks import run_blocks
 from ..columns import OUTPUT_COLUMNS
-from . import _shared
 from ..distances import InverseParallax, _column_values
 from ..units import KMS, MASYR, to_value
+from . import _shared
 from ._shared import (
     _ANGLES,
     _CORR_REASON,
@@ -70,8 +70,11 @@ def _check_options(errors, n_samples, percentiles, return_covariance, distance, 
     if errors == "montecarlo":
         if isinstance(n_samples, bool) or not isinstance(n_samples, numbers.Integral) or n_samples < 2:
             raise KinematicsError(f"n_samples must be an integer >= 2, got {n_samples!r}")
-        if not (seed is None or isinstance(seed, np.random.Generator)
-                or (isinstance(seed, numbers.Integral) and not isinstance(seed, bool) and seed >= 0)):
+        if not (
+            seed is None
+            or isinstance(seed, np.random.Generator)
+            or (isinstance(seed, numbers.Integral) and not isinstance(seed, bool) and seed >= 0)
+        ):
             raise KinematicsError(f"seed must be a whole number >= 0, a numpy Generator or None, got {seed!r}")
         try:
             levels = np.asarray(percentiles, dtype=float).ravel()
@@ -87,8 +90,17 @@ def _check_options(errors, n_samples, percentiles, return_covariance, distance, 
         )
 
 
-def to_galactocentric(stars, frame=None, *, errors="none", distance=None, n_samples=1000, seed=None,
-                      percentiles=(16, 50, 84), return_covariance=False):
+def to_galactocentric(
+    stars,
+    frame=None,
+    *,
+    errors="none",
+    distance=None,
+    n_samples=1000,
+    seed=None,
+    percentiles=(16, 50, 84),
+    return_covariance=False,
+):
     """Galactocentric and heliocentric positions and velocities of the stars in a table.
 
     Parameters
@@ -213,8 +225,12 @@ def to_galactocentric(stars, frame=None, *, errors="none", distance=None, n_samp
     no_sky = missing(ra=ra, dec=dec)
     reasons = {_SKY_REASON: no_sky}
     counts = getattr(res, "counts", {})
-    reasons.update({name: (res.reason_code == i) if counts.get(name, 1) else np.zeros(n, dtype=bool)
-                    for i, name in enumerate(res.reason_names, start=1)})
+    reasons.update(
+        {
+            name: (res.reason_code == i) if counts.get(name, 1) else np.zeros(n, dtype=bool)
+            for i, name in enumerate(res.reason_names, start=1)
+        }
+    )
     reasons["no_proper_motion"] = missing(pmra=pmra, pmdec=pmdec)
     reasons["no_radial_velocity"] = missing(radial_velocity=rv)
     has_position = res.usable & ~no_sky
@@ -242,20 +258,26 @@ def to_galactocentric(stars, frame=None, *, errors="none", distance=None, n_samp
         maps = geo.covariance_maps(full=return_covariance)
         names = [name for name in OUTPUT_COLUMNS if name != "v_z"]
         sigmas = dict(zip(names, np.empty((len(names), n))))  # rows of one array, see _allocate
-        covs = ({k: np.empty((n, 6, 6)) for k in ("cov_galactocentric", "cov_heliocentric")}
-                if return_covariance else None)
+        covs = (
+            {k: np.empty((n, 6, 6)) for k in ("cov_galactocentric", "cov_heliocentric")} if return_covariance else None
+        )
         then = _Linear(sig, rho, res.parameter == "parallax", maps, inputs, columns, sigmas, covs)
     if montecarlo:
         trig = {k: np.empty(n) for k in ("sa", "ca", "sd", "cd")}
     # The Monte Carlo percentiles are taken in radians; otherwise the angles come out in degrees.
-    run_blocks(n, _shared.BLOCK, _Forward(inputs, geo, pos, vel, columns, degrees=not montecarlo, trig=trig, then=then),
-               _scratch_for(n))
+    run_blocks(
+        n,
+        _shared.BLOCK,
+        _Forward(inputs, geo, pos, vel, columns, degrees=not montecarlo, trig=trig, then=then),
+        _scratch_for(n),
+    )
     columns["v_z"] = columns["vz"]
     columns["distance"] = d
     extra = {}
     if montecarlo:
-        inp = dict(trig, pmra=pmra, pmdec=pmdec, rv=rv, nominal_phi=columns["phi"].copy(),
-                   nominal_l=columns["l"].copy())
+        inp = dict(
+            trig, pmra=pmra, pmdec=pmdec, rv=rv, nominal_phi=columns["phi"].copy(), nominal_l=columns["l"].copy()
+        )
         levels = tuple(float(q) for q in np.ravel(percentiles))
         drawn = has_position if bad_corr is None else has_position & ~bad_corr
         mc_columns, mc_meta = _montecarlo(table, res, d, drawn, inp, n_samples, seed, levels, geo)
@@ -274,7 +296,7 @@ def to_galactocentric(stars, frame=None, *, errors="none", distance=None, n_samp
         "dropped": {name: int(np.count_nonzero(mask)) for name, mask in reasons.items()},
         "errors": errors,
         "provenance": f"frame {frame.describe()}; {choice.describe()}"
-                      + "".join(f"; {note}" for note in getattr(res, "notes", ())),
+        + "".join(f"; {note}" for note in getattr(res, "notes", ())),
         "distance_ignored_columns": list(getattr(res, "ignored_columns", ())),
         "distance_notes": list(getattr(res, "notes", ())),
     }
@@ -295,13 +317,15 @@ def to_galactocentric(stars, frame=None, *, errors="none", distance=None, n_samp
             cov[no_velocity, 3:, :] = np.nan
             cov[no_velocity, :, 3:] = np.nan
             order = "x, y, z, vx, vy, vz" if key == "cov_galactocentric" else "X, Y, Z, U, V, W"
-            extra[key] = (cov, None, f"linear 6x6 covariance of ({order}); kpc and km/s "
-                                     "(kpc^2, kpc km/s, km^2/s^2)")
+            extra[key] = (cov, None, f"linear 6x6 covariance of ({order}); kpc and km/s (kpc^2, kpc km/s, km^2/s^2)")
     elif montecarlo:
         extra.update(mc_columns)
         meta.update(mc_meta)
-        meta.update(n_samples=int(n_samples), percentiles=list(levels),
-                    seed=int(seed) if isinstance(seed, numbers.Integral) else None)
+        meta.update(
+            n_samples=int(n_samples),
+            percentiles=list(levels),
+            seed=int(seed) if isinstance(seed, numbers.Integral) else None,
+        )
 
     cols, descriptions = {}, {}
     if "source_id" in table.colnames:
@@ -309,8 +333,10 @@ def to_galactocentric(stars, frame=None, *, errors="none", distance=None, n_samp
     for name, (unit, description) in OUTPUT_COLUMNS.items():
         cols[name], descriptions[name] = columns[name] << unit, description
     cols["flag"] = _flags(reasons, n)
-    descriptions["flag"] = ("why a star lacks positions, velocities or (invalid_correlation) uncertainties "
-                            "(comma-joined reasons); '' if nothing is missing")
+    descriptions["flag"] = (
+        "why a star lacks positions, velocities or (invalid_correlation) uncertainties "
+        "(comma-joined reasons); '' if nothing is missing"
+    )
     cols["has_velocity"] = has_velocity
     descriptions["has_velocity"] = "True where velocities could be computed"
     for name, (values, unit, description) in extra.items():
@@ -363,7 +389,8 @@ def from_galactocentric(phase_space, frame=None):
         arr = np.asarray(phase_space, dtype=float)
         if arr.ndim != 2 or arr.shape[1] != 6:
             raise KinematicsError(
-                f"a phase-space array must have shape (N, 6) with columns x y z vx vy vz, got shape {arr.shape}")
+                f"a phase-space array must have shape (N, 6) with columns x y z vx vy vz, got shape {arr.shape}"
+            )
         values = [arr[:, i] for i in range(6)]
     else:
         if hasattr(phase_space, "colnames"):
@@ -374,11 +401,13 @@ def from_galactocentric(phase_space, frame=None):
             names = list(phase_space.keys())
         else:
             raise KinematicsError(
-                f"phase_space must be a table, a mapping or an (N, 6) array, got {type(phase_space).__name__}")
+                f"phase_space must be a table, a mapping or an (N, 6) array, got {type(phase_space).__name__}"
+            )
         missing = [k for k in _PHASE_SPACE if k not in names]
         if missing:
-            raise KinematicsError(f"from_galactocentric needs columns x y z (kpc) and vx vy vz (km/s); "
-                                  f"missing: {', '.join(missing)}")
+            raise KinematicsError(
+                f"from_galactocentric needs columns x y z (kpc) and vx vy vz (km/s); missing: {', '.join(missing)}"
+            )
         values = []
         for name, unit in _PHASE_SPACE.items():
             col = phase_space[name]

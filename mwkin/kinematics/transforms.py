@@ -10,9 +10,9 @@ from dataclasses import dataclass
 import numpy as np
 
 from .._blocks import run_blocks
-from . import _shared
-from ..frames import frame_or_default
 from ..coords import ICRS_TO_GALACTIC
+from ..frames import frame_or_default
+from . import _shared
 from ._shared import (
     _BLAS_CHUNK,
     _CARTESIAN,
@@ -90,9 +90,11 @@ class _Geometry:
             want = {"sym": every_sym, "cross_sym": every_sym, "cross_anti": every_anti}
         else:
             # Variances of both frames, and the x-y entries the cylindrical coordinates need.
-            want = {"sym": [("gc", 0, 0), ("gc", 0, 1), ("gc", 1, 1), ("gc", 2, 2),
-                            ("h", 0, 0), ("h", 1, 1), ("h", 2, 2)],
-                    "cross_sym": [("gc", 0, 0), ("gc", 0, 1), ("gc", 1, 1)], "cross_anti": [("gc", 0, 1)]}
+            want = {
+                "sym": [("gc", 0, 0), ("gc", 0, 1), ("gc", 1, 1), ("gc", 2, 2), ("h", 0, 0), ("h", 1, 1), ("h", 2, 2)],
+                "cross_sym": [("gc", 0, 0), ("gc", 0, 1), ("gc", 1, 1)],
+                "cross_anti": [("gc", 0, 1)],
+            }
         full_maps = {f: {"sym": _sym_map(R), "anti": _antisym_map(R)} for f, R in frames.items()}
         maps, rows = {}, {}
         for name, entries in want.items():
@@ -112,11 +114,31 @@ def _frame_or_default(frame):
 # temporaries serve the first steps of the uncertainties, and the Jacobian rows and their
 # correlation-weighted sums (dead once the local covariance is made) serve the last steps.
 _SHARED_SCRATCH = {
-    "kma": "t_ra", "kmd": "t_dec", "kt": "w", "pa": "t2", "rot_t2": "g",
-    "cyl_c": "h30", "cyl_s": "h31", "cyl_c2": "h40", "cyl_s2": "h50", "cyl_cs": "h42", "cyl_2cs": "h43",
-    "cyl_cos2": "h51", "var_p1": "h52", "var_w0": "h54", "var_w1": "W30", "cov_p1_w0": "W31",
-    "cov_p1_w1": "W32", "cyl_half": "W40", "cyl_f": "W41",
-    "gal_p": "h30", "gal_q": "h31", "inv_cb2": "h40", "gal_ja": "h50", "gal_jd": "h42", "gal_x": "h43",
+    "kma": "t_ra",
+    "kmd": "t_dec",
+    "kt": "w",
+    "pa": "t2",
+    "rot_t2": "g",
+    "cyl_c": "h30",
+    "cyl_s": "h31",
+    "cyl_c2": "h40",
+    "cyl_s2": "h50",
+    "cyl_cs": "h42",
+    "cyl_2cs": "h43",
+    "cyl_cos2": "h51",
+    "var_p1": "h52",
+    "var_w0": "h54",
+    "var_w1": "W30",
+    "cov_p1_w0": "W31",
+    "cov_p1_w1": "W32",
+    "cyl_half": "W40",
+    "cyl_f": "W41",
+    "gal_p": "h30",
+    "gal_q": "h31",
+    "inv_cb2": "h40",
+    "gal_ja": "h50",
+    "gal_jd": "h42",
+    "gal_x": "h43",
 }
 
 
@@ -181,7 +203,7 @@ def _matmul(A, X, out):
     if m <= step:
         return np.matmul(A, X, out=out)
     for start in range(0, m, step):
-        np.matmul(A, X[:, start:start + step], out=out[:, start:start + step])
+        np.matmul(A, X[:, start : start + step], out=out[:, start : start + step])
     return out
 
 
@@ -346,8 +368,16 @@ def _as_arrays(names_values):
 
 
 def _observables_forward(ra_deg, dec_deg, distance_kpc, pmra, pmdec, rv_kms, frame):
-    ra, dec, d, pa, pd, rv = _as_arrays({"ra_deg": ra_deg, "dec_deg": dec_deg, "distance_kpc": distance_kpc,
-                                         "pmra": pmra, "pmdec": pmdec, "rv_kms": rv_kms})
+    ra, dec, d, pa, pd, rv = _as_arrays(
+        {
+            "ra_deg": ra_deg,
+            "dec_deg": dec_deg,
+            "distance_kpc": distance_kpc,
+            "pmra": pmra,
+            "pmdec": pmdec,
+            "rv_kms": rv_kms,
+        }
+    )
     n = ra.shape[0]
     (pos, vel), columns = _allocate(n)
     inputs = dict(ra=ra, dec=dec, d=d, pmra=pa, pmdec=pd, rv=rv)
@@ -476,7 +506,4 @@ def observables_from_galactocentric(x, y, z, vx, vy, vz, frame=None):
     ra_deg = np.degrees(ra)
     ra_deg[ra_deg < 0] += 360.0
     ra_deg[ra_deg >= 360.0] -= 360.0
-    return {"ra": ra_deg, "dec": np.degrees(dec), "distance": d, "pmra": pmra, "pmdec": pmdec,
-            "radial_velocity": rv}
-
-
+    return {"ra": ra_deg, "dec": np.degrees(dec), "distance": d, "pmra": pmra, "pmdec": pmdec, "radial_velocity": rv}

@@ -42,6 +42,19 @@ from .model import DERIVED, PARAMETERS, UNITS, predicted_observables
 from .result import OortFit
 from .sample import OortInputError, galactic_geometry
 
-__all__ = ["fit_oort", "fit_in_distance_bins", "OortFit", "OortInputError", "OortOutlierWarning",
-           "heavy_tail_outliers", "predicted_observables", "galactic_geometry", "UNCONSTRAINED_ERROR",
-           "DISPERSIONS", "MAX_BOOTSTRAP", "PARAMETERS", "UNITS", "DERIVED"]
+__all__ = [
+    "fit_oort",
+    "fit_in_distance_bins",
+    "OortFit",
+    "OortInputError",
+    "OortOutlierWarning",
+    "heavy_tail_outliers",
+    "predicted_observables",
+    "galactic_geometry",
+    "UNCONSTRAINED_ERROR",
+    "DISPERSIONS",
+    "MAX_BOOTSTRAP",
+    "PARAMETERS",
+    "UNITS",
+    "DERIVED",
+]

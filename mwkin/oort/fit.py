@@ -12,14 +12,21 @@ from astropy.table import QTable, Table
 from ..coords import K_KMS_PER_MASYR_KPC
 from ..frames import frame_or_default
 from ..units import to_value
-from .model import KMS_KPC, PARAMETERS, UNITS, derived_quantities, derived_from_samples
+from .model import KMS_KPC, PARAMETERS, UNITS, derived_from_samples, derived_quantities
 from .result import OortFit
 from .sample import STATUS, STATUS_CODE, USES, OortInputError, prepare_sample
 from .solver import bootstrap_parameters, solve, sym_apply
 
-__all__ = ["fit_oort", "fit_in_distance_bins", "OortFit", "OortInputError", "OortOutlierWarning",
-           "heavy_tail_outliers", "UNCONSTRAINED_ERROR",
-           "DISPERSIONS"]
+__all__ = [
+    "fit_oort",
+    "fit_in_distance_bins",
+    "OortFit",
+    "OortInputError",
+    "OortOutlierWarning",
+    "heavy_tail_outliers",
+    "UNCONSTRAINED_ERROR",
+    "DISPERSIONS",
+]
 
 #: A parameter whose 1-sigma error exceeds this is reported as not constrained (the data say little
 #: more than its sign): km/s/kpc for the Oort constants, km/s for the solar motion.
@@ -37,16 +44,25 @@ _FIRST_ORDER_NOTE = (
     "and 0.5 at 1 kpc, against a signal of ~6 mas/yr); compare fits in distance bins to see where it "
     "stops holding"
 )
-_FAR_NOTE = ("the distance range reaches beyond ~1 kpc, where the first-order model is no longer adequate: "
-             "the fitted values there mix the local gradients with higher-order terms")
-_PM_ONLY_NOTE = ("proper motions only: K (and the radial part of the flow) enters only through mu_b at "
-                 "|b| > 0 (its signal is K sin b cos b) and the 1/d solar-motion terms; check its error")
-_RV_ONLY_NOTE = ("radial velocities only: B does not appear in v_r and is not measured, so Omega0, dV/dR, "
-                 "V0 and kappa are not given")
-_V0_NOTE = ("V0 = R0 (A - B) is the speed of the stars' local mean flow from a first-order model, not the "
-            "circular velocity: a warm population lags it (asymmetric drift)")
-_DISPERSION_NOTE = ("the velocity dispersion is fitted by maximum likelihood, so chi2/dof is close to 1 by "
-                    "construction and is not a test of the model")
+_FAR_NOTE = (
+    "the distance range reaches beyond ~1 kpc, where the first-order model is no longer adequate: "
+    "the fitted values there mix the local gradients with higher-order terms"
+)
+_PM_ONLY_NOTE = (
+    "proper motions only: K (and the radial part of the flow) enters only through mu_b at "
+    "|b| > 0 (its signal is K sin b cos b) and the 1/d solar-motion terms; check its error"
+)
+_RV_ONLY_NOTE = (
+    "radial velocities only: B does not appear in v_r and is not measured, so Omega0, dV/dR, V0 and kappa are not given"
+)
+_V0_NOTE = (
+    "V0 = R0 (A - B) is the speed of the stars' local mean flow from a first-order model, not the "
+    "circular velocity: a warm population lags it (asymmetric drift)"
+)
+_DISPERSION_NOTE = (
+    "the velocity dispersion is fitted by maximum likelihood, so chi2/dof is close to 1 by "
+    "construction and is not a test of the model"
+)
 
 
 def _as_frame(frame):
@@ -103,9 +119,23 @@ def _potential_oort(potential, frame):
 
 
 # ---------------------------------------------------------------------- the fit
-def fit_oort(stars, frame=None, *, use="both", distance=None, distance_range=(0.0, 0.5), quality=None,
-             robust=False, clip=4.0, bootstrap=0, seed=None, bins=None, potential=None,
-             dispersion="ellipsoid", propagate_distance_errors=True):
+def fit_oort(
+    stars,
+    frame=None,
+    *,
+    use="both",
+    distance=None,
+    distance_range=(0.0, 0.5),
+    quality=None,
+    robust=False,
+    clip=4.0,
+    bootstrap=0,
+    seed=None,
+    bins=None,
+    potential=None,
+    dispersion="ellipsoid",
+    propagate_distance_errors=True,
+):
     """Fit the Oort constants and the solar motion to a stellar sample.
 
     Parameters
@@ -193,10 +223,14 @@ def fit_oort(stars, frame=None, *, use="both", distance=None, distance_range=(0.
         raise OortInputError(f"dispersion must be one of {', '.join(map(repr, DISPERSIONS))}; got {dispersion!r}")
     if use not in USES:
         raise OortInputError(f"use must be one of {', '.join(map(repr, USES))}; got {use!r}")
-    if (isinstance(bootstrap, bool) or not isinstance(bootstrap, (int, np.integer))
-            or not 0 <= bootstrap <= MAX_BOOTSTRAP):
-        raise OortInputError(f"bootstrap must be a whole number of resamples from 0 to {MAX_BOOTSTRAP}, "
-                             f"got {bootstrap!r}")
+    if (
+        isinstance(bootstrap, bool)
+        or not isinstance(bootstrap, (int, np.integer))
+        or not 0 <= bootstrap <= MAX_BOOTSTRAP
+    ):
+        raise OortInputError(
+            f"bootstrap must be a whole number of resamples from 0 to {MAX_BOOTSTRAP}, got {bootstrap!r}"
+        )
     if seed is not None:
         if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0:
             raise OortInputError(f"seed must be a whole number >= 0 or None, got {seed!r}")
@@ -209,12 +243,23 @@ def fit_oort(stars, frame=None, *, use="both", distance=None, distance_range=(0.
     opts = dict(use=use, distance=distance, quality=quality, propagate_distance_errors=propagate_distance_errors)
     prep = prepare_sample(table, distance_range=distance_range, **opts)
     lo, hi = (float(to_value(x, "kpc", "distance_range")) for x in distance_range)
-    fit = _fit_prepared(prep, frame=frame, use=use, distance=distance, distance_range=(lo, hi),
-                        robust=robust, clip=clip, bootstrap=bootstrap, seed=seed, dispersion=dispersion,
-                        potential=potential)
+    fit = _fit_prepared(
+        prep,
+        frame=frame,
+        use=use,
+        distance=distance,
+        distance_range=(lo, hi),
+        robust=robust,
+        clip=clip,
+        bootstrap=bootstrap,
+        seed=seed,
+        dispersion=dispersion,
+        potential=potential,
+    )
     if bin_edges is not None:
-        fit.bins = fit_in_distance_bins(table, bin_edges, frame=frame, robust=robust, clip=clip,
-                                        dispersion=dispersion, **opts)
+        fit.bins = fit_in_distance_bins(
+            table, bin_edges, frame=frame, robust=robust, clip=clip, dispersion=dispersion, **opts
+        )
         fit.notes.append("distance bins: where A and B drift with distance, the first-order model stops holding")
     return fit
 
@@ -242,12 +287,13 @@ def _no_stars_message(prep, distance_range):
     extra = ""
     if prep.distance_reasons:
         extra = " (no_distance: " + ", ".join(f"{k}: {v}" for k, v in prep.distance_reasons.items()) + ")"
-    return (f"no star is left to fit after the selections ({prep.n_rows} rows; left out by reason: "
-            f"{detail}{extra}; distance range {distance_range[0]:g}-{distance_range[1]:g} kpc)")
+    return (
+        f"no star is left to fit after the selections ({prep.n_rows} rows; left out by reason: "
+        f"{detail}{extra}; distance range {distance_range[0]:g}-{distance_range[1]:g} kpc)"
+    )
 
 
-def _fit_prepared(prep, *, frame, use, distance, distance_range, robust, clip, bootstrap, seed, dispersion,
-                  potential):
+def _fit_prepared(prep, *, frame, use, distance, distance_range, robust, clip, bootstrap, seed, dispersion, potential):
     if not prep.blocks:
         raise OortInputError(_no_stars_message(prep, distance_range))
     isotropic = dispersion == "isotropic"
@@ -283,10 +329,26 @@ def _fit_prepared(prep, *, frame, use, distance, distance_range, robust, clip, b
         if code and k:
             n_counts[name] = k
     notes = list(prep.notes)
-    return _build_fit(solution, blocks, candidates, status, n_counts, prep, frame=frame, use=use,
-                      distance=distance, distance_range=distance_range, robust=robust, clip=clip,
-                      n_rejected=n_rejected, bootstrap=bootstrap, seed=seed, dispersion=dispersion,
-                      potential=potential, notes=notes)
+    return _build_fit(
+        solution,
+        blocks,
+        candidates,
+        status,
+        n_counts,
+        prep,
+        frame=frame,
+        use=use,
+        distance=distance,
+        distance_range=distance_range,
+        robust=robust,
+        clip=clip,
+        n_rejected=n_rejected,
+        bootstrap=bootstrap,
+        seed=seed,
+        dispersion=dispersion,
+        potential=potential,
+        notes=notes,
+    )
 
 
 #: Most bootstrap resamples one fit runs (our choice): percentile intervals settle long before this,
@@ -367,13 +429,33 @@ def _constrained(solution):
     errors = np.sqrt(np.abs(np.diag(solution.covariance)))
     constrained = {}
     for j, name in enumerate(PARAMETERS):
-        constrained[name] = bool(not solution.null[j] and np.isfinite(errors[j])
-                                 and errors[j] <= UNCONSTRAINED_ERROR[name])
+        constrained[name] = bool(
+            not solution.null[j] and np.isfinite(errors[j]) and errors[j] <= UNCONSTRAINED_ERROR[name]
+        )
     return errors, constrained
 
 
-def _build_fit(solution, blocks, candidates, status, n_counts, prep, *, frame, use, distance, distance_range,
-               robust, clip, n_rejected, bootstrap, seed, dispersion, potential, notes):
+def _build_fit(
+    solution,
+    blocks,
+    candidates,
+    status,
+    n_counts,
+    prep,
+    *,
+    frame,
+    use,
+    distance,
+    distance_range,
+    robust,
+    clip,
+    n_rejected,
+    bootstrap,
+    seed,
+    dispersion,
+    potential,
+    notes,
+):
     p = solution.p.copy()
     cov = solution.covariance.copy()
     errors, constrained = _constrained(solution)
@@ -399,16 +481,25 @@ def _build_fit(solution, blocks, candidates, status, n_counts, prep, *, frame, u
         notes.append(_RV_ONLY_NOTE)
     loose = [name for name in PARAMETERS if not constrained[name]]
     if loose:
-        notes.append("not constrained by these data (no information, or error above the limit in "
-                     f"UNCONSTRAINED_ERROR): {', '.join(loose)}")
+        notes.append(
+            "not constrained by these data (no information, or error above the limit in "
+            f"UNCONSTRAINED_ERROR): {', '.join(loose)}"
+        )
     notes.append(_V0_NOTE)
-    notes.append(_DISPERSION_NOTE + ("" if dispersion == "isotropic" else
-                 "; the ellipsoid is aligned with the Galactic axes and constant over the sample"))
+    notes.append(
+        _DISPERSION_NOTE
+        + (
+            ""
+            if dispersion == "isotropic"
+            else "; the ellipsoid is aligned with the Galactic axes and constant over the sample"
+        )
+    )
     if hasattr(distance, "describe"):
         notes.append(f"distances: {distance.describe()}")
     if not solution.converged:
-        notes.append(f"the dispersion fit did not converge in {solution.n_iterations} iterations; treat the "
-                     "errors with care")
+        notes.append(
+            f"the dispersion fit did not converge in {solution.n_iterations} iterations; treat the errors with care"
+        )
     boot = None
     if bootstrap:
         boot = _bootstrap(blocks, solution, bootstrap, seed, frame.R0)
@@ -432,27 +523,49 @@ def _build_fit(solution, blocks, candidates, status, n_counts, prep, *, frame, u
         n_out = int(np.count_nonzero(heavy_tail_outliers(per_star["z"], used)))
         n_used = int(np.count_nonzero(used))
         if n_out >= 3 and n_out > OUTLIER_FRACTION * n_used:
-            message = (f"{n_out} of {n_used} stars ({100.0 * n_out / n_used:.2g}%) lie more than "
-                       f"{OUTLIER_SIGMA:g} robust standard deviations from the fitted model: outliers of this "
-                       "kind pull a least-squares fit (A, B and the solar motion can be far off); refit with "
-                       "robust=True to reject them by sigma clipping")
+            message = (
+                f"{n_out} of {n_used} stars ({100.0 * n_out / n_used:.2g}%) lie more than "
+                f"{OUTLIER_SIGMA:g} robust standard deviations from the fitted model: outliers of this "
+                "kind pull a least-squares fit (A, B and the solar motion can be far off); refit with "
+                "robust=True to reject them by sigma clipping"
+            )
             notes.append(message)
             warnings.warn(message, OortOutlierWarning, stacklevel=4)
     return OortFit(
-        A=float(p[0]), B=float(p[1]), C=float(p[2]), K=float(p[3]),
+        A=float(p[0]),
+        B=float(p[1]),
+        C=float(p[2]),
+        K=float(p[3]),
         solar_motion=(float(p[4]), float(p[5]), float(p[6])),
         errors={name: float(e) for name, e in zip(PARAMETERS, errors)},
-        covariance=cov, constrained=constrained,
-        sigma_intrinsic=tuple(float(s) for s in sig), sigma_intrinsic_error=tuple(float(e) for e in sig_err),
-        dispersion=dispersion, chi2=solution.chi2, dof=int(dof), n_used=int(sum(len(b) for b in blocks)),
-        n_data=int(solution.n_obs), n_dropped=n_counts, derived=derived, frame=frame,
+        covariance=cov,
+        constrained=constrained,
+        sigma_intrinsic=tuple(float(s) for s in sig),
+        sigma_intrinsic_error=tuple(float(e) for e in sig_err),
+        dispersion=dispersion,
+        chi2=solution.chi2,
+        dof=int(dof),
+        n_used=int(sum(len(b) for b in blocks)),
+        n_data=int(solution.n_obs),
+        n_dropped=n_counts,
+        derived=derived,
+        frame=frame,
         distance_choice=distance.to_dict() if hasattr(distance, "to_dict") else {"method": repr(distance)},
         distance_description=distance.describe() if hasattr(distance, "describe") else repr(distance),
-        use=use, distance_range=tuple(distance_range), notes=notes, robust=robust,
-        clip=float(clip) if robust else None, n_rejected=int(n_rejected),
-        distance_reasons=dict(prep.distance_reasons), bootstrap=boot, potential_oort=pot,
-        potential_description=pot_desc, converged=solution.converged, n_iterations=solution.n_iterations,
-        seed=seed, _per_star=per_star,
+        use=use,
+        distance_range=tuple(distance_range),
+        notes=notes,
+        robust=robust,
+        clip=float(clip) if robust else None,
+        n_rejected=int(n_rejected),
+        distance_reasons=dict(prep.distance_reasons),
+        bootstrap=boot,
+        potential_oort=pot,
+        potential_description=pot_desc,
+        converged=solution.converged,
+        n_iterations=solution.n_iterations,
+        seed=seed,
+        _per_star=per_star,
     )
 
 
@@ -487,7 +600,9 @@ def _per_star(evaluated, p, theta, status, n_rows):
         e_l, e_b, r_hat = block.basis()
         kd = K_KMS_PER_MASYR_KPC * block.distance
         comps = {
-            0: (e_l, kd), 1: (e_b, kd), 2: (r_hat, 1.0),
+            0: (e_l, kd),
+            1: (e_b, kd),
+            2: (r_hat, 1.0),
         }
         observed = {"full": (0, 1, 2), "sky": (0, 1), "los": (2,)}[block.kind]
         for c in observed:
@@ -499,8 +614,19 @@ def _per_star(evaluated, p, theta, status, n_rows):
     return {"delta": delta_out, "z": z_out, "chi2": chi2_out, "status": status, "n_data": n_data}
 
 
-def fit_in_distance_bins(stars, bins, frame=None, *, use="both", distance=None, quality=None, robust=False,
-                         clip=4.0, dispersion="ellipsoid", propagate_distance_errors=True):
+def fit_in_distance_bins(
+    stars,
+    bins,
+    frame=None,
+    *,
+    use="both",
+    distance=None,
+    quality=None,
+    robust=False,
+    clip=4.0,
+    dispersion="ellipsoid",
+    propagate_distance_errors=True,
+):
     """Fit the Oort constants separately in distance bins, to show where the first-order model holds.
 
     Parameters
@@ -527,16 +653,32 @@ def fit_in_distance_bins(stars, bins, frame=None, *, use="both", distance=None, 
     distance = _default_distance(distance)
     rows = []
     for lo, hi in edges:
-        prep = prepare_sample(table, use=use, distance=distance, distance_range=(lo, hi), quality=quality,
-                              propagate_distance_errors=propagate_distance_errors)
+        prep = prepare_sample(
+            table,
+            use=use,
+            distance=distance,
+            distance_range=(lo, hi),
+            quality=quality,
+            propagate_distance_errors=propagate_distance_errors,
+        )
         row = {"d_min": lo, "d_max": hi, "d_median": float("nan"), "n_used": prep.n_used}
         for name in PARAMETERS:
             row[name] = float("nan")
             row[f"{name}_error"] = float("nan")
         if prep.blocks:
-            fit = _fit_prepared(prep, frame=frame, use=use, distance=distance, distance_range=(lo, hi),
-                                robust=robust, clip=clip, bootstrap=0, seed=None, dispersion=dispersion,
-                                potential=None)
+            fit = _fit_prepared(
+                prep,
+                frame=frame,
+                use=use,
+                distance=distance,
+                distance_range=(lo, hi),
+                robust=robust,
+                clip=clip,
+                bootstrap=0,
+                seed=None,
+                dispersion=dispersion,
+                potential=None,
+            )
             row["n_used"] = fit.n_used
             row["d_median"] = float(np.median(np.concatenate([b.distance for b in prep.blocks])))
             for name in PARAMETERS:
@@ -550,6 +692,7 @@ def fit_in_distance_bins(stars, bins, frame=None, *, use="both", distance=None, 
         out[name].unit = u.kpc
     for name in PARAMETERS:
         out[name].unit = out[f"{name}_error"].unit = UNITS[name]
-    out.meta["note"] = ("first-order model: values that drift from bin to bin beyond their errors show where it "
-                        "stops holding")
+    out.meta["note"] = (
+        "first-order model: values that drift from bin to bin beyond their errors show where it stops holding"
+    )
     return out

@@ -28,8 +28,17 @@ import numpy as np
 from ..coords import K_KMS_PER_MASYR_KPC
 from ..units import KMS
 
-__all__ = ["PARAMETERS", "UNITS", "KMS_KPC", "DERIVED", "design_coefficients", "derived_quantities",
-           "derived_from_samples", "predicted_observables", "unit_text"]
+__all__ = [
+    "PARAMETERS",
+    "UNITS",
+    "KMS_KPC",
+    "DERIVED",
+    "design_coefficients",
+    "derived_quantities",
+    "derived_from_samples",
+    "predicted_observables",
+    "unit_text",
+]
 
 #: The fitted parameters, in the solver's order.
 PARAMETERS = ("A", "B", "C", "K", "U", "V", "W")

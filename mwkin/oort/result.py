@@ -20,6 +20,7 @@ from .sample import STATUS
 
 __all__ = ["OortFit"]
 
+
 def _finite_or_none(x):
     x = float(x)
     return x if math.isfinite(x) else None
@@ -200,14 +201,16 @@ class OortFit:
         """
         rows = []
         for name in PARAMETERS:
-            rows.append((name, self.values[name], self.errors[name], unit_text(UNITS[name]),
-                         self.constrained[name]))
+            rows.append((name, self.values[name], self.errors[name], unit_text(UNITS[name]), self.constrained[name]))
         for name, (value, error) in self.derived.items():
             rows.append((name, value, error, unit_text(DERIVED[name][1]), bool(np.isfinite(value))))
         for axis, s, e in zip("UVW", self.sigma_intrinsic, self.sigma_intrinsic_error):
             rows.append((f"sigma_{axis}", s, e, unit_text(KMS), bool(np.isfinite(e))))
-        t = Table(rows=rows, names=("parameter", "value", "error", "unit", "constrained"),
-                  dtype=(str, float, float, str, bool))
+        t = Table(
+            rows=rows,
+            names=("parameter", "value", "error", "unit", "constrained"),
+            dtype=(str, float, float, str, bool),
+        )
         if self.bootstrap is not None:
             intervals = self.bootstrap["intervals"]
             for col, idx in (("ci68_low", 0), ("ci68_high", 1), ("ci95_low", 2), ("ci95_high", 3)):
@@ -216,8 +219,10 @@ class OortFit:
 
     def summary(self):
         """A readable text block: the numbers, the sample, the settings and the caveats."""
-        lines = [f"Oort-constant fit ({self.use.replace('_', ' ')}, {self.n_used} stars, "
-                 f"{self.distance_range[0]:g} <= d < {self.distance_range[1]:g} kpc)"]
+        lines = [
+            f"Oort-constant fit ({self.use.replace('_', ' ')}, {self.n_used} stars, "
+            f"{self.distance_range[0]:g} <= d < {self.distance_range[1]:g} kpc)"
+        ]
         for name in PARAMETERS:
             value, error = self.values[name], self.errors[name]
             unit = unit_text(UNITS[name])
@@ -231,8 +236,10 @@ class OortFit:
         lines.append(f"  velocity dispersion (sigma_U, sigma_V, sigma_W) = ({sig}) km/s [{self.dispersion}]")
         if self.potential_oort is not None:
             pot = self.potential_oort
-            lines.append(f"  potential ({self.potential_description}): A = {pot['A']:.2f}, B = {pot['B']:.2f} "
-                         f"km/s/kpc at R = {pot['R_kpc']:.3f} kpc")
+            lines.append(
+                f"  potential ({self.potential_description}): A = {pot['A']:.2f}, B = {pot['B']:.2f} "
+                f"km/s/kpc at R = {pot['R_kpc']:.3f} kpc"
+            )
         lines.append(f"  chi2 / dof = {self.chi2:.1f} / {self.dof}")
         dropped = ", ".join(f"{k}: {v}" for k, v in self.n_dropped.items()) or "none"
         lines.append(f"  rows left out: {dropped}")
@@ -244,8 +251,10 @@ class OortFit:
         if self.bins is not None:
             lines.append("  distance bins:")
             for row in self.bins:
-                lines.append(f"    {row['d_min']:.2f}-{row['d_max']:.2f} kpc ({row['n_used']} stars): "
-                             f"A = {_fmt(row['A'], row['A_error'])}, B = {_fmt(row['B'], row['B_error'])}")
+                lines.append(
+                    f"    {row['d_min']:.2f}-{row['d_max']:.2f} kpc ({row['n_used']} stars): "
+                    f"A = {_fmt(row['A'], row['A_error'])}, B = {_fmt(row['B'], row['B_error'])}"
+                )
         lines.append("Caveats:")
         lines.extend(f"  - {note}" for note in self.notes)
         return "\n".join(lines)
@@ -256,18 +265,27 @@ class OortFit:
     # ------------------------------------------------------------------ serialisation
     def to_dict(self):
         """JSON-able dictionary (non-finite numbers as None). Per-star residuals are not included."""
+
         def clean(seq):
             return [_finite_or_none(x) for x in seq]
 
         bins = None
         if self.bins is not None:
-            bins = [{name: (_finite_or_none(row[name]) if name not in ("n_used",) else int(row[name]))
-                     for name in self.bins.colnames} for row in self.bins]
+            bins = [
+                {
+                    name: (_finite_or_none(row[name]) if name not in ("n_used",) else int(row[name]))
+                    for name in self.bins.colnames
+                }
+                for row in self.bins
+            ]
         boot = None
         if self.bootstrap is not None:
-            boot = {"n": self.bootstrap["n"], "seed": self.bootstrap["seed"],
-                    "samples": [clean(row) for row in self.bootstrap["samples"]],
-                    "intervals": {k: clean(v) for k, v in self.bootstrap["intervals"].items()}}
+            boot = {
+                "n": self.bootstrap["n"],
+                "seed": self.bootstrap["seed"],
+                "samples": [clean(row) for row in self.bootstrap["samples"]],
+                "intervals": {k: clean(v) for k, v in self.bootstrap["intervals"].items()},
+            }
         return {
             "parameters": {k: _finite_or_none(v) for k, v in self.values.items()},
             "errors": {k: _finite_or_none(v) for k, v in self.errors.items()},
@@ -294,9 +312,14 @@ class OortFit:
             "n_rejected": int(self.n_rejected),
             "bootstrap": boot,
             "bins": bins,
-            "potential_oort": (None if self.potential_oort is None else
-                               {k: (_finite_or_none(v) if isinstance(v, (int, float)) else v)
-                                for k, v in self.potential_oort.items()}),
+            "potential_oort": (
+                None
+                if self.potential_oort is None
+                else {
+                    k: (_finite_or_none(v) if isinstance(v, (int, float)) else v)
+                    for k, v in self.potential_oort.items()
+                }
+            ),
             "potential_description": self.potential_description,
             "converged": bool(self.converged),
             "n_iterations": int(self.n_iterations),
@@ -309,34 +332,60 @@ class OortFit:
         params = {k: _from_none(v) for k, v in data["parameters"].items()}
         boot = data.get("bootstrap")
         if boot is not None:
-            boot = {"n": boot["n"], "seed": boot["seed"],
-                    "samples": np.array([[_from_none(x) for x in row] for row in boot["samples"]]),
-                    "intervals": {k: [_from_none(x) for x in v] for k, v in boot["intervals"].items()}}
+            boot = {
+                "n": boot["n"],
+                "seed": boot["seed"],
+                "samples": np.array([[_from_none(x) for x in row] for row in boot["samples"]]),
+                "intervals": {k: [_from_none(x) for x in v] for k, v in boot["intervals"].items()},
+            }
         bins = data.get("bins")
         if bins is not None:
-            bins = Table(rows=[[_from_none(r[c]) if c != "n_used" else r[c] for c in bins[0]] for r in bins],
-                         names=list(bins[0])) if bins else None
+            bins = (
+                Table(
+                    rows=[[_from_none(r[c]) if c != "n_used" else r[c] for c in bins[0]] for r in bins],
+                    names=list(bins[0]),
+                )
+                if bins
+                else None
+            )
         pot = data.get("potential_oort")
         if pot is not None:
             pot = {k: (_from_none(v) if (v is None or isinstance(v, (int, float))) else v) for k, v in pot.items()}
         return cls(
-            A=params["A"], B=params["B"], C=params["C"], K=params["K"],
+            A=params["A"],
+            B=params["B"],
+            C=params["C"],
+            K=params["K"],
             solar_motion=(params["U"], params["V"], params["W"]),
             errors={k: _from_none(v) for k, v in data["errors"].items()},
             covariance=np.array([[_from_none(x) for x in row] for row in data["covariance"]]),
             constrained=dict(data["constrained"]),
             sigma_intrinsic=tuple(_from_none(x) for x in data["sigma_intrinsic_kms"]),
             sigma_intrinsic_error=tuple(_from_none(x) for x in data["sigma_intrinsic_error_kms"]),
-            dispersion=data["dispersion"], chi2=_from_none(data["chi2"]), dof=data["dof"],
-            n_used=data["n_used"], n_data=data["n_data"], n_dropped=dict(data["n_dropped"]),
+            dispersion=data["dispersion"],
+            chi2=_from_none(data["chi2"]),
+            dof=data["dof"],
+            n_used=data["n_used"],
+            n_data=data["n_data"],
+            n_dropped=dict(data["n_dropped"]),
             derived={k: tuple(_from_none(x) for x in v) for k, v in data["derived"].items()},
-            frame=SolarFrame.from_dict(data["frame"]), distance_choice=dict(data["distance_choice"]),
-            distance_description=data["distance_description"], use=data["use"],
-            distance_range=tuple(data["distance_range_kpc"]), notes=list(data["notes"]),
-            robust=data["robust"], clip=data["clip"], n_rejected=data["n_rejected"],
-            distance_reasons=dict(data.get("distance_reasons", {})), bootstrap=boot, bins=bins,
-            potential_oort=pot, potential_description=data.get("potential_description", ""),
-            converged=data["converged"], n_iterations=data["n_iterations"], seed=data.get("seed"),
+            frame=SolarFrame.from_dict(data["frame"]),
+            distance_choice=dict(data["distance_choice"]),
+            distance_description=data["distance_description"],
+            use=data["use"],
+            distance_range=tuple(data["distance_range_kpc"]),
+            notes=list(data["notes"]),
+            robust=data["robust"],
+            clip=data["clip"],
+            n_rejected=data["n_rejected"],
+            distance_reasons=dict(data.get("distance_reasons", {})),
+            bootstrap=boot,
+            bins=bins,
+            potential_oort=pot,
+            potential_description=data.get("potential_description", ""),
+            converged=data["converged"],
+            n_iterations=data["n_iterations"],
+            seed=data.get("seed"),
         )
 
 

@@ -20,8 +20,16 @@ from ..coords import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC
 from ..units import to_value
 from .solver import CHUNK, Block
 
-__all__ = ["STATUS", "STATUS_CODE", "USES", "OortInputError", "Prepared", "prepare_sample", "galactic_geometry",
-           "sky_motions"]
+__all__ = [
+    "STATUS",
+    "STATUS_CODE",
+    "USES",
+    "OortInputError",
+    "Prepared",
+    "prepare_sample",
+    "galactic_geometry",
+    "sky_motions",
+]
 
 
 class OortInputError(ValueError):
@@ -61,9 +69,9 @@ class Prepared:
     """Stars grouped for the solver plus the bookkeeping of the rows left out."""
 
     blocks: list
-    status: np.ndarray            # int8 per input row, see STATUS
+    status: np.ndarray  # int8 per input row, see STATUS
     n_rows: int
-    distance_reasons: dict        # DistanceResult counts (reason -> rows) among rows without a distance
+    distance_reasons: dict  # DistanceResult counts (reason -> rows) among rows without a distance
     notes: list = field(default_factory=list)
 
     def counts(self):
@@ -305,19 +313,24 @@ def prepare_sample(table, *, use, distance, distance_range, quality=None, propag
         drop(~(pm_ok | rv_ok), "no_error")
         n_rv_no_err = int(np.count_nonzero((status == 0) & has_rv & ~rv_err_ok & pm_ok))
         if n_rv_no_err:
-            notes.append(f"{n_rv_no_err} stars have a radial velocity without an uncertainty; only their "
-                         "proper motions were used")
+            notes.append(
+                f"{n_rv_no_err} stars have a radial velocity without an uncertainty; only their "
+                "proper motions were used"
+            )
         want_pm, want_rv = pm_ok, rv_ok
         if not np.any(rv_ok & (status == 0)):
-            notes.append("no star in the selection has a radial velocity: use='both' fitted the proper "
-                         "motions only")
+            notes.append("no star in the selection has a radial velocity: use='both' fitted the proper motions only")
 
     if use != "radial_velocities" and not has_pm_err:
-        notes.append("no proper-motion uncertainties (pmra_error, pmdec_error): the weights come from the "
-                     "fitted velocity dispersion alone")
+        notes.append(
+            "no proper-motion uncertainties (pmra_error, pmdec_error): the weights come from the "
+            "fitted velocity dispersion alone"
+        )
     if use != "proper_motions" and has_rv_col and not has_rv_err:
-        notes.append("no radial-velocity uncertainties (radial_velocity_error): the weights come from the "
-                     "fitted velocity dispersion alone")
+        notes.append(
+            "no radial-velocity uncertainties (radial_velocity_error): the weights come from the "
+            "fitted velocity dispersion alone"
+        )
 
     kinds = {
         "full": (status == 0) & want_pm & want_rv,
@@ -328,14 +341,26 @@ def prepare_sample(table, *, use, distance, distance_range, quality=None, propag
     if propagate_distance_errors and derr is None:
         notes.append("the distance choice gives no distance uncertainties: they are not propagated")
     from_parallax = getattr(result, "parameter", None) == "parallax"
-    ctx = dict(ra=ra_all, dec=dec_all, table=table, d=d_all,
-               pmra=pmra, pmdec=pmdec, rv=rv, pm_err_a=pm_err_a, pm_err_d=pm_err_d, rv_err=rv_err, derr=derr,
-               from_parallax=from_parallax, result=result)
+    ctx = dict(
+        ra=ra_all,
+        dec=dec_all,
+        table=table,
+        d=d_all,
+        pmra=pmra,
+        pmdec=pmdec,
+        rv=rv,
+        pm_err_a=pm_err_a,
+        pm_err_d=pm_err_d,
+        rv_err=rv_err,
+        derr=derr,
+        from_parallax=from_parallax,
+        result=result,
+    )
     blocks = []
     for kind, mask in kinds.items():
         rows = np.flatnonzero(mask)
         for start in range(0, len(rows), CHUNK):
-            blocks.append(_make_block(kind, rows[start:start + CHUNK], ctx))
+            blocks.append(_make_block(kind, rows[start : start + CHUNK], ctx))
     return Prepared(blocks=blocks, status=status, n_rows=n, distance_reasons=distance_reasons, notes=notes)
 
 
@@ -390,8 +415,25 @@ def _make_block(kind, rows, ctx):
             cov_dd = -d * d * r_d * plx_err * ctx["pm_err_d"][rows]
             cov_ld = kd * (c1 * cov_ad + c2 * cov_dd)
             cov_bd = kd * (-c2 * cov_ad + c1 * cov_dd)
-    return Block(kind=kind, rows=rows, x=x, y=y, sl=sl, cl=cl, sb=sb, cb=cb, u=vel, distance=d,
-                 e_ll=e_ll, e_lb=e_lb, e_bb=e_bb, e_rr=e_rr, var_d=var_d, cov_ld=cov_ld, cov_bd=cov_bd)
+    return Block(
+        kind=kind,
+        rows=rows,
+        x=x,
+        y=y,
+        sl=sl,
+        cl=cl,
+        sb=sb,
+        cb=cb,
+        u=vel,
+        distance=d,
+        e_ll=e_ll,
+        e_lb=e_lb,
+        e_bb=e_bb,
+        e_rr=e_rr,
+        var_d=var_d,
+        cov_ld=cov_ld,
+        cov_bd=cov_bd,
+    )
 
 
 def _corr(table, name, rows):

@@ -154,13 +154,28 @@ class Block:
 
     def subset(self, keep):
         """A new block with only the stars selected by ``keep`` (bool mask, indices or slice)."""
+
         def pick(a):
             return None if a is None else a[keep]
+
         return Block(
-            kind=self.kind, rows=self.rows[keep], x=self.x[keep], y=self.y[keep], sl=self.sl[keep],
-            cl=self.cl[keep], sb=self.sb[keep], cb=self.cb[keep], u=self.u[:, keep],
-            distance=self.distance[keep], e_ll=pick(self.e_ll), e_lb=pick(self.e_lb), e_bb=pick(self.e_bb),
-            e_rr=pick(self.e_rr), var_d=pick(self.var_d), cov_ld=pick(self.cov_ld), cov_bd=pick(self.cov_bd),
+            kind=self.kind,
+            rows=self.rows[keep],
+            x=self.x[keep],
+            y=self.y[keep],
+            sl=self.sl[keep],
+            cl=self.cl[keep],
+            sb=self.sb[keep],
+            cb=self.cb[keep],
+            u=self.u[:, keep],
+            distance=self.distance[keep],
+            e_ll=pick(self.e_ll),
+            e_lb=pick(self.e_lb),
+            e_bb=pick(self.e_bb),
+            e_rr=pick(self.e_rr),
+            var_d=pick(self.var_d),
+            cov_ld=pick(self.cov_ld),
+            cov_bd=pick(self.cov_bd),
         )
 
     @property
@@ -222,16 +237,22 @@ class Block:
         e_l, e_b, r_hat = self.basis()
         if self.kind == "full":
             c_vec = self.cov_ld * e_l + self.cov_bd * e_b
-            return np.stack([e0[n] + self.var_d * g[a] * g[b] + c_vec[a] * g[b] + g[a] * c_vec[b]
-                             for n, (a, b) in enumerate(_PAIRS)])
+            return np.stack(
+                [
+                    e0[n] + self.var_d * g[a] * g[b] + c_vec[a] * g[b] + g[a] * c_vec[b]
+                    for n, (a, b) in enumerate(_PAIRS)
+                ]
+            )
         if self.kind == "sky":
             g_l = np.einsum("ij,ij->j", g, e_l)
             g_b = np.einsum("ij,ij->j", g, e_b)
-            return np.stack([
-                e0[0] + self.var_d * g_l * g_l + 2.0 * self.cov_ld * g_l,
-                e0[1] + self.var_d * g_l * g_b + self.cov_ld * g_b + self.cov_bd * g_l,
-                e0[2] + self.var_d * g_b * g_b + 2.0 * self.cov_bd * g_b,
-            ])
+            return np.stack(
+                [
+                    e0[0] + self.var_d * g_l * g_l + 2.0 * self.cov_ld * g_l,
+                    e0[1] + self.var_d * g_l * g_b + self.cov_ld * g_b + self.cov_bd * g_l,
+                    e0[2] + self.var_d * g_b * g_b + 2.0 * self.cov_bd * g_b,
+                ]
+            )
         g_r = np.einsum("ij,ij->j", g, r_hat)
         return (e0[0] + self.var_d * g_r * g_r)[None, :]
 
@@ -256,11 +277,13 @@ class Block:
             cl2 = self.cl * self.cl
             sl2 = 1.0 - cl2
             sb2 = self.sb * self.sb
-            return np.stack([
-                cov[0] + tu * sl2 + tv * cl2,
-                cov[1] + (tu - tv) * self.sb * self.sl * self.cl,
-                cov[2] + sb2 * (tu * cl2 + tv * sl2) + tw * (1.0 - sb2),
-            ])
+            return np.stack(
+                [
+                    cov[0] + tu * sl2 + tv * cl2,
+                    cov[1] + (tu - tv) * self.sb * self.sl * self.cl,
+                    cov[2] + sb2 * (tu * cl2 + tv * sl2) + tw * (1.0 - sb2),
+                ]
+            )
         _, _, r_hat = self.basis()
         return (cov[0] + tu * r_hat[0] ** 2 + tv * r_hat[1] ** 2 + tw * r_hat[2] ** 2)[None, :]
 
@@ -302,6 +325,7 @@ class Block:
 
             def quad(v):
                 return np.einsum("ij,ij->j", sym_apply(s, v), v)
+
             return quad(e_l), quad(e_b), quad(r_hat)
         if self.kind == "sky":
             return s[0], s[2], nan
@@ -424,19 +448,19 @@ class Solution:
 
     p: np.ndarray
     covariance: np.ndarray
-    null: np.ndarray             # bool per parameter: no information (value and error undefined)
-    theta: np.ndarray            # sigma_U^2, sigma_V^2, sigma_W^2, (km/s)^2
+    null: np.ndarray  # bool per parameter: no information (value and error undefined)
+    theta: np.ndarray  # sigma_U^2, sigma_V^2, sigma_W^2, (km/s)^2
     theta_covariance: np.ndarray
-    theta_free: np.ndarray       # bool: ellipsoid axis seen by the data
+    theta_free: np.ndarray  # bool: ellipsoid axis seen by the data
     chi2: float
     loglike: float
     n_obs: int
     n_iterations: int
     converged: bool
     isotropic: bool
-    weights_theta: np.ndarray | None = None                   # the ellipsoid ``weights`` were made with
-    covs: list = field(repr=False, default_factory=list)      # per block: measurement covariance used
-    weights: list = field(repr=False, default_factory=list)   # per block: (Wt, ln det S) at the solution
+    weights_theta: np.ndarray | None = None  # the ellipsoid ``weights`` were made with
+    covs: list = field(repr=False, default_factory=list)  # per block: measurement covariance used
+    weights: list = field(repr=False, default_factory=list)  # per block: (Wt, ln det S) at the solution
 
 
 def _linear_step(blocks, covs, theta):
@@ -518,7 +542,7 @@ def solve(blocks, *, isotropic=False, theta0=None, p0=None, max_iter=50, tol=1e-
     p_used = p
     floor = 1e-8
     converged = False
-    for iteration in range(1, max_iter + 1):
+    for iteration in range(1, max_iter + 1):  # noqa: B007 (the count is reported after the loop)
         lin, weights = _linear_step(blocks, covs, theta)
         p = lin.p
         score, fisher, m2ll, quad = _dispersion_step(blocks, weights, p, isotropic, free)
@@ -551,9 +575,20 @@ def solve(blocks, *, isotropic=False, theta0=None, p0=None, max_iter=50, tol=1e-
         theta_cov = np.full((3, 3), theta_cov[0, 0])
     theta_cov = np.where(np.outer(free, free), theta_cov, np.nan)
     return Solution(
-        p=p, covariance=lin.covariance, null=lin.null, theta=theta, theta_covariance=theta_cov,
-        theta_free=free, chi2=float(quad), loglike=float(-0.5 * m2ll), n_obs=int(n_obs),
-        n_iterations=iteration, converged=converged, isotropic=isotropic, weights_theta=theta_at_p, covs=covs,
+        p=p,
+        covariance=lin.covariance,
+        null=lin.null,
+        theta=theta,
+        theta_covariance=theta_cov,
+        theta_free=free,
+        chi2=float(quad),
+        loglike=float(-0.5 * m2ll),
+        n_obs=int(n_obs),
+        n_iterations=iteration,
+        converged=converged,
+        isotropic=isotropic,
+        weights_theta=theta_at_p,
+        covs=covs,
         weights=weights,
     )
 

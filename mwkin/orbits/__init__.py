@@ -36,16 +36,25 @@ coarse grids, chunked runs), :mod:`~mwkin.orbits.orbitset` (:class:`OrbitSet`),
 from __future__ import annotations
 
 from .flags import (
-           ADVISORY_FLAGS,
-           FLAGS,
-           PARAMETERS,
-           OrbitCancelled,
-           OrbitError,
-           TimeGridError,
+    ADVISORY_FLAGS,
+    FLAGS,
+    PARAMETERS,
+    OrbitCancelled,
+    OrbitError,
+    TimeGridError,
 )
 from .integrate import integrate_orbits
 from .orbitset import OrbitSet
 from .parameters import orbit_parameters
 
-__all__ = ["integrate_orbits", "orbit_parameters", "OrbitSet", "OrbitError", "TimeGridError", "OrbitCancelled",
-           "FLAGS", "ADVISORY_FLAGS", "PARAMETERS"]
+__all__ = [
+    "integrate_orbits",
+    "orbit_parameters",
+    "OrbitSet",
+    "OrbitError",
+    "TimeGridError",
+    "OrbitCancelled",
+    "FLAGS",
+    "ADVISORY_FLAGS",
+    "PARAMETERS",
+]

@@ -18,18 +18,18 @@ FLAGS = {
     "cancelled": "not computed because the run was cancelled",
     "overflow": "finite input too large for float64 arithmetic (|x| or |v| near 1e154 or more)",
     "on_z_axis": "starts on the z axis (R <= 1e-9 r or R <= 1e-9 kpc): phi is undefined there and galpy's "
-                 "integrator stalls",
+    "integrator stalls",
     "radial_through_centre": "starts in the mid-plane with |z|, |v_z|, |v_phi| <= 1e-9 r, |v|: it falls straight "
-                             "through the centre, where galpy's integrator stalls",
+    "through the centre, where galpy's integrator stalls",
     "integration_timeout": "the integration of this star alone exceeded the time limit and was stopped",
     "coarse_time_grid": "the output step is too coarse to resolve rperi, rapo or zmax (values kept; see Notes of "
-                        "integrate_orbits)",
+    "integrate_orbits)",
     "short_time_grid": "the integration does not cover a pericentre, an apocentre and a vertical turning point "
-                       "(values kept; they are extremes of an arc, not of the orbit)",
+    "(values kept; they are extremes of an arc, not of the orbit)",
     "staeckel_unphysical": "the Staeckel approximation gave an impossible value (zmax < 0, rperi > rapo or e outside "
-                           "[0, 1]); set to NaN",
+    "[0, 1]); set to NaN",
     "staeckel_unreliable": "outside the validity tested for the Staeckel approximation (|Lz| < 0.2 R |v| or e > 0.7); "
-                           "values kept, use method='integrate'",
+    "values kept, use method='integrate'",
 }
 
 #: Flags that keep the star's values (they qualify them); every other flag comes with NaN values.
@@ -75,5 +75,3 @@ class OrbitCancelled(Exception):
         self.partial = partial
         self.done = done
         self.total = total
-
-

@@ -63,7 +63,8 @@ def _as_table(stars):
         return QTable({name: arr[:, i] for i, name in enumerate(_CARTESIAN)})
     raise OrbitError(
         "stars must be a Table (observables or x y z vx vy vz), a dict of columns, or an array of shape "
-        f"(6,) or (N, 6) with x y z [kpc] vx vy vz [km/s]; got {type(stars).__name__} of shape {arr.shape}")
+        f"(6,) or (N, 6) with x y z [kpc] vx vy vz [km/s]; got {type(stars).__name__} of shape {arr.shape}"
+    )
 
 
 def _non_numeric(values, what, unit):
@@ -91,8 +92,10 @@ def _as_float_rows(stars):
                     np.asarray(arr[:, k], dtype=float)
                 except (TypeError, ValueError):
                     raise _non_numeric(arr[:, k], f"stars column {k} ({name!r})", unit) from None
-        raise OrbitError("stars: expected numbers x y z [kpc] vx vy vz [km/s] in an array of shape (6,) or "
-                         f"(N, 6); got {type(stars).__name__} that is not numeric") from None
+        raise OrbitError(
+            "stars: expected numbers x y z [kpc] vx vy vz [km/s] in an array of shape (6,) or "
+            f"(N, 6); got {type(stars).__name__} that is not numeric"
+        ) from None
 
 
 def _phase_space(stars, frame, need_cov=False, distance=None):
@@ -110,6 +113,7 @@ def _phase_space(stars, frame, need_cov=False, distance=None):
         source = "phase space"
     elif {"ra", "dec"} <= names:
         from .. import kinematics
+
         errors = "linear" if need_cov else "none"
         kwargs = dict(frame=frame, errors=errors)
         if distance is not None:
@@ -121,8 +125,10 @@ def _phase_space(stars, frame, need_cov=False, distance=None):
         names = set(table.colnames)
     else:
         missing = [c for c in _CARTESIAN if c not in names]
-        raise OrbitError(f"stars need either Galactocentric columns x y z vx vy vz (missing: {missing}) "
-                         "or observables (ra, dec, parallax or distance, pmra, pmdec, radial_velocity)")
+        raise OrbitError(
+            f"stars need either Galactocentric columns x y z vx vy vz (missing: {missing}) "
+            "or observables (ra, dec, parallax or distance, pmra, pmdec, radial_velocity)"
+        )
     n = len(table)
     if n == 0:
         raise OrbitError("stars: the table has no rows")
@@ -130,9 +136,15 @@ def _phase_space(stars, frame, need_cov=False, distance=None):
     for i, (name, unit) in enumerate(zip(_CARTESIAN, _CART_UNITS)):
         col = table[name]
         try:
-            value = col if isinstance(col, u.Quantity) else (
-                np.asarray(col, dtype=float) * u.Unit(col.unit) if getattr(col, "unit", None)
-                else np.asarray(col, dtype=float))
+            value = (
+                col
+                if isinstance(col, u.Quantity)
+                else (
+                    np.asarray(col, dtype=float) * u.Unit(col.unit)
+                    if getattr(col, "unit", None)
+                    else np.asarray(col, dtype=float)
+                )
+            )
         except (TypeError, ValueError):
             raise _non_numeric(col, f"column {name!r}", unit) from None
         if hasattr(value, "mask"):
@@ -150,9 +162,11 @@ def _phase_space(stars, frame, need_cov=False, distance=None):
     cov = None
     if need_cov:
         if "cov_galactocentric" not in names:
-            raise OrbitError("n_samples > 0 needs uncertainties: give observables with their errors, or a "
-                             "phase-space table with a 'cov_galactocentric' column of shape (N, 6, 6) "
-                             "(x..vz in kpc and km/s)")
+            raise OrbitError(
+                "n_samples > 0 needs uncertainties: give observables with their errors, or a "
+                "phase-space table with a 'cov_galactocentric' column of shape (N, 6, 6) "
+                "(x..vz in kpc and km/s)"
+            )
         cov = np.asarray(getattr(table["cov_galactocentric"], "value", table["cov_galactocentric"]), dtype=float)
         if cov.shape != (n, 6, 6):
             raise OrbitError(f"column 'cov_galactocentric' must have shape ({n}, 6, 6), got {cov.shape}")
@@ -162,8 +176,9 @@ def _phase_space(stars, frame, need_cov=False, distance=None):
 
 def _check_potential(pot):
     if not isinstance(pot, Potential):
-        raise OrbitError(f"pot must be a mwkin Potential (Potential.preset, three_component or from_galpy), "
-                         f"got {type(pot).__name__}")
+        raise OrbitError(
+            f"pot must be a mwkin Potential (Potential.preset, three_component or from_galpy), got {type(pot).__name__}"
+        )
     return pot
 
 
@@ -181,7 +196,9 @@ def _time_grid(t):
     if t.ndim != 1 or t.size < 2:
         raise TimeGridError(f"t must be a 1-D array of at least 2 times (Gyr), got shape {t.shape}")
     if not np.all(np.isfinite(t)):
-        raise TimeGridError(f"t must be finite (Gyr); non-finite at indices {np.flatnonzero(~np.isfinite(t))[:5].tolist()}")
+        raise TimeGridError(
+            f"t must be finite (Gyr); non-finite at indices {np.flatnonzero(~np.isfinite(t))[:5].tolist()}"
+        )
     span = abs(t[-1] - t[0])
     if span == 0:
         raise TimeGridError("t must not be constant: the step is zero")
@@ -195,8 +212,8 @@ def _time_grid(t):
         tol = max(tol, 4.0 * float(np.finfo(dtype).eps) * float(np.max(np.abs(t))))
     off = np.flatnonzero(np.abs(dt - step) > tol)
     if off.size:
-        raise TimeGridError(f"t must be evenly spaced (step {step:g} Gyr); step {dt[off[0]]:g} Gyr between "
-                            f"indices {off[0]} and {off[0] + 1}; use numpy.linspace(0, t_end, n)")
+        raise TimeGridError(
+            f"t must be evenly spaced (step {step:g} Gyr); step {dt[off[0]]:g} Gyr between "
+            f"indices {off[0]} and {off[0] + 1}; use numpy.linspace(0, t_end, n)"
+        )
     return t
-
-

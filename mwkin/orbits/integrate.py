@@ -26,8 +26,19 @@ from .screening import (
 
 
 # --------------------------------------------------------------------------------------- integration
-def integrate_orbits(stars_or_phase_space, pot, frame=None, *, t, distance=None, numcores=None, progress=None,
-                     cancel=None, chunk_size=None, timeout=None):
+def integrate_orbits(
+    stars_or_phase_space,
+    pot,
+    frame=None,
+    *,
+    t,
+    distance=None,
+    numcores=None,
+    progress=None,
+    cancel=None,
+    chunk_size=None,
+    timeout=None,
+):
     """Integrate the orbits of one star or many in a potential.
 
     Parameters
@@ -115,8 +126,9 @@ def integrate_orbits(stars_or_phase_space, pot, frame=None, *, t, distance=None,
     def work(idx):
         nonlocal track
         chunk_limit, star_limit = _timeouts(timeout, len(idx), t)
-        out, method, stopped = _galpy.integrate(pot._model, ps.cyl[idx], t, numcores=numcores,
-                                                timeout=chunk_limit, star_timeout=star_limit)
+        out, method, stopped = _galpy.integrate(
+            pot._model, ps.cyl[idx], t, numcores=numcores, timeout=chunk_limit, star_timeout=star_limit
+        )
         method_used["method"] = method
         timed_out[idx] = stopped
         if track is None:
@@ -124,8 +136,13 @@ def integrate_orbits(stars_or_phase_space, pot, frame=None, *, t, distance=None,
         else:
             track[idx] = out
 
-    done, remaining = _run_chunks(usable, _chunk_size(chunk_size, usable.size or 1), work,
-                                  _progress_in_stars(progress, n, n - usable.size), cancel)
+    done, remaining = _run_chunks(
+        usable,
+        _chunk_size(chunk_size, usable.size or 1),
+        work,
+        _progress_in_stars(progress, n, n - usable.size),
+        cancel,
+    )
     if track is None:
         track = np.full((n, nt, 6), np.nan)
     for i in remaining:
@@ -150,12 +167,30 @@ def integrate_orbits(stars_or_phase_space, pot, frame=None, *, t, distance=None,
             for i in resolved[_coarse_grid(pot, ps.cyl[resolved], track[resolved], t)]:
                 ps.flags[i].append("coarse_time_grid")
     meta = _base_meta(pot, ps.frame, ps)
-    meta.update({"method": "integrate", "integrator": method_used.get("method", _galpy.INTEGRATOR),
-                 "t_end_gyr": float(t[-1]), "n_times": int(nt),
-                 "parameter_definition": "extremes over the output times; r spherical"})
-    result = OrbitSet(t=t * u.Gyr, cylindrical=track, rperi=rperi * u.kpc, rapo=rapo * u.kpc, zmax=zmax * u.kpc,
-                      eccentricity=ecc * u.dimensionless_unscaled, energy=energy * KMS**2, Lz=lz * u.kpc * KMS,
-                      flags=_flag_strings(ps.flags), frame=ps.frame, potential=pot, meta=meta, ids=ps.ids)
+    meta.update(
+        {
+            "method": "integrate",
+            "integrator": method_used.get("method", _galpy.INTEGRATOR),
+            "t_end_gyr": float(t[-1]),
+            "n_times": int(nt),
+            "parameter_definition": "extremes over the output times; r spherical",
+        }
+    )
+    result = OrbitSet(
+        t=t * u.Gyr,
+        cylindrical=track,
+        rperi=rperi * u.kpc,
+        rapo=rapo * u.kpc,
+        zmax=zmax * u.kpc,
+        eccentricity=ecc * u.dimensionless_unscaled,
+        energy=energy * KMS**2,
+        Lz=lz * u.kpc * KMS,
+        flags=_flag_strings(ps.flags),
+        frame=ps.frame,
+        potential=pot,
+        meta=meta,
+        ids=ps.ids,
+    )
     if remaining.size:
         raise OrbitCancelled(result, int(n - remaining.size), n)
     return result
@@ -166,5 +201,3 @@ def _progress_in_stars(progress, total, already):
     if progress is None:
         return None
     return lambda done, _total: progress(int(done + already), int(total))
-
-

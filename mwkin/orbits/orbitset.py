@@ -140,7 +140,8 @@ class OrbitSet:
             ("x", x * u.kpc, "Galactocentric x (astropy axes; Sun near -R0)"),
             ("y", y * u.kpc, "Galactocentric y (direction of rotation at the Sun)"),
             ("z", z * u.kpc, "Galactocentric z (toward the north Galactic pole)"),
-            ("vx", vx * KMS, "Galactocentric vx"), ("vy", vy * KMS, "Galactocentric vy"),
+            ("vx", vx * KMS, "Galactocentric vx"),
+            ("vy", vy * KMS, "Galactocentric vy"),
             ("vz", vz * KMS, "Galactocentric vz"),
             ("R", c[:, 0] * u.kpc, "cylindrical radius"),
             ("phi", c[:, 1] * u.rad, "azimuth atan2(y, -x), increasing with rotation"),
@@ -155,15 +156,19 @@ class OrbitSet:
 
     # --------------------------------------------------------------- summaries
     def _provenance(self):
-        return {"frame": self.frame.describe(), "potential": self.potential.describe(),
-                "method": self.meta.get("method"), "integrator": self.meta.get("integrator")}
+        return {
+            "frame": self.frame.describe(),
+            "potential": self.potential.describe(),
+            "method": self.meta.get("method"),
+            "integrator": self.meta.get("integrator"),
+        }
 
     def table(self):
         """One row per star: orbital parameters and flag (QTable; meta carries the provenance)."""
         table = QTable(meta={**self._provenance(), **{k: v for k, v in self.meta.items() if np.isscalar(v)}})
         if self.ids is not None:
             table["source_id"] = self.ids
-        for name, (unit, description) in PARAMETERS.items():
+        for name, (_unit, description) in PARAMETERS.items():
             table[name] = getattr(self, name)
             table[name].info.description = description
         table["flag"] = self.flags
@@ -201,13 +206,17 @@ class OrbitSet:
         """Inverse of :meth:`to_dict` (with tracks)."""
         if "cylindrical" not in data:
             raise OrbitError("from_dict needs the tracks: export with to_dict(include_tracks=True)")
-        params = {name: np.asarray(data["parameters"][name], dtype=float) * PARAMETERS[name][0]
-                  for name in PARAMETERS}
-        return cls(t=np.asarray(data["t_gyr"], dtype=float) * u.Gyr,
-                   cylindrical=np.asarray(data["cylindrical"], dtype=float), **params,
-                   flags=np.asarray(data["flags"], dtype=str), frame=SolarFrame.from_dict(data["frame"]),
-                   potential=Potential.from_dict(data["potential"]), meta=dict(data.get("meta", {})),
-                   ids=np.asarray(data["ids"]) if "ids" in data else None)
+        params = {name: np.asarray(data["parameters"][name], dtype=float) * PARAMETERS[name][0] for name in PARAMETERS}
+        return cls(
+            t=np.asarray(data["t_gyr"], dtype=float) * u.Gyr,
+            cylindrical=np.asarray(data["cylindrical"], dtype=float),
+            **params,
+            flags=np.asarray(data["flags"], dtype=str),
+            frame=SolarFrame.from_dict(data["frame"]),
+            potential=Potential.from_dict(data["potential"]),
+            meta=dict(data.get("meta", {})),
+            ids=np.asarray(data["ids"]) if "ids" in data else None,
+        )
 
 
 def _jsonable(obj):
@@ -236,5 +245,3 @@ def _base_meta(pot, frame, ps):
 def _energy_lz(pot, cyl):
     energy = _galpy.energy_kms2(pot._model, cyl)
     return energy, cyl[:, 0] * cyl[:, 4]
-
-

@@ -31,8 +31,13 @@ __all__ = ["orbit_parameters", "draw_phase_space_samples", "span_parameters"]
 
 # --------------------------------------------------------------------------------------- parameters
 #: Per-star marks returned by the parameter blocks -> the flag they become.
-_BLOCK_FLAGS = (("unphysical", "staeckel_unphysical"), ("timed_out", "integration_timeout"),
-                ("unreliable", "staeckel_unreliable"), ("coarse", "coarse_time_grid"), ("short", "short_time_grid"))
+_BLOCK_FLAGS = (
+    ("unphysical", "staeckel_unphysical"),
+    ("timed_out", "integration_timeout"),
+    ("unreliable", "staeckel_unreliable"),
+    ("coarse", "coarse_time_grid"),
+    ("short", "short_time_grid"),
+)
 
 #: Staeckel validity limits (see the Notes of :func:`orbit_parameters`): |Lz| / (R |v|) below the first,
 #: or eccentricity above the second, flags "staeckel_unreliable".
@@ -54,8 +59,13 @@ def _staeckel_block(pot, cyl):
         for k in out:
             out[k][ok] = res[k]
     with np.errstate(invalid="ignore"):
-        unphysical = ((out["zmax"] < 0) | (out["rperi"] < 0) | (out["rperi"] > out["rapo"])
-                      | (out["eccentricity"] < 0) | (out["eccentricity"] > 1))
+        unphysical = (
+            (out["zmax"] < 0)
+            | (out["rperi"] < 0)
+            | (out["rperi"] > out["rapo"])
+            | (out["eccentricity"] < 0)
+            | (out["eccentricity"] > 1)
+        )
         for k in ("eccentricity", "zmax", "rperi", "rapo"):
             out[k][unphysical] = np.nan
         speed = np.sqrt(np.sum(cyl[:, 3:] ** 2, axis=1))
@@ -69,8 +79,9 @@ def _staeckel_block(pot, cyl):
 
 def _integrated_block(pot, cyl, t, numcores, timeout):
     chunk_limit, star_limit = _timeouts(timeout, len(cyl), t)
-    track, method, timed_out = _galpy.integrate(pot._model, cyl, t, numcores=numcores, timeout=chunk_limit,
-                                                star_timeout=star_limit)
+    track, method, timed_out = _galpy.integrate(
+        pot._model, cyl, t, numcores=numcores, timeout=chunk_limit, star_timeout=star_limit
+    )
     finite = np.all(np.isfinite(track), axis=(1, 2))
     rperi, rapo, zmax, ecc = _parameters_from_tracks(track)
     out = {"rperi": rperi, "rapo": rapo, "zmax": zmax, "eccentricity": ecc}
@@ -140,17 +151,27 @@ def draw_phase_space_samples(phase_space, covariance, n_samples, seed=None):
     if cov.ndim == 2:
         cov = cov[None, :, :]
     if xyz.ndim != 2 or xyz.shape[1] != 6:
-        raise OrbitError(f"phase_space must have shape (6,) or (M, 6) (x, y, z, vx, vy, vz), got {np.shape(phase_space)}")
+        raise OrbitError(
+            f"phase_space must have shape (6,) or (M, 6) (x, y, z, vx, vy, vz), got {np.shape(phase_space)}"
+        )
     if cov.shape != (len(xyz), 6, 6):
-        raise OrbitError(f"covariance must have shape (6, 6) or ({len(xyz)}, 6, 6) to go with the phase space, "
-                         f"got {np.shape(covariance)}")
-    if (isinstance(n_samples, bool) or not isinstance(n_samples, (int, float, np.integer, np.floating))
-            or not n_samples >= 1 or int(n_samples) != n_samples):
+        raise OrbitError(
+            f"covariance must have shape (6, 6) or ({len(xyz)}, 6, 6) to go with the phase space, "
+            f"got {np.shape(covariance)}"
+        )
+    if (
+        isinstance(n_samples, bool)
+        or not isinstance(n_samples, (int, float, np.integer, np.floating))
+        or not n_samples >= 1
+        or int(n_samples) != n_samples
+    ):
         raise OrbitError(f"n_samples must be a whole number >= 1, got {n_samples!r}")
     bad = np.flatnonzero(~(np.all(np.isfinite(xyz), axis=1) & np.all(np.isfinite(cov), axis=(1, 2))))
     if bad.size:
-        raise OrbitError(f"star {int(bad[0])} has a non-finite phase space or covariance ({bad.size} star(s) in "
-                         "all): no uncertainty to draw from")
+        raise OrbitError(
+            f"star {int(bad[0])} has a non-finite phase space or covariance ({bad.size} star(s) in "
+            "all): no uncertainty to draw from"
+        )
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
     return _draw_samples(xyz, cov, int(n_samples), rng)
 
@@ -186,8 +207,7 @@ def span_parameters(orbit_sets):
         raise OrbitError("span_parameters needs at least one OrbitSet")
     n = len(sets[0])
     if any(len(s) != n for s in sets):
-        raise OrbitError(f"span_parameters: the orbit sets hold different numbers of stars "
-                         f"({[len(s) for s in sets]})")
+        raise OrbitError(f"span_parameters: the orbit sets hold different numbers of stars ({[len(s) for s in sets]})")
     tracks = np.concatenate([s.cylindrical for s in sets], axis=1)
     values = dict(zip(("rperi", "rapo", "zmax", "eccentricity"), _parameters_from_tracks(tracks)))
     missing = np.zeros(n, dtype=bool)
@@ -211,8 +231,21 @@ def span_parameters(orbit_sets):
     return table
 
 
-def orbit_parameters(stars_or_phase_space, pot, frame=None, method="staeckel", t=None, n_samples=0, seed=None,
-                     progress=None, cancel=None, chunk_size=None, numcores=None, distance=None, timeout=None):
+def orbit_parameters(
+    stars_or_phase_space,
+    pot,
+    frame=None,
+    method="staeckel",
+    t=None,
+    n_samples=0,
+    seed=None,
+    progress=None,
+    cancel=None,
+    chunk_size=None,
+    numcores=None,
+    distance=None,
+    timeout=None,
+):
     """Orbital parameters of many stars: rperi, rapo, zmax, eccentricity, energy, Lz.
 
     Parameters
@@ -300,12 +333,17 @@ def orbit_parameters(stars_or_phase_space, pot, frame=None, method="staeckel", t
     if method not in ("staeckel", "integrate"):
         raise OrbitError(f"method must be 'staeckel' or 'integrate', got {method!r}")
     if method == "staeckel" and not pot.is_axisymmetric:
-        raise OrbitError(f"the Staeckel approximation needs an axisymmetric potential; {pot.name} is not. "
-                         "Use method='integrate'")
+        raise OrbitError(
+            f"the Staeckel approximation needs an axisymmetric potential; {pot.name} is not. Use method='integrate'"
+        )
     if int(n_samples) != n_samples or n_samples < 0:
         raise OrbitError(f"n_samples must be a non-negative integer, got {n_samples!r}")
     n_samples = int(n_samples)
-    grid = _time_grid(t if t is not None else np.linspace(0.0, *_DEFAULT_PARAMETER_GRID)) if method == "integrate" else None
+    grid = (
+        _time_grid(t if t is not None else np.linspace(0.0, *_DEFAULT_PARAMETER_GRID))
+        if method == "integrate"
+        else None
+    )
     if method == "integrate":
         _timeouts(timeout, 1, grid)  # validate before any work
     ps = _phase_space(stars_or_phase_space, frame, need_cov=n_samples > 0, distance=distance)
@@ -326,9 +364,12 @@ def orbit_parameters(stars_or_phase_space, pot, frame=None, method="staeckel", t
     def compute(cyl):
         parts = []
         for start in range(0, len(cyl), block):
-            sub = cyl[start:start + block]
-            parts.append(_staeckel_block(pot, sub) if method == "staeckel" else
-                         _integrated_block(pot, sub, grid, numcores, timeout))
+            sub = cyl[start : start + block]
+            parts.append(
+                _staeckel_block(pot, sub)
+                if method == "staeckel"
+                else _integrated_block(pot, sub, grid, numcores, timeout)
+            )
         return {k: np.concatenate([p[k] for p in parts]) for k in parts[0]}
 
     def work(idx):
@@ -393,11 +434,12 @@ def orbit_parameters(stars_or_phase_space, pot, frame=None, method="staeckel", t
             ps.flags[i].extend(reason for reason in sorted(ADVISORY_FLAGS) if reason in marks and marks[reason][i])
     table = _parameter_table(result, bands if n_samples else None, n_used if n_samples else None, ps, method)
     meta = _base_meta(pot, ps.frame, ps)
-    meta.update({"method": method, "frame": ps.frame.describe(), "potential": pot.describe(),
-                 "n_samples": n_samples})
+    meta.update({"method": method, "frame": ps.frame.describe(), "potential": pot.describe(), "n_samples": n_samples})
     if method == "staeckel":
-        meta["staeckel"] = ("galpy actionAngleStaeckel (C); delta per star from Sanders (2012) eq. 9, "
-                            "vectorised as galpy's estimateDeltaStaeckel")
+        meta["staeckel"] = (
+            "galpy actionAngleStaeckel (C); delta per star from Sanders (2012) eq. 9, "
+            "vectorised as galpy's estimateDeltaStaeckel"
+        )
     else:
         meta.update({"integrator": _galpy.INTEGRATOR, "t_end_gyr": float(grid[-1]), "n_times": int(grid.size)})
     table.meta.update(meta)

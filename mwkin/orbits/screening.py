@@ -36,8 +36,13 @@ def _screen_singular(ps):
         # r^2 and v^2 must exist too: galpy squares them, and v ~ 1e200 stalled its integrator.
         overflow = ~on_axis & ~(np.all(np.isfinite(cyl), axis=1) & np.isfinite(r * r) & np.isfinite(v * v))
         z, v_z, v_phi = cyl[:, 2], cyl[:, 5], cyl[:, 4]
-        radial = (~on_axis & ~overflow & (np.abs(z) <= _AXIS_TOL * r) & (np.abs(v_z) <= _AXIS_TOL * v)
-                  & (np.abs(v_phi) <= _AXIS_TOL * v))
+        radial = (
+            ~on_axis
+            & ~overflow
+            & (np.abs(z) <= _AXIS_TOL * r)
+            & (np.abs(v_z) <= _AXIS_TOL * v)
+            & (np.abs(v_phi) <= _AXIS_TOL * v)
+        )
     for i in np.flatnonzero(ps.usable & on_axis):
         ps.flags[i].append("on_z_axis")
     for i in np.flatnonzero(ps.usable & overflow):
@@ -127,10 +132,11 @@ def _coarse_grid(pot, cyl0, track, t):
                 else:
                     # d2r/dt2 = (|v|^2 - (dr/dt)^2 + x . a) / r, with x . a = R a_R + z a_z
                     rdot = (wR[maybe] * vR[maybe] + wz[maybe] * vz[maybe]) / rr[maybe]
-                    accel = (vR[maybe]**2 + vphi[maybe]**2 + vz[maybe]**2 - rdot**2
-                             + wR[maybe] * f_R + wz[maybe] * f_z) / rr[maybe]
+                    accel = (
+                        vR[maybe] ** 2 + vphi[maybe] ** 2 + vz[maybe] ** 2 - rdot**2 + wR[maybe] * f_R + wz[maybe] * f_z
+                    ) / rr[maybe]
                 accel = sign * accel * _KMS_TO_KPC_PER_GYR**2
-                parabola = np.where(accel < 0, rate[maybe]**2 / (2.0 * np.abs(accel)), np.inf)
+                parabola = np.where(accel < 0, rate[maybe] ** 2 / (2.0 * np.abs(accel)), np.inf)
                 beyond[maybe] = np.fmin(beyond[maybe], parabola)
             should = np.full(n, -np.inf)
             np.maximum.at(should, star, values[star, when] + beyond)
@@ -181,7 +187,7 @@ def _run_chunks(indices, chunk_size, work, progress, cancel):
     for start in range(0, n, max(step, 1)):
         if _cancelled(cancel):
             return done, indices[start:]
-        chunk = indices[start:start + step]
+        chunk = indices[start : start + step]
         work(chunk)
         done += len(chunk)
         if progress is not None:
@@ -195,5 +201,3 @@ def _chunk_size(chunk_size, default):
     if int(chunk_size) != chunk_size or chunk_size < 1:
         raise OrbitError(f"chunk_size must be a positive integer, got {chunk_size!r}")
     return int(chunk_size)
-
-

@@ -34,6 +34,16 @@ from .presets import (
     UnknownPotentialError,
 )
 
-__all__ = ["Potential", "PotentialError", "UnknownPotentialError", "NotSerialisableError", "OortConstants",
-           "PresetInfo", "DEFAULT_BULGE", "DEFAULT_DISC", "DEFAULT_HALO", "MAX_PLAUSIBLE_VC_KMS",
-           "sun_inplane_radius"]
+__all__ = [
+    "Potential",
+    "PotentialError",
+    "UnknownPotentialError",
+    "NotSerialisableError",
+    "OortConstants",
+    "PresetInfo",
+    "DEFAULT_BULGE",
+    "DEFAULT_DISC",
+    "DEFAULT_HALO",
+    "MAX_PLAUSIBLE_VC_KMS",
+    "sun_inplane_radius",
+]

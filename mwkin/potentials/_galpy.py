@@ -68,9 +68,9 @@ def _potential_module():
     with warnings.catch_warnings():
         # galpy announces optional C extensions it did not build (e.g. the torus mapper) at import.
         warnings.simplefilter("ignore")
-        import galpy.potential as gp
-        import galpy.orbit  # noqa: F401  (imported here so its notices are silenced too)
         import galpy.actionAngle  # noqa: F401
+        import galpy.orbit  # noqa: F401  (imported here so its notices are silenced too)
+        import galpy.potential as gp
 
     return gp
 
@@ -248,7 +248,7 @@ PRESET_BUILDERS = {
 }
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def _build_preset(name):
     attr, labels = PRESET_BUILDERS[name]
     with _lock, np.errstate(all="ignore"), warnings.catch_warnings():
@@ -344,12 +344,15 @@ def model_from_galpy(pot, ro=None, vo=None):
         raise TypeError(f"expected a 3D galpy potential (or a list/sum of them), got {type(pot).__name__}")
     first = components[0]
     own_ro, own_vo = float(first._ro), float(first._vo)
-    for given, own, flag, label, unit in ((ro, own_ro, first._roSet, "ro", "kpc"),
-                                          (vo, own_vo, first._voSet, "vo", "km/s")):
+    for given, own, flag, label, unit in (
+        (ro, own_ro, first._roSet, "ro", "kpc"),
+        (vo, own_vo, first._voSet, "vo", "km/s"),
+    ):
         if given is not None and flag and not math.isclose(float(given), own, rel_tol=1e-12):
             raise ValueError(
                 f"{label}={given} {unit} contradicts the {label}={own} {unit} this galpy potential was built "
-                f"with; its parameters are stored in those units, so pass {label}={own} or leave it out")
+                f"with; its parameters are stored in those units, so pass {label}={own} or leave it out"
+            )
     ro = own_ro if ro is None else float(ro)
     vo = own_vo if vo is None else float(vo)
     if not (ro > 0 and vo > 0 and math.isfinite(ro) and math.isfinite(vo)):
@@ -581,7 +584,7 @@ def integrate(model, w, t_gyr, numcores=None, timeout=None, star_timeout=None):
     per_star = timeout if star_timeout is None else star_timeout
     for i in range(n):
         try:
-            track[i] = _guarded(lambda: run(w[i:i + 1]), per_star)[0]
+            track[i] = _guarded(lambda: run(w[i : i + 1]), per_star)[0]  # noqa: B023 (called at once, inside the iteration)
         except IntegrationTimeout:
             timed_out[i] = True
     return track, method, timed_out
@@ -607,11 +610,16 @@ def estimate_delta(model, R_kpc, z_kpc, delta0=1e-6):
     includes_scf = any(isinstance(c, (gp.SCFPotential, gp.DiskSCFPotential)) for c in model.components)
     kw = dict(use_physical=False)
     with _quiet():
-        delta2 = z**2 - R**2 + (
-            3.0 * R * gp.evaluatezforces(pot, R, z, **kw)
-            - 3.0 * z * gp.evaluateRforces(pot, R, z, **kw)
-            + R * z * (gp.evaluateR2derivs(pot, R, z, **kw) - gp.evaluatez2derivs(pot, R, z, **kw))
-        ) / gp.evaluateRzderivs(pot, R, z, **kw)
+        delta2 = (
+            z**2
+            - R**2
+            + (
+                3.0 * R * gp.evaluatezforces(pot, R, z, **kw)
+                - 3.0 * z * gp.evaluateRforces(pot, R, z, **kw)
+                + R * z * (gp.evaluateR2derivs(pot, R, z, **kw) - gp.evaluatez2derivs(pot, R, z, **kw))
+            )
+            / gp.evaluateRzderivs(pot, R, z, **kw)
+        )
         small = (delta2 < delta0**2) & ((delta2 > -1e-10) | includes_scf)
         delta2 = np.where(small, delta0**2, delta2)
         return np.sqrt(delta2) * model.ro

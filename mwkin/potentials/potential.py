@@ -9,7 +9,6 @@ import astropy.units as u
 import numpy as np
 from astropy.table import QTable
 
-from . import _galpy
 from .._validate import (
     check_keys,
     is_plain,
@@ -19,6 +18,7 @@ from .._validate import (
     warn_implausible,
 )
 from ..units import KMS, to_value
+from . import _galpy
 from .presets import (
     _DEFAULTS,
     _FREQ,
@@ -51,12 +51,20 @@ class OortConstants:
 
     def to_dict(self):
         """JSON-able dict with units in the keys."""
+
         def plain(q):
             v = q.value
             return v.tolist() if np.ndim(v) else float(v)
-        return {"R_kpc": plain(self.R), "vc_kms": plain(self.vc), "dvc_dR_kms_per_kpc": plain(self.dvc_dR),
-                "A_kms_per_kpc": plain(self.A), "B_kms_per_kpc": plain(self.B),
-                "Omega_kms_per_kpc": plain(self.Omega), "kappa_kms_per_kpc": plain(self.kappa)}
+
+        return {
+            "R_kpc": plain(self.R),
+            "vc_kms": plain(self.vc),
+            "dvc_dR_kms_per_kpc": plain(self.dvc_dR),
+            "A_kms_per_kpc": plain(self.A),
+            "B_kms_per_kpc": plain(self.B),
+            "Omega_kms_per_kpc": plain(self.Omega),
+            "kappa_kms_per_kpc": plain(self.kappa),
+        }
 
 
 class Potential:
@@ -104,8 +112,14 @@ class Potential:
         if name not in _PRESETS:
             raise UnknownPotentialError(f"unknown potential preset {name!r}; known: {', '.join(_PRESETS)}")
         model, labels = _galpy.preset_model(name)
-        return cls(model, name=name, citation=_PRESETS[name].citation, kind="preset",
-                   component_names=labels, spec={"kind": "preset", "name": name})
+        return cls(
+            model,
+            name=name,
+            citation=_PRESETS[name].citation,
+            kind="preset",
+            component_names=labels,
+            spec={"kind": "preset", "name": name},
+        )
 
     @staticmethod
     def presets():
@@ -157,12 +171,19 @@ class Potential:
     def _three_component(cls, given, name, defaults):
         """three_component with the defaults to use per component (None entries: all required)."""
         name = text(name, "name", PotentialError)
-        params = {label: _component_params(label, given[label], defaults.get(label), label)
-                  for label in ("bulge", "disc", "halo")}
+        params = {
+            label: _component_params(label, given[label], defaults.get(label), label)
+            for label in ("bulge", "disc", "halo")
+        }
         model = _galpy.three_component_model(**params)
-        return cls(model, name=name, citation="", kind="three_component",
-                   component_names=("bulge", "disc", "halo"),
-                   spec={"kind": "three_component", "name": name, **params})
+        return cls(
+            model,
+            name=name,
+            citation="",
+            kind="three_component",
+            component_names=("bulge", "disc", "halo"),
+            spec={"kind": "three_component", "name": name, **params},
+        )
 
     @classmethod
     def from_galpy(cls, pot, ro=None, vo=None, name=None, component_names=None, citation=""):
@@ -196,8 +217,13 @@ class Potential:
         names = component_names or [type(c).__name__ for c in model.components]
         if len(names) != len(model.components):
             raise PotentialError(f"{len(names)} component names for {len(model.components)} components")
-        return cls(model, name=name or " + ".join(type(c).__name__ for c in model.components),
-                   citation=citation, kind="galpy", component_names=names)
+        return cls(
+            model,
+            name=name or " + ".join(type(c).__name__ for c in model.components),
+            citation=citation,
+            kind="galpy",
+            component_names=names,
+        )
 
     def scaled_to(self, vc, R=8.0):
         """The same model with all masses scaled so that the circular velocity at ``R`` is ``vc``.
@@ -230,16 +256,24 @@ class Potential:
         if not (vc > 0 and R > 0 and math.isfinite(vc * R)):
             raise PotentialError(f"scaled_to needs a positive vc (km/s) and R (kpc), got vc={vc}, R={R}")
         if is_plain(vc_given) and vc > MAX_PLAUSIBLE_VC_KMS:
-            warn_implausible(f"vc = {vc:g} km/s (plain number, taken in km/s) is implausibly large for a "
-                             f"circular velocity (expected about 200-260 km/s); was it given in m/s?")
+            warn_implausible(
+                f"vc = {vc:g} km/s (plain number, taken in km/s) is implausibly large for a "
+                f"circular velocity (expected about 200-260 km/s); was it given in m/s?"
+            )
         base = self._unscaled_model()
         now2 = float(base.vc2_kms2(R))
         if not now2 > 0:
             raise PotentialError(f"the circular velocity at R = {R} kpc is not real (vc^2 = {now2} km^2/s^2)")
         factor = vc**2 / now2
-        return Potential(base.scaled(factor), name=self.name, citation=self.citation, kind=self.kind,
-                         component_names=self.component_names, spec=self._spec,
-                         scale={"vc_kms": vc, "R_kpc": R, "factor": factor})
+        return Potential(
+            base.scaled(factor),
+            name=self.name,
+            citation=self.citation,
+            kind=self.kind,
+            component_names=self.component_names,
+            spec=self._spec,
+            scale={"vc_kms": vc, "R_kpc": R, "factor": factor},
+        )
 
     def _unscaled_model(self):
         if self._scale is None:
@@ -263,7 +297,8 @@ class Potential:
         if self._spec is None:
             raise NotSerialisableError(
                 f"potential {self.name!r} was built from a galpy object and has no JSON form; "
-                "rebuild it in code, or use a preset or Potential.three_component")
+                "rebuild it in code, or use a preset or Potential.three_component"
+            )
         out = {k: (dict(v) if isinstance(v, dict) else v) for k, v in self._spec.items()}
         if self._scale is not None:
             out["scaled_to"] = {"vc_kms": self._scale["vc_kms"], "R_kpc": self._scale["R_kpc"]}
@@ -296,8 +331,7 @@ class Potential:
             check_keys(data, "preset", PotentialError, required=("name",))
             pot = cls.preset(text(data["name"], "name", PotentialError))
         elif kind == "three_component":
-            check_keys(data, "three_component", PotentialError, required=("bulge", "disc", "halo"),
-                       optional=("name",))
+            check_keys(data, "three_component", PotentialError, required=("bulge", "disc", "halo"), optional=("name",))
             name = data.pop("name", "bulge + disc + halo")
             pot = cls._three_component(data, name, {})
         else:
@@ -305,8 +339,10 @@ class Potential:
         if scale is not None:
             scale = require_mapping(scale, "scaled_to", PotentialError)
             check_keys(scale, "scaled_to", PotentialError, required={"vc_kms": "km/s", "R_kpc": "kpc"})
-            pot = pot.scaled_to(real_number(scale["vc_kms"], "scaled_to.vc_kms", "km/s", PotentialError),
-                                real_number(scale["R_kpc"], "scaled_to.R_kpc", "kpc", PotentialError))
+            pot = pot.scaled_to(
+                real_number(scale["vc_kms"], "scaled_to.vc_kms", "km/s", PotentialError),
+                real_number(scale["R_kpc"], "scaled_to.R_kpc", "kpc", PotentialError),
+            )
         return pot
 
     def describe(self):
@@ -316,10 +352,15 @@ class Potential:
             parts.append(f"({self.citation})")
         if self.kind == "three_component":
             b, d, h = (self._spec[k] for k in ("bulge", "disc", "halo"))
-            bulge = (f"{b['model']} bulge {b['mass']:.4g} Msun" + (f", cut-off {b['cutoff']:g} kpc, alpha {b['alpha']:g}"
-                     if b["model"] == "power_law_cutoff" else f", a {b['scale']:g} kpc"))
-            parts.append(f"[{bulge}; MN disc {d['mass']:.4g} Msun, a {d['a']:g}, b {d['b']:g} kpc; "
-                         f"NFW halo M_s {h['mass']:.4g} Msun, a {h['scale']:g} kpc]")
+            bulge = f"{b['model']} bulge {b['mass']:.4g} Msun" + (
+                f", cut-off {b['cutoff']:g} kpc, alpha {b['alpha']:g}"
+                if b["model"] == "power_law_cutoff"
+                else f", a {b['scale']:g} kpc"
+            )
+            parts.append(
+                f"[{bulge}; MN disc {d['mass']:.4g} Msun, a {d['a']:g}, b {d['b']:g} kpc; "
+                f"NFW halo M_s {h['mass']:.4g} Msun, a {h['scale']:g} kpc]"
+            )
         if self._scale is not None:
             parts.append(f"scaled to vc({self._scale['R_kpc']:g} kpc) = {self._scale['vc_kms']:g} km/s")
         parts.append(f"galpy units ro={self._model.ro:g} kpc, vo={self._model.vo:.6g} km/s")
@@ -426,8 +467,15 @@ class Potential:
         B = -0.5 * (vc / R + dvc)
         kappa = self._model.epicycle_frequency(R)
         kappa = float(kappa) if np.ndim(R) == 0 else kappa
-        return OortConstants(R=R * u.kpc, vc=vc * KMS, dvc_dR=dvc * _FREQ, A=A * _FREQ, B=B * _FREQ,
-                             Omega=(vc / R) * _FREQ, kappa=kappa * _FREQ)
+        return OortConstants(
+            R=R * u.kpc,
+            vc=vc * KMS,
+            dvc_dR=dvc * _FREQ,
+            A=A * _FREQ,
+            B=B * _FREQ,
+            Omega=(vc / R) * _FREQ,
+            kappa=kappa * _FREQ,
+        )
 
     def epicycle_frequency(self, R):
         """Radial epicycle frequency kappa at mid-plane radius R (kpc), km/s/kpc."""
@@ -459,8 +507,10 @@ class Potential:
     def describe_zero_point(self):
         """Text stating the energy zero point used for this model."""
         value, how = self._model.potential_at_infinity_kms2()
-        return (f"galpy's potential zero point for {self.name}; Phi(infinity) = {value:.6g} km^2/s^2 "
-                f"(evaluated at {how}); bound orbits have E < Phi(infinity)")
+        return (
+            f"galpy's potential zero point for {self.name}; Phi(infinity) = {value:.6g} km^2/s^2 "
+            f"(evaluated at {how}); bound orbits have E < Phi(infinity)"
+        )
 
     def escape_speed(self, R, z=0.0, r_max=None):
         """Speed needed to escape from (R, z).
@@ -517,9 +567,14 @@ class Potential:
         R_sun = sun_inplane_radius(frame)
         vc = float(self.vcirc(R_sun).value)
         v_phi = float(frame.v_sun[1])
-        return {"R_sun_inplane_kpc": R_sun, "vc_at_sun_kms": vc, "v_phi_sun_kms": v_phi,
-                "v_phi_sun_minus_vc_kms": v_phi - vc, "potential_ro_kpc": self._model.ro,
-                "potential_vo_kms": self._model.vo}
+        return {
+            "R_sun_inplane_kpc": R_sun,
+            "vc_at_sun_kms": vc,
+            "v_phi_sun_kms": v_phi,
+            "v_phi_sun_minus_vc_kms": v_phi - vc,
+            "potential_ro_kpc": self._model.ro,
+            "potential_vo_kms": self._model.vo,
+        }
 
 
 def sun_inplane_radius(frame):

@@ -8,12 +8,12 @@ from dataclasses import dataclass
 
 import astropy.units as u
 
-from . import _galpy
 from .._validate import (
     real_number,
     require_mapping,
 )
 from ..units import KMS
+from . import _galpy
 
 _FREQ = KMS / u.kpc
 _KMS2 = KMS**2
@@ -46,21 +46,31 @@ class PresetInfo:
 _PRESETS = {
     p.name: p
     for p in [
-        PresetInfo("MWPotential2014",
-                   "power-law bulge with cut-off, Miyamoto-Nagai disc, NFW halo; vc(8 kpc) = 220 km/s",
-                   "Bovy 2015, ApJS 216, 29"),
-        PresetInfo("McMillan17",
-                   "thin and thick stellar discs, HI and H2 gas discs, axisymmetric bulge, NFW halo",
-                   "McMillan 2017, MNRAS 465, 76"),
-        PresetInfo("Cautun20",
-                   "discs, bulge and circumgalactic medium with an adiabatically contracted NFW halo",
-                   "Cautun et al. 2020, MNRAS 494, 4291"),
-        PresetInfo("Irrgang13I",
-                   "Plummer bulge, Miyamoto-Nagai disc, Allen & Santillan halo (model I)",
-                   "Irrgang et al. 2013, A&A 549, A137"),
-        PresetInfo("DehnenBinney98I",
-                   "bulge, ISM and stellar discs, flattened two-power halo (model 1)",
-                   "Dehnen & Binney 1998, MNRAS 294, 429"),
+        PresetInfo(
+            "MWPotential2014",
+            "power-law bulge with cut-off, Miyamoto-Nagai disc, NFW halo; vc(8 kpc) = 220 km/s",
+            "Bovy 2015, ApJS 216, 29",
+        ),
+        PresetInfo(
+            "McMillan17",
+            "thin and thick stellar discs, HI and H2 gas discs, axisymmetric bulge, NFW halo",
+            "McMillan 2017, MNRAS 465, 76",
+        ),
+        PresetInfo(
+            "Cautun20",
+            "discs, bulge and circumgalactic medium with an adiabatically contracted NFW halo",
+            "Cautun et al. 2020, MNRAS 494, 4291",
+        ),
+        PresetInfo(
+            "Irrgang13I",
+            "Plummer bulge, Miyamoto-Nagai disc, Allen & Santillan halo (model I)",
+            "Irrgang et al. 2013, A&A 549, A137",
+        ),
+        PresetInfo(
+            "DehnenBinney98I",
+            "bulge, ISM and stellar discs, flattened two-power halo (model 1)",
+            "Dehnen & Binney 1998, MNRAS 294, 429",
+        ),
     ]
 }
 assert set(_PRESETS) == set(_galpy.PRESET_BUILDERS)
@@ -69,7 +79,8 @@ assert set(_PRESETS) == set(_galpy.PRESET_BUILDERS)
 #: physical units (galpy's definition with ro = 8 kpc, vo = 220 km/s), so the defaults give vc(8 kpc) = 220 km/s.
 #: Read-only, so no caller can change the defaults for the rest of the process (``dict(...)`` copies).
 DEFAULT_BULGE = types.MappingProxyType(
-    {"model": "power_law_cutoff", "mass": 4.501365375e9, "alpha": 1.8, "cutoff": 1.9})
+    {"model": "power_law_cutoff", "mass": 4.501365375e9, "alpha": 1.8, "cutoff": 1.9}
+)
 DEFAULT_DISC = types.MappingProxyType({"mass": 6.819390278e10, "a": 3.0, "b": 0.28})
 DEFAULT_HALO = types.MappingProxyType({"mass": 4.368332485e11, "scale": 16.0})
 _DEFAULTS = {"bulge": DEFAULT_BULGE, "disc": DEFAULT_DISC, "halo": DEFAULT_HALO}
@@ -100,8 +111,9 @@ def _component_params(kind, given, defaults, label):
     given = require_mapping(given, label, PotentialError)
     if label == "bulge":
         if "model" not in given and defaults is None:
-            raise PotentialError("bulge: missing required key(s) 'model' (one of "
-                                 f"{', '.join(repr(m) for m in _BULGE_MODELS)})")
+            raise PotentialError(
+                f"bulge: missing required key(s) 'model' (one of {', '.join(repr(m) for m in _BULGE_MODELS)})"
+            )
         model = given.pop("model", None if defaults is None else defaults.get("model"))
         if not isinstance(model, str) or model not in _BULGE_MODELS:
             raise PotentialError(f"bulge model must be 'power_law_cutoff' or 'hernquist', got {model!r}")
@@ -132,5 +144,3 @@ def _component_params(kind, given, defaults, label):
 
 def _column_name(label):
     return "vc_" + "".join(ch if ch.isalnum() else "_" for ch in label)
-
-

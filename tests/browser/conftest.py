@@ -16,9 +16,8 @@ import os
 import pathlib
 import re
 
-import pytest
-
 import labtools
+import pytest
 
 
 def _missing(reason: str):
@@ -60,8 +59,10 @@ def _delete_kernels_after_test(request):
 def browser():
     """Headless Debian chromium driven by Playwright's sync API."""
     if not pathlib.Path(labtools.CHROMIUM).exists():
-        _missing(f"{labtools.CHROMIUM} not found: install Debian's chromium "
-                 "(apt-get install chromium; `make test` does this as root)")
+        _missing(
+            f"{labtools.CHROMIUM} not found: install Debian's chromium "
+            "(apt-get install chromium; `make test` does this as root)"
+        )
     try:
         from playwright.sync_api import sync_playwright
     except ImportError:
@@ -93,8 +94,7 @@ def page(browser, request):
             route.abort()
 
     def watch_websockets(new_page):
-        new_page.on("websocket",
-                    lambda ws: None if labtools.is_local_url(ws.url) else blocked.append(ws.url))
+        new_page.on("websocket", lambda ws: None if labtools.is_local_url(ws.url) else blocked.append(ws.url))
 
     context = browser.new_context(viewport={"width": 1280, "height": 1000})
     context.set_default_timeout(60_000)
@@ -112,5 +112,4 @@ def page(browser, request):
     finally:
         context.close()
     if blocked:
-        pytest.fail("the page tried to reach outside hosts (aborted): " + ", ".join(blocked[:10]),
-                    pytrace=False)
+        pytest.fail("the page tried to reach outside hosts (aborted): " + ", ".join(blocked[:10]), pytrace=False)

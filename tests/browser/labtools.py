@@ -185,7 +185,9 @@ def start_lab() -> Lab:
         PYDEVD_DISABLE_FILE_VALIDATION="1",
     )
     cmd = [
-        sys.executable, "-m", "jupyterlab",
+        sys.executable,
+        "-m",
+        "jupyterlab",
         "--no-browser",
         "--allow-root",
         "--ServerApp.ip=127.0.0.1",
@@ -204,12 +206,23 @@ def start_lab() -> Lab:
     log_path = home / "server.log"
     log = open(log_path, "wb")  # noqa: SIM115 - the child writes to it for the whole session
     process = subprocess.Popen(
-        cmd, cwd=root_dir, env=env, stdout=log, stderr=subprocess.STDOUT,
-        stdin=subprocess.DEVNULL, start_new_session=True,
+        cmd,
+        cwd=root_dir,
+        env=env,
+        stdout=log,
+        stderr=subprocess.STDOUT,
+        stdin=subprocess.DEVNULL,
+        start_new_session=True,
     )
     log.close()
-    lab = Lab(base_url=f"http://127.0.0.1:{port}/", token=token, root_dir=root_dir,
-              process=process, home=home, log_path=log_path)
+    lab = Lab(
+        base_url=f"http://127.0.0.1:{port}/",
+        token=token,
+        root_dir=root_dir,
+        process=process,
+        home=home,
+        log_path=log_path,
+    )
 
     deadline = time.monotonic() + START_TIMEOUT_S
     while True:
@@ -222,8 +235,7 @@ def start_lab() -> Lab:
             pass
         if time.monotonic() > deadline:
             stop_lab(lab)
-            raise LabError(f"JupyterLab did not answer within {START_TIMEOUT_S:.0f} s:\n"
-                           f"{lab.log_tail()}")
+            raise LabError(f"JupyterLab did not answer within {START_TIMEOUT_S:.0f} s:\n{lab.log_tail()}")
         time.sleep(0.25)
 
 
@@ -264,6 +276,7 @@ def stop_lab(lab: Lab) -> None:
 
 # --- notebooks -------------------------------------------------------------------------------
 
+
 def write_notebook(lab: Lab, name: str, cells: list[str]) -> str:
     """Write a notebook of code cells into ``lab.root_dir``; returns its name (path in the lab)."""
     if not name.endswith(".ipynb"):
@@ -296,17 +309,28 @@ const ready = nb && nb.context && nb.context.isReady && nb.content && nb.session
 const kernel = ready && nb.sessionContext.session && nb.sessionContext.session.kernel;
 """
 
-_WAIT_IDLE_JS = "() => {" + _CURRENT_NOTEBOOK_JS + """
+_WAIT_IDLE_JS = (
+    "() => {"
+    + _CURRENT_NOTEBOOK_JS
+    + """
   return !!(kernel && kernel.status === 'idle' && !nb.sessionContext.pendingInput);
 }"""
+)
 
-_WAIT_OPEN_JS = "(name) => {" + _CURRENT_NOTEBOOK_JS + """
+_WAIT_OPEN_JS = (
+    "(name) => {"
+    + _CURRENT_NOTEBOOK_JS
+    + """
   return !!(kernel && nb.context.path === name && kernel.status === 'idle');
 }"""
+)
 
 # 'done' once every code cell has an execution count and the kernel is idle; 'error: ...' as
 # soon as an output of type error appears (run-all stops there, so waiting on would only time out).
-_RUN_STATE_JS = "() => {" + _CURRENT_NOTEBOOK_JS + """
+_RUN_STATE_JS = (
+    "() => {"
+    + _CURRENT_NOTEBOOK_JS
+    + """
   if (!kernel) return false;
   // JupyterLab does not execute an empty code cell, so it never gets an execution count.
   const cells = nb.content.widgets.filter(
@@ -323,16 +347,24 @@ _RUN_STATE_JS = "() => {" + _CURRENT_NOTEBOOK_JS + """
   const executed = cells.every(c => c.model.executionCount !== null);
   return (executed && !running && kernel.status === 'idle') ? 'done' : false;
 }"""
+)
 
-_CLEAR_JS = "() => {" + _CURRENT_NOTEBOOK_JS + """
+_CLEAR_JS = (
+    "() => {"
+    + _CURRENT_NOTEBOOK_JS
+    + """
   for (const cell of nb.content.widgets) {
     if (cell.model.type !== 'code') continue;
     cell.model.outputs.clear();
     cell.model.executionCount = null;
   }
 }"""
+)
 
-_OUTPUTS_TEXT_JS = "() => {" + _CURRENT_NOTEBOOK_JS + """
+_OUTPUTS_TEXT_JS = (
+    "() => {"
+    + _CURRENT_NOTEBOOK_JS
+    + """
   if (!ready) return '';
   const parts = [];
   for (const cell of nb.content.widgets) {
@@ -346,6 +378,7 @@ _OUTPUTS_TEXT_JS = "() => {" + _CURRENT_NOTEBOOK_JS + """
   }
   return parts.join('\\n');
 }"""
+)
 
 
 def wait_idle(page, timeout_ms: int = 60_000) -> None:

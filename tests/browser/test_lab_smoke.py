@@ -9,9 +9,8 @@ from __future__ import annotations
 import sys
 import time
 
-import pytest
-
 import labtools
+import pytest
 
 N_POINTS = 40
 
@@ -82,11 +81,12 @@ def test_widgets_render_and_slider_reaches_python(lab, page):
     handle = page.locator(".smoke-slider .noUi-handle")
     handle.wait_for(state="visible", timeout=120_000)
     page.wait_for_function(
-        "() => { const e = document.querySelector('.smoke-echo');"
-        " return e && e.textContent.includes('echo 3'); }", timeout=120_000)
+        "() => { const e = document.querySelector('.smoke-echo'); return e && e.textContent.includes('echo 3'); }",
+        timeout=120_000,
+    )
     page.wait_for_function(
-        f"() => document.querySelectorAll('.smoke-fig g.object_grp path.dot').length === {N_POINTS}",
-        timeout=120_000)
+        f"() => document.querySelectorAll('.smoke-fig g.object_grp path.dot').length === {N_POINTS}", timeout=120_000
+    )
     labtools.screenshot(page.locator(".smoke-fig"), "smoke-figure")
     box = page.locator(".widget-vbox", has=page.locator(".smoke-slider"))
     labtools.screenshot(box, "smoke-before")
@@ -96,12 +96,14 @@ def test_widgets_render_and_slider_reaches_python(lab, page):
     t0 = time.perf_counter()
     page.keyboard.press("ArrowRight")
     page.wait_for_function(
-        "() => { const l = document.querySelector('.smoke-label');"
-        " return l && l.textContent.includes('value 4'); }", timeout=60_000)
+        "() => { const l = document.querySelector('.smoke-label'); return l && l.textContent.includes('value 4'); }",
+        timeout=60_000,
+    )
     page.wait_for_function(
         "() => { const e = document.querySelector('.smoke-echo');"
         " return e && e.textContent === 'echo 4' && Number(e.dataset.draws) >= 2; }",
-        timeout=60_000)
+        timeout=60_000,
+    )
     elapsed_ms = (time.perf_counter() - t0) * 1e3
     print(f"slider key press -> label and anywidget redrawn via the kernel: {elapsed_ms:.0f} ms")
     labtools.screenshot(box, "smoke-after")
@@ -114,22 +116,24 @@ def test_page_guard_aborts_outside_requests(page):
     # `.invalid` is reserved and never resolves (RFC 2606), so even a broken guard sends nothing.
     outside = "http://mwkin-guard-check.invalid/probe.js"
     page.goto("data:text/html,<title>guard</title>")
-    failed = page.evaluate(
-        "(url) => fetch(url).then(() => false, () => true)", outside)
+    failed = page.evaluate("(url) => fetch(url).then(() => false, () => true)", outside)
     assert failed
     assert page.outside_requests == [outside]
     page.outside_requests.clear()  # recorded as expected; let the fixture's own check pass
 
 
-@pytest.mark.parametrize("url, local", [
-    ("http://127.0.0.1:8888/lab?token=x", True),
-    ("ws://localhost:9999/api/kernels/abc/channels", True),
-    ("blob:http://127.0.0.1:8888/0f0e", True),
-    ("data:text/javascript,export default {}", True),
-    ("https://cdn.example.org/require.js", False),
-    ("http://127.0.0.2.example.org/", False),
-    ("wss://10.0.0.1/socket", False),
-])
+@pytest.mark.parametrize(
+    "url, local",
+    [
+        ("http://127.0.0.1:8888/lab?token=x", True),
+        ("ws://localhost:9999/api/kernels/abc/channels", True),
+        ("blob:http://127.0.0.1:8888/0f0e", True),
+        ("data:text/javascript,export default {}", True),
+        ("https://cdn.example.org/require.js", False),
+        ("http://127.0.0.2.example.org/", False),
+        ("wss://10.0.0.1/socket", False),
+    ],
+)
 def test_local_url_classification(url, local):
     assert labtools.is_local_url(url) is local
 
@@ -137,11 +141,15 @@ def test_local_url_classification(url, local):
 @pytest.mark.browser
 def test_open_and_run_reports_a_failing_cell(lab, page):
     # Run-all stops at an error; the helper must say so with the traceback instead of timing out.
-    name = labtools.write_notebook(lab, "fails.ipynb", [
-        "x = 1",
-        "raise ValueError('deliberate failure 42')",
-        "print('never reached')",
-    ])
+    name = labtools.write_notebook(
+        lab,
+        "fails.ipynb",
+        [
+            "x = 1",
+            "raise ValueError('deliberate failure 42')",
+            "print('never reached')",
+        ],
+    )
     with pytest.raises(labtools.LabError, match="ValueError: deliberate failure 42"):
         labtools.open_and_run(page, lab, name, timeout_ms=120_000)
     assert "never reached" not in labtools.cell_outputs_text(page)

@@ -106,8 +106,9 @@ def drag_and_settle(page, dx, dy, releases_before):
     """One mouse drag; returns the kernel's state once the released velocity's orbit is computed and
     the browser has drawn it."""
     drag_tip(page, dx, dy)
-    state = kernel_state(page, lambda s: s["releases"] > releases_before and s["idle"]
-                         and close(s["start_v"], s["v"], 1e-12))
+    state = kernel_state(
+        page, lambda s: s["releases"] > releases_before and s["idle"] and close(s["start_v"], s["v"], 1e-12)
+    )
     wait_track_end(page, state["end"])
     return state
 
@@ -119,7 +120,9 @@ def wait_track_end(page, end):
         " const e = JSON.parse(el.dataset.trackEnd); return e.length === 2 &&"
         " Math.abs(e[0] - end[0]) < 1e-6 * Math.max(1, Math.abs(end[0])) &&"
         " Math.abs(e[1] - end[1]) < 1e-6 * Math.max(1, Math.abs(end[1])); }",
-        arg=[VIEW, end], timeout=60_000)
+        arg=[VIEW, end],
+        timeout=60_000,
+    )
 
 
 def measure_drag_latency(page, n_drags=N_TIMED_DRAGS):
@@ -153,10 +156,12 @@ def measure_drag_latency(page, n_drags=N_TIMED_DRAGS):
 
 def latency_text(out):
     med = {k: statistics.median(out[k]) for k in ("release", "last_move")}
-    return (f"mouse release -> orbit redrawn: median {med['release']:.0f} ms "
-            f"({', '.join(f'{v:.0f}' for v in out['release'])}); last pointer move -> orbit redrawn: "
-            f"median {med['last_move']:.0f} ms ({', '.join(f'{v:.0f}' for v in out['last_move'])}); "
-            f"{len(out['release'])} drags; orbits drawn while dragging: {out['live']}")
+    return (
+        f"mouse release -> orbit redrawn: median {med['release']:.0f} ms "
+        f"({', '.join(f'{v:.0f}' for v in out['release'])}); last pointer move -> orbit redrawn: "
+        f"median {med['last_move']:.0f} ms ({', '.join(f'{v:.0f}' for v in out['last_move'])}); "
+        f"{len(out['release'])} drags; orbits drawn while dragging: {out['live']}"
+    )
 
 
 def test_dragging_the_velocity_arrow_changes_the_orbit(lab, page):
@@ -165,8 +170,8 @@ def test_dragging_the_velocity_arrow_changes_the_orbit(lab, page):
     name = labtools.write_notebook(lab, "orbit_explorer_drag.ipynb", ORBIT_CELLS)
     labtools.open_and_run(page, lab, name)
     page.wait_for_function(
-        f"() => Number(document.querySelector('{VIEW}')?.dataset.trackPoints) === {N_POINTS}",
-        timeout=120_000)
+        f"() => Number(document.querySelector('{VIEW}')?.dataset.trackPoints) === {N_POINTS}", timeout=120_000
+    )
     first = kernel_state(page, lambda s: s["idle"])
     assert first["potential"] == "MWPotential2014" and first["source"] == "table"
     assert close(json.loads(view_data(page, "trackEnd")), first["end"])
@@ -181,13 +186,14 @@ def test_dragging_the_velocity_arrow_changes_the_orbit(lab, page):
     assert int(view_data(page, "drawCount")) > count_before
     assert state["rapo"] != pytest.approx(first["rapo"], rel=1e-4)
     expected = [first["v"][0] + dx / k * first["scale"], first["v"][1] - dy / k * first["scale"]]
-    assert state["v"] == pytest.approx(expected, abs=1.01 * first["scale"] / k)   # within a pixel
-    assert state["start_v"] == pytest.approx(state["v"], abs=1e-9)     # .result has the dragged velocity
+    assert state["v"] == pytest.approx(expected, abs=1.01 * first["scale"] / k)  # within a pixel
+    assert state["start_v"] == pytest.approx(state["v"], abs=1e-9)  # .result has the dragged velocity
     assert state["source"] == "phase_space" and state["original"] == "table"
     assert "velocity set by dragging" in state["status"]
     # what the user sees says so, and offers the way back
-    page.wait_for_function("() => document.querySelector('.t-orbit .mwkin-drag-note')"
-                           "?.textContent.includes('set by dragging')")
+    page.wait_for_function(
+        "() => document.querySelector('.t-orbit .mwkin-drag-note')?.textContent.includes('set by dragging')"
+    )
     restore = explorer.locator(".mwkin-restore-star")
     assert restore.is_visible() and "table row" in restore.inner_text()
     assert "set by dragging" in explorer.locator(".mwkin-status").inner_text()
@@ -197,7 +203,7 @@ def test_dragging_the_velocity_arrow_changes_the_orbit(lab, page):
     timings = measure_drag_latency(page)
     print(f"\nOrbitExplorer drag (MWPotential2014, 1 Gyr, {N_POINTS} points): {latency_text(timings)}")
     assert all(v > 0 for v in timings["last_move"])
-    assert all(n >= 1 for n in timings["live"])          # the orbit followed the arrow during the drag
+    assert all(n >= 1 for n in timings["live"])  # the orbit followed the arrow during the drag
 
     # ---- back to the table row: the first orbit again ----
     restore.click()
@@ -250,8 +256,13 @@ def saved_notebook(lab, name, sign, kernelspec=None):
     nb = nbformat.v4.new_notebook()
     nb.metadata["kernelspec"] = {"name": "python3", "display_name": "Python 3", "language": "python"}
     nb.cells = [nbformat.v4.new_code_cell(src) for src in SAVED_CELLS]
-    NotebookClient(nb, timeout=300, kernel_name="python3", store_widget_state=True,
-                   resources={"metadata": {"path": str(lab.root_dir)}}).execute()
+    NotebookClient(
+        nb,
+        timeout=300,
+        kernel_name="python3",
+        store_widget_state=True,
+        resources={"metadata": {"path": str(lab.root_dir)}},
+    ).execute()
     if kernelspec is not None:
         nb.metadata["kernelspec"] = kernelspec
         nb.metadata.pop("language_info", None)
@@ -260,21 +271,30 @@ def saved_notebook(lab, name, sign, kernelspec=None):
         NotebookNotary(data_dir=str(lab.home / "data")).sign(nb)
     nbformat.write(nb, lab.root_dir / name)
     state = nb.metadata["widgets"]["application/vnd.jupyter.widget-state+json"]["state"]
-    galaxy = [m for m in state.values() if m["model_name"] == "AnyModel"
-              and "mwkin-face-on" in m["state"].get("_dom_classes", [])]
+    galaxy = [
+        m
+        for m in state.values()
+        if m["model_name"] == "AnyModel" and "mwkin-face-on" in m["state"].get("_dom_classes", [])
+    ]
     assert len(galaxy) == 1, "the GalaxyView's state was not saved"
     saved = galaxy[0]
-    assert "export default" in saved["state"]["_esm"]          # the ES module itself is in the state
+    assert "export default" in saved["state"]["_esm"]  # the ES module itself is in the state
     buffers = {b["path"][0]: np.frombuffer(base64.b64decode(b["data"]), "<f4") for b in saved["buffers"]}
-    return {"track_end": [float(buffers["track_x"][-1]), float(buffers["track_y"][-1])],
-            "n_track": int(buffers["track_x"].size), "n_models": len(state)}
+    return {
+        "track_end": [float(buffers["track_x"][-1]), float(buffers["track_y"][-1])],
+        "n_track": int(buffers["track_x"].size),
+        "n_models": len(state),
+    }
 
 
 def open_notebook(page, lab, name):
     page.goto(lab.url(f"lab/tree/{name}") + "&reset", timeout=120_000)
-    page.wait_for_function("(name) => { const nb = window.jupyterapp?.shell?.currentWidget;"
-                           " return !!(nb && nb.context && nb.context.isReady && nb.context.path === name); }",
-                           arg=name, timeout=120_000)
+    page.wait_for_function(
+        "(name) => { const nb = window.jupyterapp?.shell?.currentWidget;"
+        " return !!(nb && nb.context && nb.context.isReady && nb.context.path === name); }",
+        arg=name,
+        timeout=120_000,
+    )
 
 
 def test_saved_widget_state_draws_the_views_once_trusted_with_a_fresh_kernel(lab, page):
@@ -285,8 +305,9 @@ def test_saved_widget_state_draws_the_views_once_trusted_with_a_fresh_kernel(lab
     open_notebook(page, lab, "saved_state.ipynb")
     # Not trusted (written outside this server): JupyterLab renders only the text/plain of each output,
     # because the widget renderer is registered as unsafe.
-    page.wait_for_function("() => [...document.querySelectorAll('.jp-OutputArea-output')]"
-                           ".some(e => e.textContent.includes('IntSlider('))")
+    page.wait_for_function(
+        "() => [...document.querySelectorAll('.jp-OutputArea-output')].some(e => e.textContent.includes('IntSlider('))"
+    )
     assert page.locator(SAVED_VIEW).count() == 0
     labtools.screenshot(page, "saved_state_untrusted")
 
@@ -296,18 +317,22 @@ def test_saved_widget_state_draws_the_views_once_trusted_with_a_fresh_kernel(lab
     page.locator(".jp-Dialog .jp-mod-accept").click()
     page.wait_for_function(
         f"() => Number(document.querySelector('{SAVED_VIEW}')?.dataset.trackPoints) === {saved['n_track']}",
-        timeout=120_000)
+        timeout=120_000,
+    )
     end = json.loads(view_data_of(page, SAVED_VIEW, "trackEnd"))
-    assert end == pytest.approx(saved["track_end"], rel=1e-6)   # the saved float32 buffers, drawn
+    assert end == pytest.approx(saved["track_end"], rel=1e-6)  # the saved float32 buffers, drawn
     page.wait_for_selector(".t-saved-slider .noUi-handle")
     # bqplot's meridional view, from its saved models: the orbit's line has a path (the empty marks' are "null")
-    page.wait_for_function("() => [...document.querySelectorAll('.t-saved-orbit .mwkin-meridional path.line')]"
-                           ".some(p => (p.getAttribute('d') || '').startsWith('M'))")
+    page.wait_for_function(
+        "() => [...document.querySelectorAll('.t-saved-orbit .mwkin-meridional path.line')]"
+        ".some(p => (p.getAttribute('d') || '').startsWith('M'))"
+    )
     assert "r_apo" in page.locator(".t-saved-orbit .mwkin-orbit-parameters").inner_text()
     # Nothing ran in the kernel JupyterLab started: what is drawn came from the notebook's metadata.
     labtools.wait_idle(page)
-    assert labtools.execute_in_kernel(page, "print('ex' in globals(), 'mwkin' in __import__('sys').modules)").split() \
-        == ["False", "False"]
+    assert labtools.execute_in_kernel(
+        page, "print('ex' in globals(), 'mwkin' in __import__('sys').modules)"
+    ).split() == ["False", "False"]
     labtools.screenshot(page.locator(".t-saved-orbit"), "saved_state_restored")
 
     # Shutting the kernel down leaves the drawn views on the page (they were never tied to Python).
@@ -324,19 +349,25 @@ def test_saved_widget_state_is_not_drawn_with_no_kernel(lab, page):
     # manager is keyed by the kernel's id and restores a notebook's state through a kernel, so with
     # "No Kernel" the outputs stay at "Loading widget...". If this test starts failing, the manager
     # has learnt to restore without a kernel: update the README's "sharing" section.
-    saved_notebook(lab, "saved_no_kernel.ipynb", sign=True,
-                   kernelspec={"name": "no-such-kernel", "display_name": "gone", "language": "no-such-language"})
+    saved_notebook(
+        lab,
+        "saved_no_kernel.ipynb",
+        sign=True,
+        kernelspec={"name": "no-such-kernel", "display_name": "gone", "language": "no-such-language"},
+    )
     open_notebook(page, lab, "saved_no_kernel.ipynb")
     dialog = page.locator(".jp-Dialog")
     dialog.wait_for()
     assert "Select Kernel" in dialog.inner_text()
     dialog.locator("select").select_option(label="No Kernel")
     dialog.locator(".jp-mod-accept").click()
-    page.wait_for_function("() => [...document.querySelectorAll('.jp-OutputArea-output')]"
-                           ".some(e => e.textContent.includes('Loading widget'))")
+    page.wait_for_function(
+        "() => [...document.querySelectorAll('.jp-OutputArea-output')]"
+        ".some(e => e.textContent.includes('Loading widget'))"
+    )
     from playwright.sync_api import TimeoutError as PlaywrightTimeout
 
-    with pytest.raises(PlaywrightTimeout):   # bounded wait for something that should not happen
+    with pytest.raises(PlaywrightTimeout):  # bounded wait for something that should not happen
         page.wait_for_function(f"() => !!document.querySelector('{SAVED_VIEW}')", timeout=15_000)
     assert page.evaluate("() => window.jupyterapp.shell.currentWidget.sessionContext.session") is None
     texts = page.locator(".jp-OutputArea-output").all_inner_texts()

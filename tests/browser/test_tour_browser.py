@@ -31,24 +31,22 @@ import platform
 import statistics
 import time
 
-import pytest
-
 import labtools
+import pytest
 
 pytestmark = pytest.mark.browser
 
 TOUR = "example_notebooks/01_tour.ipynb"
 N_MOVES = 5
-R0_STEP_KPC = 0.001      # the R0 slider's step (FrameControls)
-R0_TYPED_KPC = 7.6       # typed into the R0 box at the end, for a visible "after" screenshot
+R0_STEP_KPC = 0.001  # the R0 slider's step (FrameControls)
+R0_TYPED_KPC = 7.6  # typed into the R0 box at the end, for a visible "after" screenshot
 TIMING_FILE = labtools.OUTPUT_DIR / "tour_timing.json"
 
 #: The plots watched, with what "redrawn" means for each.
 PLOTS = {
     "face_on": "OrbitExplorer face-on view (GalaxyView canvas): first draw of the final track end point",
     "meridional": "OrbitExplorer meridional view (bqplot SVG): first time the track's path d was final",
-    "v_phi_R": "VelocityPanel 'v_phi against R' view (SampleScatter canvas): first draw with the final "
-               "data range",
+    "v_phi_R": "VelocityPanel 'v_phi against R' view (SampleScatter canvas): first draw with the final data range",
 }
 
 # Locates the parts of the page the test watches; each is null until it exists.
@@ -83,13 +81,17 @@ const statusState = (el) => {
 """
 
 # True once everything the tour shows has been drawn and no widget is computing.
-_READY_JS = "() => {" + _FIND_JS + """
+_READY_JS = (
+    "() => {"
+    + _FIND_JS
+    + """
   const views = Array.from(document.querySelectorAll('.tour-velocities [data-draw-count]'));
   return !!(meridionalTrack() && drawCount(faceOn) > 0 && faceOn.dataset.trackEnd !== '[]'
             && views.length === 3 && views.every(v => drawCount(v) > 0)
             && statusState(orbitStatus) === 'ready' && statusState(oortStatus) === 'ready'
             && statusState(velocityStatus) === 'ready');
 }"""
+)
 
 # Arms the watchers for one key press; the outcome lands in window.__tourMove.
 #
@@ -99,7 +101,10 @@ _READY_JS = "() => {" + _FIND_JS + """
 # then the plot as it is now is the final one, and the time of a redraw is the first logged change at
 # which the plot equalled its final state. "busy" is looked for in the added nodes of the mutation
 # records too, since a busy state and the next ready one can arrive in the same task.
-_ARM_JS = "() => {" + _FIND_JS + """
+_ARM_JS = (
+    "() => {"
+    + _FIND_JS
+    + """
   const move = { t0: null, done: false, settled: false, ms: {}, changes: {} };
   const statuses = { orbit: orbitStatus, velocity: velocityStatus, oort: oortStatus };
   const phase = { orbit: 'wait', velocity: 'wait', oort: 'wait' };   // wait -> busy -> ready
@@ -152,6 +157,7 @@ _ARM_JS = "() => {" + _FIND_JS + """
   document.addEventListener('keydown', () => { move.t0 = performance.now(); }, { capture: true, once: true });
   window.__tourMove = move;
 }"""
+)
 
 _MOVE_DONE_JS = "() => !!(window.__tourMove && window.__tourMove.done)"
 
@@ -210,9 +216,11 @@ def summarise(moves, first_render_s):
     """The timing record written to tour_timing.json."""
     keys = (*PLOTS, "oort_status")
     return {
-        "what": ("keydown (ArrowRight on the R0 slider of the tour's FrameControls, one 0.001 kpc step) -> the "
-                 "DOM change that put each plot's final state on the page, ms, measured in the page with "
-                 "performance.now() and a MutationObserver"),
+        "what": (
+            "keydown (ArrowRight on the R0 slider of the tour's FrameControls, one 0.001 kpc step) -> the "
+            "DOM change that put each plot's final state on the page, ms, measured in the page with "
+            "performance.now() and a MutationObserver"
+        ),
         "plots": {**PLOTS, "oort_status": "OortFitter status line back to ready with the refit (a table)"},
         "moves": len(moves),
         "median_ms": {k: statistics.median(m["ms"][k] for m in moves) for k in keys},
@@ -244,7 +252,8 @@ def test_tour_runs_and_the_r0_slider_redraws_its_plots(lab, page):
         # The slider step reached the kernel and came back to the text box.
         page.wait_for_function(
             "(want) => Math.abs(Number(document.querySelector('.tour-frame .mwkin-R0 input').value) - want) < 1e-9",
-            arg=r0_start + (i + 1) * R0_STEP_KPC)
+            arg=r0_start + (i + 1) * R0_STEP_KPC,
+        )
     r0_after_moves = r0_start + N_MOVES * R0_STEP_KPC
     kernel_r0 = float(labtools.execute_in_kernel(page, "print(repr(frame_state.R0))"))
     assert kernel_r0 == pytest.approx(r0_after_moves, abs=1e-9)
@@ -254,29 +263,44 @@ def test_tour_runs_and_the_r0_slider_redraws_its_plots(lab, page):
     TIMING_FILE.write_text(json.dumps(record, indent=2))
     print()
     print(f"tour: first render {first_render_s:.1f} s (open, run all cells, every plot drawn)")
-    for key, label in (("face_on", "orbit face-on (canvas)"), ("meridional", "orbit meridional (SVG)"),
-                       ("v_phi_R", "v_phi-R view (canvas)"), ("oort_status", "Oort fit status ready")):
-        print(f"R0 slider key press -> {label:>23}: median {record['median_ms'][key]:6.0f} ms over "
-              f"{N_MOVES} moves; each {record['each_ms'][key]}")
+    for key, label in (
+        ("face_on", "orbit face-on (canvas)"),
+        ("meridional", "orbit meridional (SVG)"),
+        ("v_phi_R", "v_phi-R view (canvas)"),
+        ("oort_status", "Oort fit status ready"),
+    ):
+        print(
+            f"R0 slider key press -> {label:>23}: median {record['median_ms'][key]:6.0f} ms over "
+            f"{N_MOVES} moves; each {record['each_ms'][key]}"
+        )
     print(f"written to {TIMING_FILE}")
 
     # A large change typed into the R0 box: visible in the screenshots, and checked in the kernel.
     page.evaluate(_ARM_JS)
     box = page.locator(".tour-frame .mwkin-R0 input")
     box.fill(f"{R0_TYPED_KPC}")
-    box.press("Enter")   # the keydown of Enter starts the clock of this move
+    box.press("Enter")  # the keydown of Enter starts the clock of this move
     typed = finished_move(page, 120_000)
     page.wait_for_function(_READY_JS, timeout=120_000)
-    print(f"R0 typed ({R0_TYPED_KPC} kpc), Enter -> " + ", ".join(
-        f"{key} {value:.0f} ms" for key, value in typed["ms"].items()))
+    print(
+        f"R0 typed ({R0_TYPED_KPC} kpc), Enter -> "
+        + ", ".join(f"{key} {value:.0f} ms" for key, value in typed["ms"].items())
+    )
     screenshots(page, "after")
-    seen = json.loads(labtools.execute_in_kernel(page, (
-        "import json\n"
-        "print(json.dumps({'state': frame_state.R0, 'orbit': orbit.view.frame.R0,\n"
-        "                  'velocities': velocities.result.meta['frame']['R0_kpc'],\n"
-        "                  'oort': oort.result.frame.R0}))")))
-    assert seen == pytest.approx({"state": R0_TYPED_KPC, "orbit": R0_TYPED_KPC, "velocities": R0_TYPED_KPC,
-                                  "oort": R0_TYPED_KPC}), seen
+    seen = json.loads(
+        labtools.execute_in_kernel(
+            page,
+            (
+                "import json\n"
+                "print(json.dumps({'state': frame_state.R0, 'orbit': orbit.view.frame.R0,\n"
+                "                  'velocities': velocities.result.meta['frame']['R0_kpc'],\n"
+                "                  'oort': oort.result.frame.R0}))"
+            ),
+        )
+    )
+    assert seen == pytest.approx(
+        {"state": R0_TYPED_KPC, "orbit": R0_TYPED_KPC, "velocities": R0_TYPED_KPC, "oort": R0_TYPED_KPC}
+    ), seen
 
     assert page_errors == [], page_errors
 
@@ -304,11 +328,16 @@ def test_showing_the_tour_leaves_the_shared_state_as_the_notebook_set_it(lab, pa
     from mwkin.widgets import FrameState, PotentialState
 
     open_tour(lab, page)
-    got = json.loads(labtools.execute_in_kernel(page, (
-        "import json\n"
-        "print(json.dumps({'frame': frame_state.config, 'potential': potential_state.config,\n"
-        "                  'oort_distance_range': oort.config['distance_range']}))")))
-    want = {"frame": FrameState().config, "potential": PotentialState().config,
-            "oort_distance_range": [0.0, 0.5]}
+    got = json.loads(
+        labtools.execute_in_kernel(
+            page,
+            (
+                "import json\n"
+                "print(json.dumps({'frame': frame_state.config, 'potential': potential_state.config,\n"
+                "                  'oort_distance_range': oort.config['distance_range']}))"
+            ),
+        )
+    )
+    want = {"frame": FrameState().config, "potential": PotentialState().config, "oort_distance_range": [0.0, 0.5]}
     changed = _differences(want, got)
     assert not changed, "showing the tour changed the shared state:\n  " + "\n  ".join(changed)

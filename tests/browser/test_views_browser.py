@@ -21,10 +21,9 @@ import subprocess
 import sys
 import time
 
+import labtools
 import numpy as np
 import pytest
-
-import labtools
 
 pytestmark = pytest.mark.browser
 
@@ -89,15 +88,16 @@ def wait_draw_count_above(page, selector, count, timeout_ms=60_000):
     page.wait_for_function(
         "([sel, n]) => { const el = document.querySelector(sel);"
         " return !!el && Number(el.dataset.drawCount || 0) > n; }",
-        arg=[selector, count], timeout=timeout_ms)
+        arg=[selector, count],
+        timeout=timeout_ms,
+    )
 
 
 def to_page(box, rect, domain, x, y):
     """Page coordinates of data point (x, y) in a scatter view."""
     left, top, width, height = rect
     x0, x1, y0, y1 = domain
-    return (box["x"] + left + (x - x0) / (x1 - x0) * width,
-            box["y"] + top + (y1 - y) / (y1 - y0) * height)
+    return (box["x"] + left + (x - x0) / (x1 - x0) * width, box["y"] + top + (y1 - y) / (y1 - y0) * height)
 
 
 def test_scatter_renders_brush_selects_the_right_stars_hover_and_pan(lab, page):
@@ -148,8 +148,7 @@ def test_scatter_renders_brush_selects_the_right_stars_hover_and_pan(lab, page):
     x, y, _ = scatter_sample()
     x32 = x.astype(np.float32).astype(float)  # the values the browser holds
     y32 = y.astype(np.float32).astype(float)
-    inside = ((x32 >= region["x"][0]) & (x32 <= region["x"][1])
-              & (y32 >= region["y"][0]) & (y32 <= region["y"][1]))
+    inside = (x32 >= region["x"][0]) & (x32 <= region["x"][1]) & (y32 >= region["y"][0]) & (y32 <= region["y"][1])
     expected = np.flatnonzero(inside)
     assert 1000 < expected.size < 10_000  # a real selection, not everything or nothing
     assert got["indices"] == expected.tolist()
@@ -290,8 +289,10 @@ def test_galaxy_view_drag_changes_the_orbit(lab, page):
     assert 1 <= final["every"] <= 13  # at most one message per frame (one per mouse step here) + release
     assert final["rmax"] != pytest.approx(first["rmax"], rel=1e-3)
     # the new track computed in the kernel is what the browser now draws
-    page.wait_for_function("([el, end]) => JSON.stringify(JSON.parse(el.dataset.trackEnd)) ==="
-                           " JSON.stringify(end)", arg=[view.element_handle(), final["end"]])
+    page.wait_for_function(
+        "([el, end]) => JSON.stringify(JSON.parse(el.dataset.trackEnd)) === JSON.stringify(end)",
+        arg=[view.element_handle(), final["end"]],
+    )
     assert "v_x = " in view.locator(".mwkin-galaxy-readout").inner_text()
     assert labtools.wait_for_kernel_value(page, "g.dragging", lambda v: v is False) is False
     labtools.screenshot(view, "views_galaxy_dragged")
@@ -299,6 +300,7 @@ def test_galaxy_view_drag_changes_the_orbit(lab, page):
 
 
 # ---- Voila ---------------------------------------------------------------------------------------
+
 
 def _wait_tcp(port, process, timeout_s=120.0):
     deadline = time.monotonic() + timeout_s
@@ -320,39 +322,59 @@ def test_views_render_in_voila(page, tmp_path):
 
     nb = nbformat.v4.new_notebook()
     nb.metadata["kernelspec"] = {"name": "python3", "display_name": "Python 3", "language": "python"}
-    nb.cells = [nbformat.v4.new_code_cell(src) for src in (
-        "import numpy as np\nfrom mwkin.widgets.views import SampleScatter, GalaxyView\n"
-        "rs = np.random.default_rng(1)\n"
-        "w = SampleScatter(); w.add_class('t-scatter')\n"
-        "w.set_data(rs.normal(size=5000), rs.normal(size=5000), rs.normal(size=5000), c_label='c')\nw",
-        "g = GalaxyView(); g.add_class('t-galaxy')\n"
-        "t = np.linspace(0, 6, 300); g.set_track(-8.1 * np.cos(t), 8.1 * np.sin(t))\ng",
-    )]
+    nb.cells = [
+        nbformat.v4.new_code_cell(src)
+        for src in (
+            "import numpy as np\nfrom mwkin.widgets.views import SampleScatter, GalaxyView\n"
+            "rs = np.random.default_rng(1)\n"
+            "w = SampleScatter(); w.add_class('t-scatter')\n"
+            "w.set_data(rs.normal(size=5000), rs.normal(size=5000), rs.normal(size=5000), c_label='c')\nw",
+            "g = GalaxyView(); g.add_class('t-galaxy')\n"
+            "t = np.linspace(0, 6, 300); g.set_track(-8.1 * np.cos(t), 8.1 * np.sin(t))\ng",
+        )
+    ]
     nbformat.write(nb, tmp_path / "views.ipynb")
     home = tmp_path / "home"
     env = dict(os.environ)
-    for var, sub in (("JUPYTER_CONFIG_DIR", "config"), ("JUPYTER_DATA_DIR", "data"),
-                     ("JUPYTER_RUNTIME_DIR", "runtime"), ("IPYTHONDIR", "ipython")):
+    for var, sub in (
+        ("JUPYTER_CONFIG_DIR", "config"),
+        ("JUPYTER_DATA_DIR", "data"),
+        ("JUPYTER_RUNTIME_DIR", "runtime"),
+        ("IPYTHONDIR", "ipython"),
+    ):
         (home / sub).mkdir(parents=True)
         env[var] = str(home / sub)
     # the kernel must be the interpreter running the tests (same mwkin)
     spec = home / "data" / "kernels" / "python3"
     spec.mkdir(parents=True)
-    (spec / "kernel.json").write_text(json.dumps({
-        "argv": [sys.executable, "-m", "ipykernel_launcher", "-f", "{connection_file}"],
-        "display_name": "Python 3", "language": "python"}))
+    (spec / "kernel.json").write_text(
+        json.dumps(
+            {
+                "argv": [sys.executable, "-m", "ipykernel_launcher", "-f", "{connection_file}"],
+                "display_name": "Python 3",
+                "language": "python",
+            }
+        )
+    )
     port = labtools.free_port()
     log = open(tmp_path / "voila.log", "wb")  # noqa: SIM115
     process = subprocess.Popen(
         [str(voila), "--no-browser", f"--port={port}", "--Voila.ip=127.0.0.1", "views.ipynb"],
-        cwd=tmp_path, env=env, stdout=log, stderr=subprocess.STDOUT, start_new_session=True)
+        cwd=tmp_path,
+        env=env,
+        stdout=log,
+        stderr=subprocess.STDOUT,
+        start_new_session=True,
+    )
     log.close()
     try:
         _wait_tcp(port, process)
         page.goto(f"http://127.0.0.1:{port}/", timeout=120_000)
-        page.wait_for_function("() => Number(document.querySelector('.t-scatter')?.dataset.drawCount) > 0"
-                               " && Number(document.querySelector('.t-galaxy')?.dataset.drawCount) > 0",
-                               timeout=120_000)
+        page.wait_for_function(
+            "() => Number(document.querySelector('.t-scatter')?.dataset.drawCount) > 0"
+            " && Number(document.querySelector('.t-galaxy')?.dataset.drawCount) > 0",
+            timeout=120_000,
+        )
         assert page.locator(".t-scatter").evaluate("el => el.dataset.mode") == "points"
         assert page.locator(".t-galaxy").evaluate("el => el.dataset.trackPoints") == "300"
         labtools.screenshot(page, "views_voila")
@@ -370,5 +392,6 @@ def test_views_render_in_voila(page, tmp_path):
 
 
 def _is_template_font(url):
-    return any(url.split("?")[0].endswith(ext) for ext in (".woff", ".woff2", ".ttf", ".css")) \
-        and ("font" in url.lower())
+    return any(url.split("?")[0].endswith(ext) for ext in (".woff", ".woff2", ".ttf", ".css")) and (
+        "font" in url.lower()
+    )

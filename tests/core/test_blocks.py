@@ -10,9 +10,9 @@ from __future__ import annotations
 
 import threading
 
+import astropy.units as u
 import numpy as np
 import pytest
-import astropy.units as u
 from astropy.table import QTable, Table
 
 from mwkin import kinematics
@@ -23,27 +23,39 @@ from mwkin.frames import SolarFrame
 
 MASYR = u.mas / u.yr
 FRAME = SolarFrame(R0=8.1, z_sun=21.0, v_sun=(12.0, 245.0, 7.5))
-CORRELATIONS = ("ra_dec_corr", "ra_parallax_corr", "ra_pmra_corr", "ra_pmdec_corr", "dec_parallax_corr",
-                "dec_pmra_corr", "dec_pmdec_corr", "parallax_pmra_corr", "parallax_pmdec_corr", "pmra_pmdec_corr")
+CORRELATIONS = (
+    "ra_dec_corr",
+    "ra_parallax_corr",
+    "ra_pmra_corr",
+    "ra_pmdec_corr",
+    "dec_parallax_corr",
+    "dec_pmra_corr",
+    "dec_pmdec_corr",
+    "parallax_pmra_corr",
+    "parallax_pmdec_corr",
+    "pmra_pmdec_corr",
+)
 
 
 def _stars(n, seed=3):
     rng = np.random.default_rng(seed)
     plx = rng.uniform(0.2, 5.0, n)
-    t = QTable({
-        "ra": rng.uniform(0, 360, n) * u.deg,
-        "dec": np.degrees(np.arcsin(rng.uniform(-1, 1, n))) * u.deg,
-        "parallax": plx * u.mas,
-        "pmra": rng.normal(0, 10, n) * MASYR,
-        "pmdec": rng.normal(0, 10, n) * MASYR,
-        "radial_velocity": rng.normal(0, 40, n) * u.km / u.s,
-        "ra_error": rng.uniform(0.01, 0.3, n) * u.mas,
-        "dec_error": rng.uniform(0.01, 0.3, n) * u.mas,
-        "parallax_error": 0.05 * plx * u.mas,
-        "pmra_error": rng.uniform(0.02, 0.3, n) * MASYR,
-        "pmdec_error": rng.uniform(0.02, 0.3, n) * MASYR,
-        "radial_velocity_error": rng.uniform(0.5, 5, n) * u.km / u.s,
-    })
+    t = QTable(
+        {
+            "ra": rng.uniform(0, 360, n) * u.deg,
+            "dec": np.degrees(np.arcsin(rng.uniform(-1, 1, n))) * u.deg,
+            "parallax": plx * u.mas,
+            "pmra": rng.normal(0, 10, n) * MASYR,
+            "pmdec": rng.normal(0, 10, n) * MASYR,
+            "radial_velocity": rng.normal(0, 40, n) * u.km / u.s,
+            "ra_error": rng.uniform(0.01, 0.3, n) * u.mas,
+            "dec_error": rng.uniform(0.01, 0.3, n) * u.mas,
+            "parallax_error": 0.05 * plx * u.mas,
+            "pmra_error": rng.uniform(0.02, 0.3, n) * MASYR,
+            "pmdec_error": rng.uniform(0.02, 0.3, n) * MASYR,
+            "radial_velocity_error": rng.uniform(0.5, 5, n) * u.km / u.s,
+        }
+    )
     for name in CORRELATIONS:
         t[name] = rng.uniform(-0.15, 0.15, n)
     t["radial_velocity"][[3, 17]] = np.nan  # some stars without velocities
@@ -129,8 +141,9 @@ def test_results_do_not_depend_on_block_size_or_threads(monkeypatch, errors):
             a, b = np.asarray(out[name]), np.asarray(reference[name])
             if a.dtype.kind == "f":
                 # Matrix products may sum in another order on other block sizes: round-off only.
-                np.testing.assert_allclose(a, b, rtol=1e-12, atol=1e-15 * np.nanmax(np.abs(b)),
-                                           err_msg=f"{name} block={block}")
+                np.testing.assert_allclose(
+                    a, b, rtol=1e-12, atol=1e-15 * np.nanmax(np.abs(b)), err_msg=f"{name} block={block}"
+                )
             else:
                 np.testing.assert_array_equal(a, b, err_msg=name)
         assert out.meta == reference.meta
@@ -139,8 +152,14 @@ def test_results_do_not_depend_on_block_size_or_threads(monkeypatch, errors):
 def test_array_functions_on_many_blocks_match_a_single_block(monkeypatch):
     rng = np.random.default_rng(5)
     n = 500
-    args = (rng.uniform(0, 360, n), rng.uniform(-90, 90, n), rng.uniform(0.1, 5, n), rng.normal(0, 5, n),
-            rng.normal(0, 5, n), rng.normal(0, 30, n))
+    args = (
+        rng.uniform(0, 360, n),
+        rng.uniform(-90, 90, n),
+        rng.uniform(0.1, 5, n),
+        rng.normal(0, 5, n),
+        rng.normal(0, 5, n),
+        rng.normal(0, 30, n),
+    )
     whole = kinematics.galactocentric_from_observables(*args, frame=FRAME)
     monkeypatch.setattr(kinematics._shared, "BLOCK", 33)
     monkeypatch.setenv("MWKIN_THREADS", "2")
@@ -151,8 +170,9 @@ def test_array_functions_on_many_blocks_match_a_single_block(monkeypatch):
 
 # ------------------------------------------------------------------- catalogue reader fast paths
 def test_internal_reader_shares_memory_only_where_nothing_changes():
-    t = Table({"ra": [10.0, 370.0], "dec": [5.0, -6.0], "parallax": [1.0, 2.0], "pmra": [1.0, 2.0],
-               "pmdec": [3.0, 4.0]})
+    t = Table(
+        {"ra": [10.0, 370.0], "dec": [5.0, -6.0], "parallax": [1.0, 2.0], "pmra": [1.0, 2.0], "pmdec": [3.0, 4.0]}
+    )
     t["pmdec"].unit = "arcsec/yr"  # converted: a new array
     shared = _read_catalog(t, copy=False)
     copied = read_catalog(t)
@@ -168,8 +188,16 @@ def test_internal_reader_shares_memory_only_where_nothing_changes():
 
 
 def test_internal_reader_fills_masked_entries_without_touching_the_input():
-    t = Table({"ra": [10.0, 20.0, 30.0], "dec": [5.0, -6.0, 7.0], "parallax": [1.0, 2.0, 3.0],
-               "pmra": [1.0, 2.0, 3.0], "pmdec": [3.0, 4.0, 5.0]}, masked=True)
+    t = Table(
+        {
+            "ra": [10.0, 20.0, 30.0],
+            "dec": [5.0, -6.0, 7.0],
+            "parallax": [1.0, 2.0, 3.0],
+            "pmra": [1.0, 2.0, 3.0],
+            "pmdec": [3.0, 4.0, 5.0],
+        },
+        masked=True,
+    )
     t["parallax"].mask = [False, True, False]
     out = _read_catalog(t, copy=False)
     assert np.isnan(out["parallax"][1].value)
@@ -182,8 +210,17 @@ def test_clean_columns_skip_row_checks_but_problems_are_still_found():
     # Out-of-range values anywhere in a column are found even though clean columns are settled by
     # their smallest and largest values alone.
     n = 70_000  # more than one scan block of the reader
-    t = Table({"ra": np.full(n, 10.0), "dec": np.zeros(n), "parallax": np.ones(n), "pmra": np.zeros(n),
-               "pmdec": np.zeros(n), "parallax_error": np.full(n, 0.1), "ra_dec_corr": np.zeros(n)})
+    t = Table(
+        {
+            "ra": np.full(n, 10.0),
+            "dec": np.zeros(n),
+            "parallax": np.ones(n),
+            "pmra": np.zeros(n),
+            "pmdec": np.zeros(n),
+            "parallax_error": np.full(n, 0.1),
+            "ra_dec_corr": np.zeros(n),
+        }
+    )
     t["dec"][66_000] = 90.5
     t["parallax_error"][69_999] = -0.01
     t["ra_dec_corr"][3] = np.nan

@@ -4,12 +4,13 @@ import doctest
 import re
 import warnings
 
+import astropy.units as u
 import numpy as np
 import pytest
-import astropy.units as u
-from astropy.table import QTable, Table, MaskedColumn
+from astropy.table import MaskedColumn, QTable, Table
 from astropy.tests.helper import assert_quantity_allclose
-from hypothesis import given, settings, strategies as st
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 import mwkin.catalog as catalog
 from mwkin.catalog import (
@@ -70,11 +71,13 @@ def assert_same_values(out, ref):
 
 # ---- file formats and in-memory inputs -----------------------------------------------------------
 
+
 @pytest.mark.parametrize("suffix", [".csv", ".ecsv", ".fits", ".vot", ".parquet"])
 def test_round_trip_through_files(tmp_path, gaia_like, suffix):
     path = tmp_path / f"stars{suffix}"
-    fmt = {".csv": "ascii.csv", ".ecsv": "ascii.ecsv", ".fits": "fits", ".vot": "votable",
-           ".parquet": "parquet"}[suffix]
+    fmt = {".csv": "ascii.csv", ".ecsv": "ascii.ecsv", ".fits": "fits", ".vot": "votable", ".parquet": "parquet"}[
+        suffix
+    ]
     gaia_like.write(path, format=fmt)
     out = read_catalog(path)
     assert len(out) == N
@@ -183,12 +186,17 @@ def test_pandas_dataframe(gaia_like):
 
 def test_pandas_named_index_and_nullable_values():
     pd = pytest.importorskip("pandas")
-    df = pd.DataFrame({
-        "RA": [1.0, 2.0, 3.0], "DE": [0.0, 1.0, 2.0], "Plx": [1.0, 1.0, 1.0],
-        "pmRA": [0.0, 0.0, 0.0], "pmDE": [0.0, 0.0, 0.0],
-        "RV": pd.array([10.0, None, 30.0], dtype="Float64"),
-        "source_id": [7, 8, 9],
-    }).set_index("source_id")
+    df = pd.DataFrame(
+        {
+            "RA": [1.0, 2.0, 3.0],
+            "DE": [0.0, 1.0, 2.0],
+            "Plx": [1.0, 1.0, 1.0],
+            "pmRA": [0.0, 0.0, 0.0],
+            "pmDE": [0.0, 0.0, 0.0],
+            "RV": pd.array([10.0, None, 30.0], dtype="Float64"),
+            "source_id": [7, 8, 9],
+        }
+    ).set_index("source_id")
     out = read_catalog(df)
     np.testing.assert_array_equal(out["source_id"], [7, 8, 9])
     assert np.isnan(out["radial_velocity"][1])
@@ -204,24 +212,58 @@ def test_empty_table_keeps_columns():
 
 # ---- names -------------------------------------------------------------------------------------
 
+
 def test_catalogue_service_spellings_are_renamed():
     # Column labels of the Gaia DR3 table in VizieR (I/355), from memory.
-    t = Table({
-        "Source": [1, 2], "RA_ICRS": [10.0, 11.0], "DE_ICRS": [1.0, 2.0], "Plx": [1.0, 2.0],
-        "e_Plx": [0.1, 0.2], "pmRA": [1.0, 2.0], "e_pmRA": [0.1, 0.1], "pmDE": [3.0, 4.0],
-        "e_pmDE": [0.1, 0.1], "RV": [5.0, 6.0], "e_RV": [1.0, 1.0], "RADEcor": [0.1, 0.2],
-        "PlxpmRAcor": [-0.3, 0.3],
-    })
+    t = Table(
+        {
+            "Source": [1, 2],
+            "RA_ICRS": [10.0, 11.0],
+            "DE_ICRS": [1.0, 2.0],
+            "Plx": [1.0, 2.0],
+            "e_Plx": [0.1, 0.2],
+            "pmRA": [1.0, 2.0],
+            "e_pmRA": [0.1, 0.1],
+            "pmDE": [3.0, 4.0],
+            "e_pmDE": [0.1, 0.1],
+            "RV": [5.0, 6.0],
+            "e_RV": [1.0, 1.0],
+            "RADEcor": [0.1, 0.2],
+            "PlxpmRAcor": [-0.3, 0.3],
+        }
+    )
     out = read_catalog(t)
     assert out.meta["renamed"] == {
-        "Source": "source_id", "RA_ICRS": "ra", "DE_ICRS": "dec", "Plx": "parallax",
-        "e_Plx": "parallax_error", "e_pmRA": "pmra_error", "pmRA": "pmra", "pmDE": "pmdec",
-        "e_pmDE": "pmdec_error", "RV": "radial_velocity", "e_RV": "radial_velocity_error",
-        "RADEcor": "ra_dec_corr", "PlxpmRAcor": "parallax_pmra_corr",
+        "Source": "source_id",
+        "RA_ICRS": "ra",
+        "DE_ICRS": "dec",
+        "Plx": "parallax",
+        "e_Plx": "parallax_error",
+        "e_pmRA": "pmra_error",
+        "pmRA": "pmra",
+        "pmDE": "pmdec",
+        "e_pmDE": "pmdec_error",
+        "RV": "radial_velocity",
+        "e_RV": "radial_velocity_error",
+        "RADEcor": "ra_dec_corr",
+        "PlxpmRAcor": "parallax_pmra_corr",
     }
-    assert out.colnames == ["source_id", "ra", "dec", "parallax", "parallax_error", "pmra", "pmra_error",
-                            "pmdec", "pmdec_error", "radial_velocity", "radial_velocity_error",
-                            "ra_dec_corr", "parallax_pmra_corr", "has_nan"]
+    assert out.colnames == [
+        "source_id",
+        "ra",
+        "dec",
+        "parallax",
+        "parallax_error",
+        "pmra",
+        "pmra_error",
+        "pmdec",
+        "pmdec_error",
+        "radial_velocity",
+        "radial_velocity_error",
+        "ra_dec_corr",
+        "parallax_pmra_corr",
+        "has_nan",
+    ]
     assert_quantity_allclose(out["parallax_error"], [0.1, 0.2] * u.mas)
 
 
@@ -306,6 +348,7 @@ def test_distance_instead_of_parallax():
 
 # ---- units ---------------------------------------------------------------------------------------
 
+
 def test_units_are_converted():
     t = QTable(minimal())
     t["ra"] = np.deg2rad(t["ra"]) * u.rad
@@ -358,8 +401,11 @@ def test_unit_stated_in_the_name():
 def test_incompatible_unit_is_an_error():
     t = QTable(minimal())
     t["parallax"] = t["parallax"] * u.km / u.s
-    with pytest.raises(CatalogError, match=r"column 'parallax' has unit 'km / s', which cannot be "
-                                           r"converted to the expected unit 'mas'"):
+    with pytest.raises(
+        CatalogError,
+        match=r"column 'parallax' has unit 'km / s', which cannot be "
+        r"converted to the expected unit 'mas'",
+    ):
         read_catalog(t)
 
 
@@ -384,39 +430,53 @@ def test_unrecognised_unit_from_a_file(tmp_path):
 
 # ---- checks of the values -------------------------------------------------------------------------
 
+
 def test_dec_out_of_range():
-    with pytest.raises(CatalogError, match=r"column 'dec': values outside \[-90, 90\] deg at rows 1, 3 "
-                                           r"\(values 95 deg, -90.5 deg\)"):
+    with pytest.raises(
+        CatalogError,
+        match=r"column 'dec': values outside \[-90, 90\] deg at rows 1, 3 "
+        r"\(values 95 deg, -90.5 deg\)",
+    ):
         read_catalog(minimal(dec=[0.0, 95.0, 90.0, -90.5]))
 
 
 def test_many_bad_rows_are_summarised():
     n = 12
-    t = Table({"ra": np.zeros(n), "dec": np.full(n, 91.0), "parallax": np.ones(n),
-               "pmra": np.zeros(n), "pmdec": np.zeros(n)})
+    t = Table(
+        {"ra": np.zeros(n), "dec": np.full(n, 91.0), "parallax": np.ones(n), "pmra": np.zeros(n), "pmdec": np.zeros(n)}
+    )
     with pytest.raises(CatalogError, match=r"rows 0, 1, 2, 3, 4, \.\.\. \(12 rows in all\) \(values 91 deg, "):
         read_catalog(t)
 
 
 def test_negative_uncertainty():
     t = minimal(e_Plx=[0.1, -0.2, 0.0, 0.3])
-    with pytest.raises(CatalogError, match=r"column 'parallax_error' \(input column 'e_Plx'\): negative "
-                                           r"uncertainties at row 1 \(value -0.2 mas\)"):
+    with pytest.raises(
+        CatalogError,
+        match=r"column 'parallax_error' \(input column 'e_Plx'\): negative "
+        r"uncertainties at row 1 \(value -0.2 mas\)",
+    ):
         read_catalog(t)
 
 
 def test_correlation_out_of_range():
     t = minimal(pmra_pmdec_corr=[0.5, 1.0, -1.0, 1.5])
-    with pytest.raises(CatalogError, match=r"'pmra_pmdec_corr': correlations outside \[-1, 1\] at row 3 "
-                                           r"\(value 1.5\)"):
+    with pytest.raises(
+        CatalogError,
+        match=r"'pmra_pmdec_corr': correlations outside \[-1, 1\] at row 3 "
+        r"\(value 1.5\)",
+    ):
         read_catalog(t)
 
 
 def test_distance_not_positive():
     t = QTable(minimal(parallax=None))
     t["distance"] = [1.0, 0.0, -5.0, 2.0] * u.pc
-    with pytest.raises(CatalogError, match=r"'distance': distances that are not positive at rows 1, 2 "
-                                           r"\(values 0 kpc, -0.005 kpc\)"):
+    with pytest.raises(
+        CatalogError,
+        match=r"'distance': distances that are not positive at rows 1, 2 "
+        r"\(values 0 kpc, -0.005 kpc\)",
+    ):
         read_catalog(t)
 
 
@@ -476,8 +536,7 @@ def test_ra_wrapping_property(ra):
     # Changed with the ra limit: values beyond +-RA_LIMIT_DEG (three turns) used to be wrapped too;
     # now they are refused, naming the rows. Values within the limit are checked as before.
     n = len(ra)
-    t = Table({"ra": ra, "dec": np.zeros(n), "parallax": np.ones(n), "pmra": np.zeros(n),
-               "pmdec": np.zeros(n)})
+    t = Table({"ra": ra, "dec": np.zeros(n), "parallax": np.ones(n), "pmra": np.zeros(n), "pmdec": np.zeros(n)})
     # Likewise subnormal values (below ~2.2e-308 in size, not zero) are refused, not wrapped.
     beyond = [i for i, value in enumerate(ra) if abs(value) > catalog.RA_LIMIT_DEG]
     subnormal = [i for i, value in enumerate(ra) if 0 < abs(value) < np.finfo(float).tiny]
@@ -509,14 +568,26 @@ def test_case_of_names_does_not_matter(upper):
 
 # ---- NaN and missing radial velocities ------------------------------------------------------------
 
+
 def test_nan_is_flagged_not_dropped():
-    t = minimal(parallax=[1.0, np.nan, 2.0, 3.0], pmra=[np.nan, np.nan, 1.0, 1.0],
-                RV=[1.0, 2.0, 3.0, np.nan], e_Plx=[np.nan, 0.1, 0.1, 0.1])
+    t = minimal(
+        parallax=[1.0, np.nan, 2.0, 3.0],
+        pmra=[np.nan, np.nan, 1.0, 1.0],
+        RV=[1.0, 2.0, 3.0, np.nan],
+        e_Plx=[np.nan, 0.1, 0.1, 0.1],
+    )
     out = read_catalog(t)
     assert len(out) == 4
     np.testing.assert_array_equal(out["has_nan"], [True, True, False, True])
-    assert out.meta["nan_counts"] == {"ra": 0, "dec": 0, "parallax": 1, "pmra": 2, "pmdec": 0,
-                                      "radial_velocity": 1, "parallax_error": 1}
+    assert out.meta["nan_counts"] == {
+        "ra": 0,
+        "dec": 0,
+        "parallax": 1,
+        "pmra": 2,
+        "pmdec": 0,
+        "radial_velocity": 1,
+        "parallax_error": 1,
+    }
     assert out.meta["nan_flag_columns"] == ["ra", "dec", "pmra", "pmdec", "parallax", "radial_velocity"]
     assert out.meta["filled_with_nan"] == []
 

@@ -6,9 +6,9 @@ import io
 import struct
 import warnings
 
+import astropy.units as u
 import numpy as np
 import pytest
-import astropy.units as u
 from astropy.io import fits
 from astropy.table import QTable, Table
 
@@ -31,6 +31,7 @@ def csv_text(header=HEADER, lines=LINES, sep=","):
 
 
 # ---- 1. repeated and clashing column names, in every format ------------------------------------------
+
 
 def _duplicate_message(path, name="pmra"):
     return rf"{path.name}: the header gives a column name more than once \('{name}' is columns \d+ and \d+"
@@ -60,10 +61,13 @@ def test_compressed_csv_and_file_object_with_a_repeated_column(tmp_path):
 
 def test_ecsv_with_a_repeated_column_is_refused(tmp_path):
     path = tmp_path / "dup.ecsv"
-    path.write_text("# %ECSV 1.0\n# ---\n# datatype:\n"
-                    + "".join(f"# - {{name: {n}, datatype: float64}}\n" for n in [*ROWS, "pmra"])
-                    + " ".join([*ROWS, "pmra"]) + "\n"
-                    + "".join(" ".join(repr(ROWS[k][i]) for k in ROWS) + " 9.0\n" for i in range(4)))
+    path.write_text(
+        "# %ECSV 1.0\n# ---\n# datatype:\n"
+        + "".join(f"# - {{name: {n}, datatype: float64}}\n" for n in [*ROWS, "pmra"])
+        + " ".join([*ROWS, "pmra"])
+        + "\n"
+        + "".join(" ".join(repr(ROWS[k][i]) for k in ROWS) + " 9.0\n" for i in range(4))
+    )
     with pytest.raises(CatalogError, match=_duplicate_message(path)):
         read_catalog(path)
 
@@ -95,8 +99,10 @@ def test_fits_with_a_repeated_column_is_refused(tmp_path):
 def _votable(fields, rows):
     head = "".join(f'<FIELD name="{name}" datatype="double"{extra}/>' for name, extra in fields)
     body = "".join("<TR>" + "".join(f"<TD>{v}</TD>" for v in row) + "</TR>" for row in rows)
-    return ('<?xml version="1.0"?>\n<VOTABLE version="1.4" xmlns="http://www.ivoa.net/xml/VOTable/v1.3">'
-            f"<RESOURCE><TABLE>{head}<DATA><TABLEDATA>{body}</TABLEDATA></DATA></TABLE></RESOURCE></VOTABLE>")
+    return (
+        '<?xml version="1.0"?>\n<VOTABLE version="1.4" xmlns="http://www.ivoa.net/xml/VOTable/v1.3">'
+        f"<RESOURCE><TABLE>{head}<DATA><TABLEDATA>{body}</TABLEDATA></DATA></TABLE></RESOURCE></VOTABLE>"
+    )
 
 
 def test_votable_with_a_repeated_column_is_refused(tmp_path):
@@ -118,10 +124,17 @@ def test_alias_clash_in_a_file_names_the_file(tmp_path, suffix):
     t = Table(ROWS)
     t["pm_ra"] = t["pmra"]
     path = tmp_path / f"clash{suffix}"
-    t.write(path, format={".csv": "ascii.csv", ".ecsv": "ascii.ecsv", ".fits": "fits", ".vot": "votable",
-                          ".parquet": "parquet"}[suffix])
-    with pytest.raises(CatalogError, match=rf"{path.name}: columns 'pmra' and 'pm_ra' all give the standard "
-                                           r"column 'pmra'"):
+    t.write(
+        path,
+        format={".csv": "ascii.csv", ".ecsv": "ascii.ecsv", ".fits": "fits", ".vot": "votable", ".parquet": "parquet"}[
+            suffix
+        ],
+    )
+    with pytest.raises(
+        CatalogError,
+        match=rf"{path.name}: columns 'pmra' and 'pm_ra' all give the standard "
+        r"column 'pmra'",
+    ):
         read_catalog(path)
 
 
@@ -140,6 +153,7 @@ def test_alias_clash_in_memory():
 
 # ---- 2. a Parquet file with damaged data pages ---------------------------------------------------------
 
+
 def _damaged_parquet(tmp_path, patches):
     """A Parquet file (plain encoding, no compression) with bytes of some values overwritten.
 
@@ -156,7 +170,7 @@ def _damaged_parquet(tmp_path, patches):
         packed = struct.pack("<d", value)  # PLAIN encoding: little-endian IEEE 754 doubles
         assert data.count(packed) == 1, value
         at = data.index(packed)
-        data[at:at + 8] = replacement
+        data[at : at + 8] = replacement
     path.write_bytes(bytes(data))
     return path
 
@@ -210,6 +224,7 @@ def test_radial_velocity_beyond_the_speed_of_light_is_refused():
 
 # ---- 3. byte order marks, delimiters, encodings ---------------------------------------------------------
 
+
 def test_csv_with_a_byte_order_mark_is_read(tmp_path):
     path = tmp_path / "bom.csv"
     path.write_bytes(b"\xef\xbb\xbf" + csv_text().encode())
@@ -250,8 +265,7 @@ def test_other_delimiters_are_named(tmp_path, sep, spoken):
 
 def test_latin1_file_gives_a_clear_message_and_encoding_reads_it(tmp_path):
     path = tmp_path / "latin.csv"
-    path.write_bytes((HEADER + ",name\n" + "\n".join(f"{line},Andr\xe9" for line in LINES) + "\n")
-                     .encode("latin-1"))
+    path.write_bytes((HEADER + ",name\n" + "\n".join(f"{line},Andr\xe9" for line in LINES) + "\n").encode("latin-1"))
     with pytest.raises(CatalogError) as info:
         read_catalog(path)
     msg = str(info.value)
@@ -281,11 +295,15 @@ def test_encoding_only_for_text(tmp_path):
 
 # ---- 4. distances that look like pc ---------------------------------------------------------------------
 
+
 def test_distance_without_unit_in_pc_warns():
     rows = dict(ROWS, dist=[120.0, 800.0, 2500.0, 60.0])
     del rows["parallax"]
-    with pytest.warns(DistanceUnitWarning, match=r"'distance' \(input column 'dist'\): the median distance is "
-                                                 r"460, taken as kpc \(no unit given\).*units=\{'distance': 'pc'\}"):
+    with pytest.warns(
+        DistanceUnitWarning,
+        match=r"'distance' \(input column 'dist'\): the median distance is "
+        r"460, taken as kpc \(no unit given\).*units=\{'distance': 'pc'\}",
+    ):
         out = read_catalog(Table(rows))
     assert out["distance"][0] == 120.0 * u.kpc  # a warning, the values are as given
     with warnings.catch_warnings():
@@ -301,9 +319,13 @@ def test_distance_without_unit_in_pc_warns():
 
 # ---- 6. absurd right ascensions, numbers written as text -----------------------------------------------
 
+
 def test_absurd_ra_is_refused_not_wrapped():
-    with pytest.raises(CatalogError, match=r"'ra': values beyond \+-1080 deg .* at rows 1, 2 "
-                                           r"\(values 1e\+20 deg, -1081 deg\)"):
+    with pytest.raises(
+        CatalogError,
+        match=r"'ra': values beyond \+-1080 deg .* at rows 1, 2 "
+        r"\(values 1e\+20 deg, -1081 deg\)",
+    ):
         read_catalog(Table(dict(ROWS, ra=[10.0, 1e20, -1081.0, 30.0])))
     out = read_catalog(Table(dict(ROWS, ra=[RA_LIMIT_DEG, -RA_LIMIT_DEG, -180.0, 719.5])))
     np.testing.assert_array_equal(out["ra"].value, [0.0, 0.0, 180.0, 359.5])
@@ -344,8 +366,9 @@ def test_numbers_as_bytes_and_objects():
 
 # ---------------------------------------------------------------------- content and units
 def test_a_file_whose_content_is_another_format_than_its_name_says(tmp_path):
-    import mwkin as mk
     from astropy.table import Table
+
+    import mwkin as mk
 
     path = tmp_path / "stars.csv"
     Table(mk.demo.survey(n=5, seed=1)).write(tmp_path / "stars.fits")
@@ -364,13 +387,14 @@ def test_parquet_page_checksums_are_verified(tmp_path):
     import mwkin as mk
 
     ra = np.full(64, 52.3232)
-    table = pa.table({"ra": ra, "dec": np.full(64, 10.0), "parallax": np.ones(64), "pmra": np.ones(64),
-                      "pmdec": np.ones(64)})
+    table = pa.table(
+        {"ra": ra, "dec": np.full(64, 10.0), "parallax": np.ones(64), "pmra": np.ones(64), "pmdec": np.ones(64)}
+    )
     path = tmp_path / "stars.parquet"
     pq.write_table(table, path, compression=None, use_dictionary=False, write_page_checksum=True)
     data = bytearray(path.read_bytes())
-    spot = data.find(np.float64(52.3232).tobytes() * 8)   # inside the data page, not its statistics
-    data[spot + 7] ^= 0x01          # the exponent byte of the first ra: a plausible, wrong value
+    spot = data.find(np.float64(52.3232).tobytes() * 8)  # inside the data page, not its statistics
+    data[spot + 7] ^= 0x01  # the exponent byte of the first ra: a plausible, wrong value
     path.write_bytes(bytes(data))
     with pytest.raises(CatalogError, match="fails its checksum"):
         mk.read_catalog(path)
@@ -379,12 +403,21 @@ def test_parquet_page_checksums_are_verified(tmp_path):
 def test_radial_velocities_in_m_per_s_without_a_unit_warn():
     import warnings
 
-    import mwkin as mk
     from astropy.table import Table
+
+    import mwkin as mk
     from mwkin.catalog import VelocityUnitWarning
 
-    stars = Table({"ra": [10.0, 20.0, 30.0], "dec": [0.0, 5.0, 10.0], "parallax": [1.0, 2.0, 3.0],
-                   "pmra": [1.0, 2.0, 3.0], "pmdec": [1.0, 2.0, 3.0], "radial_velocity": [25e3, -31e3, 12e3]})
+    stars = Table(
+        {
+            "ra": [10.0, 20.0, 30.0],
+            "dec": [0.0, 5.0, 10.0],
+            "parallax": [1.0, 2.0, 3.0],
+            "pmra": [1.0, 2.0, 3.0],
+            "pmdec": [1.0, 2.0, 3.0],
+            "radial_velocity": [25e3, -31e3, 12e3],
+        }
+    )
     with pytest.warns(VelocityUnitWarning, match="median \\|radial velocity\\| is 25000.*m/s"):
         mk.read_catalog(stars)
     stars["radial_velocity"] = [25.0, -31.0, 12.0]

@@ -14,9 +14,9 @@ import math
 import re
 import warnings
 
+import astropy.units as u
 import numpy as np
 import pytest
-import astropy.units as u
 from astropy.table import QTable, Table
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
@@ -28,12 +28,12 @@ pytest.importorskip("pyarrow")
 
 TINY = np.finfo(np.float64).tiny
 COLUMNS = ("ra", "dec", "parallax", "pmra", "pmdec")
-FILE_FORMATS = {"csv": "ascii.csv", "ecsv": "ascii.ecsv", "fits": "fits", "votable": "votable",
-                "parquet": "parquet"}
+FILE_FORMATS = {"csv": "ascii.csv", "ecsv": "ascii.ecsv", "fits": "fits", "votable": "votable", "parquet": "parquet"}
 READERS = (*FILE_FORMATS, "table", "dataframe")
 SUFFIX = {"csv": ".csv", "ecsv": ".ecsv", "fits": ".fits", "votable": ".vot", "parquet": ".parquet"}
-FAST = settings(max_examples=30, deadline=None,
-                suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow])
+FAST = settings(
+    max_examples=30, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow]
+)
 
 # One cell: a plain value, or one kind of damage.
 _cell = st.one_of(
@@ -43,8 +43,9 @@ _cell = st.one_of(
     st.sampled_from([5e-310, -5e-320, 2.0e-308, -1e-315]),  # subnormal
     st.sampled_from([1e20, -1e300, 1.7e308, 1081.0, -1080.0, 1080.0, 90.0, -90.0, 0.0, -0.0]),
 )
-_table = st.integers(0, 4).flatmap(lambda n: st.fixed_dictionaries(
-    {name: st.lists(_cell, min_size=n, max_size=n) for name in COLUMNS}))
+_table = st.integers(0, 4).flatmap(
+    lambda n: st.fixed_dictionaries({name: st.lists(_cell, min_size=n, max_size=n) for name in COLUMNS})
+)
 
 _counter = iter(range(10**9))
 
@@ -58,13 +59,19 @@ def _write(tmp_path, reader, columns, units=None):
     units = units or {}
     if reader == "dataframe":
         return pd.DataFrame({k: np.asarray(v, dtype=float) for k, v in columns.items()})
-    t = QTable({k: np.asarray(v, dtype=float) * u.Unit(units[k] if k in units else STANDARD_UNITS[k]) for k, v in columns.items()})
+    t = QTable(
+        {
+            k: np.asarray(v, dtype=float) * u.Unit(units[k] if k in units else STANDARD_UNITS[k])
+            for k, v in columns.items()
+        }
+    )
     if reader == "table":
         return t
     path = _path(tmp_path, reader)
     if reader == "csv":  # written by hand with repr(): the exact digits, 'nan', 'inf' (no units in CSV)
-        lines = [",".join(columns)] + [",".join(repr(float(columns[k][i])) for k in columns)
-                                       for i in range(len(next(iter(columns.values()))))]
+        lines = [",".join(columns)] + [
+            ",".join(repr(float(columns[k][i])) for k in columns) for i in range(len(next(iter(columns.values()))))
+        ]
         path.write_text("\n".join(lines) + "\n")
     else:
         with warnings.catch_warnings():
@@ -78,9 +85,12 @@ def _problems(columns):
     bad = {}
     for name, values in columns.items():
         for i, v in enumerate(values):
-            wrong = (math.isinf(v) or (v != 0 and abs(v) < TINY)
-                     or (name == "ra" and abs(v) > RA_LIMIT_DEG)
-                     or (name == "dec" and not math.isnan(v) and abs(v) > 90.0))
+            wrong = (
+                math.isinf(v)
+                or (v != 0 and abs(v) < TINY)
+                or (name == "ra" and abs(v) > RA_LIMIT_DEG)
+                or (name == "dec" and not math.isnan(v) and abs(v) > 90.0)
+            )
             if wrong:
                 bad[name] = (i, STANDARD_UNITS[name].to_string())
                 break
@@ -153,8 +163,11 @@ def test_numbers_as_text(tmp_path, reader, text):
     junk = [i for i, s in enumerate(text) if s.strip() and not _is_number(s)]
     if reader == "csv":
         source = _path(tmp_path, reader)
-        source.write_text(",".join(columns) + ",pmdec\n" + "".join(
-            ",".join("1.0" for _ in columns) + "," + (f'"{s}"' if "," in s else s) + "\n" for s in text))
+        source.write_text(
+            ",".join(columns)
+            + ",pmdec\n"
+            + "".join(",".join("1.0" for _ in columns) + "," + (f'"{s}"' if "," in s else s) + "\n" for s in text)
+        )
     elif reader == "parquet":
         import pyarrow as pa
         import pyarrow.parquet as pq
@@ -192,6 +205,7 @@ def _is_number(text):
 
 # ---- repeated, clashing and missing columns ------------------------------------------------------------
 
+
 @pytest.mark.parametrize("reader", READERS)
 @FAST
 @given(column=st.sampled_from(COLUMNS), how=st.sampled_from(["alias", "drop"]), n=st.integers(0, 3))
@@ -218,15 +232,21 @@ def _raw_file(tmp_path, reader, names, rows):
     if reader == "csv":
         path.write_text(",".join(names) + "\n" + "".join(",".join(map(repr, r)) + "\n" for r in rows))
     elif reader == "ecsv":
-        path.write_text("# %ECSV 1.0\n# ---\n# datatype:\n"
-                        + "".join(f"# - {{name: {n}, datatype: float64}}\n" for n in names)
-                        + " ".join(names) + "\n" + "".join(" ".join(map(repr, r)) + "\n" for r in rows))
+        path.write_text(
+            "# %ECSV 1.0\n# ---\n# datatype:\n"
+            + "".join(f"# - {{name: {n}, datatype: float64}}\n" for n in names)
+            + " ".join(names)
+            + "\n"
+            + "".join(" ".join(map(repr, r)) + "\n" for r in rows)
+        )
     elif reader == "votable":
         fields = "".join(f'<FIELD name="{n}" datatype="double"/>' for n in names)
         body = "".join("<TR>" + "".join(f"<TD>{v!r}</TD>" for v in r) + "</TR>" for r in rows)
-        path.write_text('<?xml version="1.0"?><VOTABLE version="1.4" xmlns="http://www.ivoa.net/xml/VOTable/v1.3">'
-                        f"<RESOURCE><TABLE>{fields}<DATA><TABLEDATA>{body}</TABLEDATA></DATA></TABLE>"
-                        "</RESOURCE></VOTABLE>")
+        path.write_text(
+            '<?xml version="1.0"?><VOTABLE version="1.4" xmlns="http://www.ivoa.net/xml/VOTable/v1.3">'
+            f"<RESOURCE><TABLE>{fields}<DATA><TABLEDATA>{body}</TABLEDATA></DATA></TABLE>"
+            "</RESOURCE></VOTABLE>"
+        )
     elif reader == "parquet":
         import pyarrow as pa
         import pyarrow.parquet as pq
@@ -237,8 +257,10 @@ def _raw_file(tmp_path, reader, names, rows):
         from astropy.io import fits
 
         width = 24
-        cols = [fits.Column(name=f"c{i}".ljust(width, "x"), format="D",
-                            array=np.array([r[i] for r in rows], dtype=float)) for i in range(len(names))]
+        cols = [
+            fits.Column(name=f"c{i}".ljust(width, "x"), format="D", array=np.array([r[i] for r in rows], dtype=float))
+            for i in range(len(names))
+        ]
         fits.BinTableHDU.from_columns(cols).writeto(path)
         data = path.read_bytes()
         for i, name in enumerate(names):
@@ -256,8 +278,11 @@ def test_repeated_column_names_in_files(tmp_path, reader, column, n, last):
     names.insert(position, column)
     rows = [[float(j + 10 * i) for j in range(len(names))] for i in range(n)]
     path = _raw_file(tmp_path, reader, names, rows)
-    with pytest.raises(CatalogError, match=rf"{re.escape(path.name)}: the header gives a column name more than "
-                                           rf"once \('{column}' is columns \d+ and \d+"):
+    with pytest.raises(
+        CatalogError,
+        match=rf"{re.escape(path.name)}: the header gives a column name more than "
+        rf"once \('{column}' is columns \d+ and \d+",
+    ):
         read_catalog(path)
 
 
@@ -268,11 +293,17 @@ _UNITS = ["deg", "arcsec", "mas", "rad", "mas / yr", "arcsec / yr", "km / s", "k
 
 @pytest.mark.parametrize("reader", ["ecsv", "fits", "votable", "parquet", "table"])
 @FAST
-@given(column=st.sampled_from(COLUMNS), unit=st.sampled_from(_UNITS),
-       # values that stay normal floats after any unit conversion (subnormal results are refused, and
-       # that refusal has its own tests)
-       values=st.lists(st.floats(-1.0, 1.0, allow_nan=False, allow_subnormal=False)
-                       .filter(lambda v: v == 0.0 or abs(v) > 1e-290), min_size=1, max_size=3))
+@given(
+    column=st.sampled_from(COLUMNS),
+    unit=st.sampled_from(_UNITS),
+    # values that stay normal floats after any unit conversion (subnormal results are refused, and
+    # that refusal has its own tests)
+    values=st.lists(
+        st.floats(-1.0, 1.0, allow_nan=False, allow_subnormal=False).filter(lambda v: v == 0.0 or abs(v) > 1e-290),
+        min_size=1,
+        max_size=3,
+    ),
+)
 def test_units(tmp_path, reader, column, unit, values):
     n = len(values)
     columns = {k: [0.5] * n for k in COLUMNS}
@@ -302,10 +333,13 @@ def test_units(tmp_path, reader, column, unit, values):
 
 # ---- encodings ------------------------------------------------------------------------------------------
 
+
 @settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
-@given(encoding=st.sampled_from(["utf-8", "utf-8-sig", "latin-1", "utf-16"]),
-       name=st.text(alphabet="abcéñü", min_size=1, max_size=6),
-       values=st.lists(st.floats(-80.0, 80.0, allow_nan=False, allow_subnormal=False), min_size=1, max_size=3))
+@given(
+    encoding=st.sampled_from(["utf-8", "utf-8-sig", "latin-1", "utf-16"]),
+    name=st.text(alphabet="abcéñü", min_size=1, max_size=6),
+    values=st.lists(st.floats(-80.0, 80.0, allow_nan=False, allow_subnormal=False), min_size=1, max_size=3),
+)
 def test_encodings(tmp_path, encoding, name, values):
     lines = [",".join(COLUMNS) + ",name"] + [",".join(repr(v) for _ in COLUMNS) + f",x{name}" for v in values]
     path = _path(tmp_path, "csv")
@@ -317,8 +351,11 @@ def test_encodings(tmp_path, encoding, name, values):
         assert list(out["name"]) == [f"x{name}"] * len(values)
         np.testing.assert_array_equal(out["dec"].to_value(u.deg), values)
     else:
-        with pytest.raises(CatalogError, match=rf"could not read {re.escape(str(path))} as utf-8-sig text: .*"
-                                               rf"encoding='{'utf-16' if encoding == 'utf-16' else 'latin-1'}'"):
+        with pytest.raises(
+            CatalogError,
+            match=rf"could not read {re.escape(str(path))} as utf-8-sig text: .*"
+            rf"encoding='{'utf-16' if encoding == 'utf-16' else 'latin-1'}'",
+        ):
             read_catalog(path)
     out = read_catalog(path, encoding=encoding)  # stating the encoding always reads it exactly
     assert list(out["name"]) == [f"x{name}"] * len(values)

@@ -39,16 +39,16 @@ def test_convert_matches_the_library_call(sample_path, tmp_path):
     assert main(args) == 0
     written = QTable.read(out_path)
     frame = mk.SolarFrame.preset("astropy v4.0").replace(R0=8.3)
-    direct = mk.to_galactocentric(mk.read_catalog(sample_path), frame=frame,
-                                  distance=mk.InverseParallax(min_snr=8))
+    direct = mk.to_galactocentric(mk.read_catalog(sample_path), frame=frame, distance=mk.InverseParallax(min_snr=8))
     np.testing.assert_allclose(written["v_phi"].value, direct["v_phi"].value, equal_nan=True)
     assert written.meta["frame"]["R0_kpc"] == 8.3
 
 
 def test_oort_prints_summary_and_writes_json(sample_path, tmp_path, capsys):
     json_path = tmp_path / "fit.json"
-    assert main(["oort", str(sample_path), "--use", "both", "--distance-range", "0", "1",
-                 "--json", str(json_path)]) == 0
+    assert (
+        main(["oort", str(sample_path), "--use", "both", "--distance-range", "0", "1", "--json", str(json_path)]) == 0
+    )
     text = capsys.readouterr().out
     assert "A" in text and "km/s/kpc" in text
     data = json.loads(json_path.read_text())

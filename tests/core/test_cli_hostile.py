@@ -45,6 +45,7 @@ def _one_error_line(capsys, command):
 @pytest.fixture
 def no_computation(monkeypatch):
     """Make any computation fail the test: errors about the output must come before it."""
+
     def forbidden(*args, **kwargs):
         raise AssertionError("the computation ran before the output was checked")
 
@@ -61,6 +62,7 @@ def no_computation(monkeypatch):
 
 # ---------------------------------------------------------------- never write over an input
 
+
 @pytest.mark.parametrize("command", ["convert", "orbits"])
 def test_output_equal_to_input_is_refused_and_the_input_kept(sample, capsys, no_computation, command):
     before = sample.read_bytes()
@@ -74,8 +76,7 @@ def test_output_equal_to_input_is_refused_and_the_input_kept(sample, capsys, no_
     assert sample.read_bytes() == before
 
 
-def test_output_reaching_the_input_through_a_symlink_or_hard_link_is_refused(sample, tmp_path, capsys,
-                                                                             no_computation):
+def test_output_reaching_the_input_through_a_symlink_or_hard_link_is_refused(sample, tmp_path, capsys, no_computation):
     before = sample.read_bytes()
     link = tmp_path / "link.ecsv"
     link.symlink_to(sample)
@@ -95,6 +96,7 @@ def test_oort_json_over_the_input_is_refused(sample, capsys, no_computation):
 
 
 # ---------------------------------------------------------------- existing outputs
+
 
 @pytest.mark.parametrize("command", ["demo", "convert"])
 def test_existing_output_needs_overwrite(sample, tmp_path, capsys, command):
@@ -124,6 +126,7 @@ def test_oort_existing_json_needs_overwrite(sample, tmp_path, capsys):
 def test_interrupted_write_leaves_no_partial_file_and_keeps_the_old_one(sample, tmp_path, monkeypatch):
     out = tmp_path / "out.ecsv"
     out.write_text("old\n")
+
     def write_half_then_interrupt(self, path, **kwargs):
         with open(path, "w") as handle:
             handle.write("# %ECSV 1.0\nhalf")
@@ -153,9 +156,9 @@ def test_written_file_has_the_usual_permissions(sample, tmp_path):
 
 # ---------------------------------------------------------------- outputs checked before computing
 
+
 @pytest.mark.parametrize("name", ["out.txt", "out", "out.ecsv.gz", "out.hdf5"])
-def test_unknown_output_suffix_is_one_line_naming_suffix_and_supported(sample, tmp_path, capsys,
-                                                                       no_computation, name):
+def test_unknown_output_suffix_is_one_line_naming_suffix_and_supported(sample, tmp_path, capsys, no_computation, name):
     assert main(["convert", str(sample), str(tmp_path / name)]) == 2
     line = _one_error_line(capsys, "convert")
     suffix = os.path.splitext(name)[1]
@@ -186,26 +189,29 @@ def test_unknown_presets_are_caught_before_computing(sample, tmp_path, capsys, n
 
 # ---------------------------------------------------------------- options
 
-@pytest.mark.parametrize("args, option, value", [
-    (["demo", "{out}", "--seed", "-5"], "--seed", "-5"),
-    (["demo", "{out}", "--n", "0"], "--n", "0"),
-    (["demo", "{out}", "--n", "ten"], "--n", "ten"),
-    (["convert", "{inp}", "{out}", "--seed", "-5"], "--seed", "-5"),
-    (["convert", "{inp}", "{out}", "--n-samples", "0"], "--n-samples", "0"),
-    (["convert", "{inp}", "{out}", "--R0", "inf"], "--R0", "inf"),
-    (["convert", "{inp}", "{out}", "--R0", "-8"], "--R0", "-8"),
-    (["convert", "{inp}", "{out}", "--z-sun", "nan"], "--z-sun", "nan"),
-    (["convert", "{inp}", "{out}", "--v-sun", "1", "x", "3"], "--v-sun", "x"),
-    (["convert", "{inp}", "{out}", "--min-parallax-snr", "-1"], "--min-parallax-snr", "-1"),
-    (["convert", "{inp}", "{out}", "--parallax-zero-point", "inf"], "--parallax-zero-point", "inf"),
-    (["oort", "{inp}", "--bootstrap", "-2"], "--bootstrap", "-2"),
-    (["oort", "{inp}", "--distance-range", "1", "0.5"], "--distance-range", "1 0.5"),
-    (["oort", "{inp}", "--distance-range", "-1", "0.5"], "--distance-range", "-1"),
-    (["convert", "{inp}", "{out}", "--errors", "bayes"], "--errors", "bayes"),
-    (["convert", "{inp}", "{out}", "--no-such-option"], "--no-such-option", "--no-such-option"),
-])
-def test_bad_option_is_one_line_naming_option_and_value(sample, tmp_path, capsys, no_computation,
-                                                        args, option, value):
+
+@pytest.mark.parametrize(
+    "args, option, value",
+    [
+        (["demo", "{out}", "--seed", "-5"], "--seed", "-5"),
+        (["demo", "{out}", "--n", "0"], "--n", "0"),
+        (["demo", "{out}", "--n", "ten"], "--n", "ten"),
+        (["convert", "{inp}", "{out}", "--seed", "-5"], "--seed", "-5"),
+        (["convert", "{inp}", "{out}", "--n-samples", "0"], "--n-samples", "0"),
+        (["convert", "{inp}", "{out}", "--R0", "inf"], "--R0", "inf"),
+        (["convert", "{inp}", "{out}", "--R0", "-8"], "--R0", "-8"),
+        (["convert", "{inp}", "{out}", "--z-sun", "nan"], "--z-sun", "nan"),
+        (["convert", "{inp}", "{out}", "--v-sun", "1", "x", "3"], "--v-sun", "x"),
+        (["convert", "{inp}", "{out}", "--min-parallax-snr", "-1"], "--min-parallax-snr", "-1"),
+        (["convert", "{inp}", "{out}", "--parallax-zero-point", "inf"], "--parallax-zero-point", "inf"),
+        (["oort", "{inp}", "--bootstrap", "-2"], "--bootstrap", "-2"),
+        (["oort", "{inp}", "--distance-range", "1", "0.5"], "--distance-range", "1 0.5"),
+        (["oort", "{inp}", "--distance-range", "-1", "0.5"], "--distance-range", "-1"),
+        (["convert", "{inp}", "{out}", "--errors", "bayes"], "--errors", "bayes"),
+        (["convert", "{inp}", "{out}", "--no-such-option"], "--no-such-option", "--no-such-option"),
+    ],
+)
+def test_bad_option_is_one_line_naming_option_and_value(sample, tmp_path, capsys, no_computation, args, option, value):
     args = [a.format(inp=sample, out=tmp_path / "out.ecsv") for a in args]
     assert main(args) == 2
     line = _one_error_line(capsys, args[0])
@@ -247,6 +253,7 @@ def test_catalogue_errors_are_one_line(tmp_path, capsys):
 
 # ---------------------------------------------------------------- unit slips warn, in one line
 
+
 def test_z_sun_in_kpc_warns_naming_value_and_unit(sample, tmp_path, capsys):
     out = tmp_path / "gc.ecsv"
     assert main(["convert", str(sample), str(out), "--z-sun", "0.0208"]) == 0
@@ -268,6 +275,7 @@ def test_warning_as_error_is_one_line(sample, tmp_path, capsys):
 
 
 # ---------------------------------------------------------------- other formats still round-trip
+
 
 @pytest.mark.parametrize("suffix", [".fits", ".parquet", ".vot", ".csv"])
 def test_every_supported_suffix_writes_a_readable_table(sample, tmp_path, suffix):

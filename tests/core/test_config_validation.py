@@ -7,6 +7,7 @@ the value and the unit; plausible-but-suspicious plain numbers give an Implausib
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import warnings
 
@@ -30,6 +31,7 @@ def _frame_dict(**changes):
 
 # ---------------------------------------------------------------- SolarFrame.from_dict types
 
+
 def test_from_dict_refuses_a_string_v_sun_instead_of_taking_it_apart():
     # The bug: tuple("245") gave v_sun = (2, 4, 5).
     with pytest.raises(FrameError, match=r"v_sun.*three components.*km/s.*'245'"):
@@ -38,15 +40,18 @@ def test_from_dict_refuses_a_string_v_sun_instead_of_taking_it_apart():
         SolarFrame.from_dict(_frame_dict(v_sun_kms="245"))
 
 
-@pytest.mark.parametrize("key, value, unit", [
-    ("R0_kpc", "8.2", "kpc"),
-    ("R0_kpc", True, "kpc"),
-    ("z_sun_pc", False, "pc"),
-    ("z_sun_pc", None, "pc"),
-    ("z_sun_pc", [20.8], "pc"),
-    ("roll_deg", "0", "deg"),
-    ("galcen_ra_deg", {"value": 266.4}, "deg"),
-])
+@pytest.mark.parametrize(
+    "key, value, unit",
+    [
+        ("R0_kpc", "8.2", "kpc"),
+        ("R0_kpc", True, "kpc"),
+        ("z_sun_pc", False, "pc"),
+        ("z_sun_pc", None, "pc"),
+        ("z_sun_pc", [20.8], "pc"),
+        ("roll_deg", "0", "deg"),
+        ("galcen_ra_deg", {"value": 266.4}, "deg"),
+    ],
+)
 def test_from_dict_refuses_wrong_scalar_types(key, value, unit):
     with pytest.raises(FrameError) as err:
         SolarFrame.from_dict(_frame_dict(**{key: value}))
@@ -54,24 +59,26 @@ def test_from_dict_refuses_wrong_scalar_types(key, value, unit):
     assert key.rsplit("_", 1)[0] in message and unit in message and repr(value)[:10] in message
 
 
-@pytest.mark.parametrize("value, fragment", [
-    ([1.0, 2.0], "got 2"),
-    ([1.0, 2.0, 3.0, 4.0], "got 4"),
-    ([[12.9, 245.6, 7.78]], "got 1"),
-    ([[1.0], [2.0], [3.0]], "v_sun_kms[0] (vx)"),
-    ([12.9, True, 7.78], "v_sun_kms[1] (vy)"),
-    ([12.9, "245.6", 7.78], "v_sun_kms[1] (vy)"),
-    ({"vx": 1, "vy": 2, "vz": 3}, "three components"),
-    (245.6, "three components"),
-])
+@pytest.mark.parametrize(
+    "value, fragment",
+    [
+        ([1.0, 2.0], "got 2"),
+        ([1.0, 2.0, 3.0, 4.0], "got 4"),
+        ([[12.9, 245.6, 7.78]], "got 1"),
+        ([[1.0], [2.0], [3.0]], "v_sun_kms[0] (vx)"),
+        ([12.9, True, 7.78], "v_sun_kms[1] (vy)"),
+        ([12.9, "245.6", 7.78], "v_sun_kms[1] (vy)"),
+        ({"vx": 1, "vy": 2, "vz": 3}, "three components"),
+        (245.6, "three components"),
+    ],
+)
 def test_from_dict_refuses_malformed_v_sun(value, fragment):
     with pytest.raises(FrameError) as err:
         SolarFrame.from_dict(_frame_dict(v_sun_kms=value))
     assert fragment in str(err.value) and "km/s" in str(err.value)
 
 
-@pytest.mark.parametrize("key", ["R0_kpc", "z_sun_pc", "v_sun_kms", "roll_deg", "galcen_ra_deg",
-                                 "galcen_dec_deg"])
+@pytest.mark.parametrize("key", ["R0_kpc", "z_sun_pc", "v_sun_kms", "roll_deg", "galcen_ra_deg", "galcen_dec_deg"])
 def test_from_dict_missing_key_is_an_error_naming_it(key):
     data = _frame_dict()
     del data[key]
@@ -101,25 +108,35 @@ def test_from_dict_accepts_numpy_numbers_and_keeps_values_exactly():
 
 # ---------------------------------------------------------------- SolarFrame(...) types
 
-@pytest.mark.parametrize("kwargs, fragment", [
-    (dict(R0="8.2"), "R0 must be a real number in kpc, got '8.2'"),
-    (dict(R0=True), "R0 must be a real number in kpc, got True"),
-    (dict(z_sun="20"), "z_sun must be a real number in pc"),
-    (dict(v_sun="245"), "v_sun must have three components"),
-    (dict(v_sun=(1.0, 2.0, None)), "v_sun[2] (vz)"),
-    (dict(roll=[0.0]), "roll must be a real number in deg"),
-    (dict(R0=[8.0, 8.1] * u.kpc), "R0 must be a single real number in kpc"),
-])
+
+@pytest.mark.parametrize(
+    "kwargs, fragment",
+    [
+        (dict(R0="8.2"), "R0 must be a real number in kpc, got '8.2'"),
+        (dict(R0=True), "R0 must be a real number in kpc, got True"),
+        (dict(z_sun="20"), "z_sun must be a real number in pc"),
+        (dict(v_sun="245"), "v_sun must have three components"),
+        (dict(v_sun=(1.0, 2.0, None)), "v_sun[2] (vz)"),
+        (dict(roll=[0.0]), "roll must be a real number in deg"),
+        (dict(R0=[8.0, 8.1] * u.kpc), "R0 must be a single real number in kpc"),
+    ],
+)
 def test_constructor_refuses_wrong_types(kwargs, fragment):
     with pytest.raises(FrameError) as err:
         SolarFrame(**kwargs)
     assert fragment in str(err.value)
 
 
-@pytest.mark.parametrize("name, value, unit", [
-    ("R0", math.inf, "kpc"), ("R0", -math.inf, "kpc"), ("R0", math.nan, "kpc"),
-    ("z_sun", math.inf, "pc"), ("z_sun", math.nan, "pc"),
-])
+@pytest.mark.parametrize(
+    "name, value, unit",
+    [
+        ("R0", math.inf, "kpc"),
+        ("R0", -math.inf, "kpc"),
+        ("R0", math.nan, "kpc"),
+        ("z_sun", math.inf, "pc"),
+        ("z_sun", math.nan, "pc"),
+    ],
+)
 def test_non_finite_scalars_are_errors_naming_parameter_and_unit(name, value, unit):
     with pytest.raises(FrameError, match=rf"{name} must be finite, got {value} {unit}"):
         SolarFrame(**{name: value})
@@ -133,6 +150,7 @@ def test_non_finite_v_sun_names_the_component_and_unit():
 
 
 # ---------------------------------------------------------------- presets cannot be changed
+
 
 def test_frame_presets_cannot_be_changed_through_presets():
     before = SolarFrame.preset("astropy v4.0")
@@ -153,22 +171,26 @@ def test_potential_presets_and_defaults_cannot_be_changed():
     assert "MWPotential2014" in Potential.presets()
     with pytest.raises(TypeError):
         DEFAULT_DISC["mass"] = 1.0
-    with pytest.raises(Exception):  # frozen dataclass
+    with pytest.raises(dataclasses.FrozenInstanceError):
         Potential.presets()["MWPotential2014"].citation = "changed"
     assert Potential.presets()["MWPotential2014"].citation == "Bovy 2015, ApJS 216, 29"
 
 
 # ---------------------------------------------------------------- implausible values warn
 
-@pytest.mark.parametrize("kwargs, fragment", [
-    (dict(z_sun=0.0208), "z_sun = 0.0208 pc"),
-    (dict(z_sun=-0.5), "z_sun = -0.5 pc"),
-    (dict(R0=8122.0, z_sun=20.8), "R0 = 8122 kpc"),
-    (dict(R0=100.0), "R0 = 100 kpc"),
-    (dict(R0=0.5, z_sun=20.8), "R0 = 0.5 kpc"),
-    (dict(v_sun=(12.9, 245600.0, 7.78)), "v_sun[1] (vy) = 245600 km/s"),
-    (dict(v_sun=(-1500.0, 245.6, 7.78)), "v_sun[0] (vx) = -1500 km/s"),
-])
+
+@pytest.mark.parametrize(
+    "kwargs, fragment",
+    [
+        (dict(z_sun=0.0208), "z_sun = 0.0208 pc"),
+        (dict(z_sun=-0.5), "z_sun = -0.5 pc"),
+        (dict(R0=8122.0, z_sun=20.8), "R0 = 8122 kpc"),
+        (dict(R0=100.0), "R0 = 100 kpc"),
+        (dict(R0=0.5, z_sun=20.8), "R0 = 0.5 kpc"),
+        (dict(v_sun=(12.9, 245600.0, 7.78)), "v_sun[1] (vy) = 245600 km/s"),
+        (dict(v_sun=(-1500.0, 245.6, 7.78)), "v_sun[0] (vx) = -1500 km/s"),
+    ],
+)
 def test_implausible_plain_numbers_warn_naming_value_and_unit(kwargs, fragment):
     with pytest.warns(ImplausibleValueWarning, match=re_escape(fragment)) as record:
         frame = SolarFrame(**kwargs)
@@ -225,10 +247,13 @@ def test_scaled_to_warns_for_an_implausible_circular_speed():
 
 # ---------------------------------------------------------------- Potential.from_dict
 
-THREE = {"kind": "three_component", "name": "mine",
-         "bulge": {"model": "hernquist", "mass": 1e10, "scale": 0.6},
-         "disc": {"mass": 6e10, "a": 3.0, "b": 0.3},
-         "halo": {"mass": 4e11, "scale": 16.0}}
+THREE = {
+    "kind": "three_component",
+    "name": "mine",
+    "bulge": {"model": "hernquist", "mass": 1e10, "scale": 0.6},
+    "disc": {"mass": 6e10, "a": 3.0, "b": 0.3},
+    "halo": {"mass": 4e11, "scale": 16.0},
+}
 
 
 def _three(**changes):
@@ -257,14 +282,17 @@ def test_three_component_from_dict_round_trip_is_exact():
     assert pot.to_dict() == THREE
 
 
-@pytest.mark.parametrize("key, fragment", [
-    ("disc.mass", "disc parameter 'mass' (Msun) is required"),
-    ("disc.b", "disc parameter 'b' (kpc) is required"),
-    ("halo.scale", "halo parameter 'scale' (kpc) is required"),
-    ("bulge.model", "bulge: missing required key(s) 'model'"),
-    ("disc", "missing required key(s) 'disc'"),
-    ("halo", "missing required key(s) 'halo'"),
-])
+@pytest.mark.parametrize(
+    "key, fragment",
+    [
+        ("disc.mass", "disc parameter 'mass' (Msun) is required"),
+        ("disc.b", "disc parameter 'b' (kpc) is required"),
+        ("halo.scale", "halo parameter 'scale' (kpc) is required"),
+        ("bulge.model", "bulge: missing required key(s) 'model'"),
+        ("disc", "missing required key(s) 'disc'"),
+        ("halo", "missing required key(s) 'halo'"),
+    ],
+)
 def test_from_dict_has_no_silent_defaults(key, fragment):
     # The bug: a missing parameter silently took MWPotential2014's value.
     with pytest.raises(PotentialError) as err:
@@ -272,34 +300,44 @@ def test_from_dict_has_no_silent_defaults(key, fragment):
     assert fragment in str(err.value)
 
 
-@pytest.mark.parametrize("key, value, fragment", [
-    ("disc.mass", "6e10", "disc.mass must be a real number in Msun, got '6e10'"),
-    ("disc.a", True, "disc.a must be a real number in kpc, got True"),
-    ("halo.scale", [16.0], "halo.scale must be a real number in kpc, got [16.0]"),
-    ("bulge.scale", None, "bulge.scale must be a real number in kpc, got None"),
-    ("disc", [6e10, 3.0, 0.3], "disc must be a dict"),
-    ("bulge.model", 3, "bulge model must be 'power_law_cutoff' or 'hernquist', got 3"),
-    ("name", 7, "name must be a string, got 7"),
-    ("kind", ["preset"], "unknown potential kind ['preset']"),
-    ("extra", 1, "unknown three_component key(s) ['extra']"),
-])
+@pytest.mark.parametrize(
+    "key, value, fragment",
+    [
+        ("disc.mass", "6e10", "disc.mass must be a real number in Msun, got '6e10'"),
+        ("disc.a", True, "disc.a must be a real number in kpc, got True"),
+        ("halo.scale", [16.0], "halo.scale must be a real number in kpc, got [16.0]"),
+        ("bulge.scale", None, "bulge.scale must be a real number in kpc, got None"),
+        ("disc", [6e10, 3.0, 0.3], "disc must be a dict"),
+        ("bulge.model", 3, "bulge model must be 'power_law_cutoff' or 'hernquist', got 3"),
+        ("name", 7, "name must be a string, got 7"),
+        ("kind", ["preset"], "unknown potential kind ['preset']"),
+        ("extra", 1, "unknown three_component key(s) ['extra']"),
+    ],
+)
 def test_from_dict_refuses_wrong_types(key, value, fragment):
     with pytest.raises(PotentialError) as err:
         Potential.from_dict(_three(**{key: value}))
     assert fragment in str(err.value)
 
 
-@pytest.mark.parametrize("data, fragment", [
-    ({}, "missing required key(s) 'kind'"),
-    ({"kind": "preset"}, "missing required key(s) 'name'"),
-    ({"kind": "preset", "name": 2014}, "name must be a string, got 2014"),
-    ({"kind": "preset", "name": "MWPotential2014", "scaled_to": {"vc_kms": 230}},
-     "scaled_to: missing required key(s) 'R_kpc' (kpc)"),
-    ({"kind": "preset", "name": "MWPotential2014", "scaled_to": {"vc_kms": "230", "R_kpc": 8}},
-     "scaled_to.vc_kms must be a real number in km/s, got '230'"),
-    ({"kind": "preset", "name": "MWPotential2014", "scaled_to": [230, 8]}, "scaled_to must be a dict"),
-    ("MWPotential2014", "potential must be a dict"),
-])
+@pytest.mark.parametrize(
+    "data, fragment",
+    [
+        ({}, "missing required key(s) 'kind'"),
+        ({"kind": "preset"}, "missing required key(s) 'name'"),
+        ({"kind": "preset", "name": 2014}, "name must be a string, got 2014"),
+        (
+            {"kind": "preset", "name": "MWPotential2014", "scaled_to": {"vc_kms": 230}},
+            "scaled_to: missing required key(s) 'R_kpc' (kpc)",
+        ),
+        (
+            {"kind": "preset", "name": "MWPotential2014", "scaled_to": {"vc_kms": "230", "R_kpc": 8}},
+            "scaled_to.vc_kms must be a real number in km/s, got '230'",
+        ),
+        ({"kind": "preset", "name": "MWPotential2014", "scaled_to": [230, 8]}, "scaled_to must be a dict"),
+        ("MWPotential2014", "potential must be a dict"),
+    ],
+)
 def test_from_dict_refuses_missing_and_malformed_keys(data, fragment):
     with pytest.raises(PotentialError) as err:
         Potential.from_dict(data)
@@ -320,6 +358,7 @@ def test_three_component_keeps_documented_defaults_but_refuses_wrong_types():
 
 # ---------------------------------------------------------------- the helpers themselves
 
+
 def test_helpers_raise_the_callers_error_class():
     class MyError(ValueError):
         pass
@@ -336,14 +375,17 @@ def test_helpers_raise_the_callers_error_class():
 
 
 # ---------------------------------------------------------------------- distance choices
-@pytest.mark.parametrize("data, words", [
-    ({"method": "inverse_parallax", "min_snr": "5"}, "min_snr must be a real number"),
-    ({"method": "inverse_parallax", "zero_point_mas": True}, "zero_point_mas must be a real number in mas"),
-    ({"method": "distance_column", "column": 3}, "column"),
-    (["method"], "must be a dict"),
-    ({"method": ["inverse_parallax"]}, "unknown distance method"),
-    ({"method": "inverse_parallax", "cut": 5}, "unknown keys ['cut']"),
-])
+@pytest.mark.parametrize(
+    "data, words",
+    [
+        ({"method": "inverse_parallax", "min_snr": "5"}, "min_snr must be a real number"),
+        ({"method": "inverse_parallax", "zero_point_mas": True}, "zero_point_mas must be a real number in mas"),
+        ({"method": "distance_column", "column": 3}, "column"),
+        (["method"], "must be a dict"),
+        ({"method": ["inverse_parallax"]}, "unknown distance method"),
+        ({"method": "inverse_parallax", "cut": 5}, "unknown keys ['cut']"),
+    ],
+)
 def test_distance_from_dict_names_the_bad_key(data, words):
     from mwkin.distances import DistanceError, distance_from_dict
 

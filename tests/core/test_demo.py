@@ -4,9 +4,9 @@ from __future__ import annotations
 
 import json
 
+import astropy.units as u
 import numpy as np
 import pytest
-import astropy.units as u
 
 from mwkin.catalog import CORRELATION_COLUMNS, read_catalog
 from mwkin.demo import DEFAULTS, survey
@@ -42,9 +42,20 @@ def test_same_seed_same_table_other_seed_other_table(noisy):
 
 def test_gaia_columns_and_units(noisy):
     assert len(noisy) == N
-    units = {"ra": u.deg, "dec": u.deg, "parallax": u.mas, "pmra": u.mas / u.yr, "pmdec": u.mas / u.yr,
-             "radial_velocity": u.km / u.s, "ra_error": u.mas, "dec_error": u.mas, "parallax_error": u.mas,
-             "pmra_error": u.mas / u.yr, "pmdec_error": u.mas / u.yr, "radial_velocity_error": u.km / u.s}
+    units = {
+        "ra": u.deg,
+        "dec": u.deg,
+        "parallax": u.mas,
+        "pmra": u.mas / u.yr,
+        "pmdec": u.mas / u.yr,
+        "radial_velocity": u.km / u.s,
+        "ra_error": u.mas,
+        "dec_error": u.mas,
+        "parallax_error": u.mas,
+        "pmra_error": u.mas / u.yr,
+        "pmdec_error": u.mas / u.yr,
+        "radial_velocity_error": u.km / u.s,
+    }
     for col, unit in units.items():
         assert noisy[col].unit == unit, col
     for col in CORRELATION_COLUMNS:
@@ -61,8 +72,17 @@ def test_truth_is_complete_and_json_able(noisy):
     assert SolarFrame.from_dict(truth["frame"]) == SolarFrame.preset("astropy v4.0")
     assert noisy.meta["frame"] == truth["frame"]
     assert truth["C_kms_kpc"] == 0.0 and truth["K_kms_kpc"] == 0.0
-    for key in ("v0_kms", "beta", "R_sun_kpc", "A_kms_kpc", "B_kms_kpc", "Omega0_kms_kpc", "solar_motion_kms",
-                "dispersions_kms", "rotation_curve"):
+    for key in (
+        "v0_kms",
+        "beta",
+        "R_sun_kpc",
+        "A_kms_kpc",
+        "B_kms_kpc",
+        "Omega0_kms_kpc",
+        "solar_motion_kms",
+        "dispersions_kms",
+        "rotation_curve",
+    ):
         assert key in truth
 
 
@@ -103,8 +123,7 @@ def test_noise_free_table_has_the_same_stars(noisy, exact):
         assert np.std(p) == pytest.approx(1.0, abs=0.05)
     has_rv = np.isfinite(noisy["radial_velocity"].value)
     assert np.isfinite(exact["radial_velocity"].value).all()  # the truth has every radial velocity
-    p = ((noisy["radial_velocity"] - exact["radial_velocity"])
-         / exact["radial_velocity_error"]).to_value(u.one)[has_rv]
+    p = ((noisy["radial_velocity"] - exact["radial_velocity"]) / exact["radial_velocity_error"]).to_value(u.one)[has_rv]
     assert np.std(p) == pytest.approx(1.0, abs=0.08)
 
 
@@ -112,11 +131,13 @@ def test_noise_follows_the_stated_correlations(noisy, exact):
     # For each pair, the mean product of the two pulls estimates the mean stated correlation.
     dra = (noisy["ra"] - exact["ra"]).to_value(u.mas) * np.cos(exact["dec"].to_value(u.rad))
     dra = (dra + 180 * 3.6e6) % (360 * 3.6e6) - 180 * 3.6e6
-    pulls = [dra / exact["ra_error"].value,
-             (noisy["dec"] - exact["dec"]).to_value(u.mas) / exact["dec_error"].value,
-             ((noisy["parallax"] - exact["parallax"]) / exact["parallax_error"]).value,
-             ((noisy["pmra"] - exact["pmra"]) / exact["pmra_error"]).value,
-             ((noisy["pmdec"] - exact["pmdec"]) / exact["pmdec_error"]).value]
+    pulls = [
+        dra / exact["ra_error"].value,
+        (noisy["dec"] - exact["dec"]).to_value(u.mas) / exact["dec_error"].value,
+        ((noisy["parallax"] - exact["parallax"]) / exact["parallax_error"]).value,
+        ((noisy["pmra"] - exact["pmra"]) / exact["pmra_error"]).value,
+        ((noisy["pmdec"] - exact["pmdec"]) / exact["pmdec_error"]).value,
+    ]
     pairs = [(0, 1), (0, 2), (0, 3), (0, 4), (1, 2), (1, 3), (1, 4), (2, 3), (2, 4), (3, 4)]
     for name, (i, j) in zip(CORRELATION_COLUMNS, pairs):
         stated = np.asarray(exact[name])

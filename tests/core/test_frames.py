@@ -6,9 +6,9 @@ import dataclasses
 import json
 import math
 
+import astropy.units as u
 import numpy as np
 import pytest
-import astropy.units as u
 from astropy.coordinates import Galactocentric
 
 from mwkin.frames import FrameError, Preset, ReflexProperMotion, SolarFrame

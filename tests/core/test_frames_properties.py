@@ -23,11 +23,17 @@ from mwkin.units import ImplausibleValueWarning
 
 FAST = settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 
-numbers = st.one_of(st.floats(allow_nan=True, allow_infinity=True, width=64),
-                    st.integers(min_value=-10**6, max_value=10**6))
-junk = st.one_of(st.text(max_size=6), st.booleans(), st.none(), st.lists(numbers, max_size=4),
-                 st.dictionaries(st.text(max_size=3), numbers, max_size=2),
-                 st.lists(st.lists(numbers, min_size=1, max_size=3), min_size=1, max_size=3))
+numbers = st.one_of(
+    st.floats(allow_nan=True, allow_infinity=True, width=64), st.integers(min_value=-(10**6), max_value=10**6)
+)
+junk = st.one_of(
+    st.text(max_size=6),
+    st.booleans(),
+    st.none(),
+    st.lists(numbers, max_size=4),
+    st.dictionaries(st.text(max_size=3), numbers, max_size=2),
+    st.lists(st.lists(numbers, min_size=1, max_size=3), min_size=1, max_size=3),
+)
 values = st.one_of(numbers, junk)
 
 UNITS = {"R0": "kpc", "z_sun": "pc", "v_sun": "km/s"}
@@ -54,8 +60,9 @@ def _expect_frame(result, given_values, names_in_message):
         message = str(result)
         named = [n for n in names_in_message if n in message]
         assert named, message
-        assert any(UNITS.get(n.split("_kpc")[0].split("_pc")[0].split("_kms")[0], "") in message
-                   for n in named), message
+        assert any(UNITS.get(n.split("_kpc")[0].split("_pc")[0].split("_kms")[0], "") in message for n in named), (
+            message
+        )
         return False
     for name, value in given_values.items():
         got = getattr(result, name)
@@ -85,8 +92,7 @@ KEYS = sorted(GOOD)
 
 
 @FAST
-@given(key=st.sampled_from(KEYS + ["R_0", "zsun_pc"]), action=st.sampled_from(["set", "delete"]),
-       value=values)
+@given(key=st.sampled_from(KEYS + ["R_0", "zsun_pc"]), action=st.sampled_from(["set", "delete"]), value=values)
 def test_solar_frame_from_dict_is_exact_or_names_the_key(key, action, value):
     data = copy.deepcopy(GOOD)
     if action == "delete":
@@ -105,8 +111,9 @@ def test_solar_frame_from_dict_is_exact_or_names_the_key(key, action, value):
     out = json.loads(json.dumps(result.to_dict()))
     expected = {k: v for k, v in data.items()}
     expected.setdefault("label", "")
-    assert out == {k: (list(map(float, v)) if k == "v_sun_kms" else v if k == "label" else float(v))
-                   for k, v in expected.items()}
+    assert out == {
+        k: (list(map(float, v)) if k == "v_sun_kms" else v if k == "label" else float(v)) for k, v in expected.items()
+    }
     assert action == "set" or key in ("label", "R_0", "zsun_pc")
 
 
@@ -115,8 +122,11 @@ PARAM_KEYS = [(part, name) for part in ("bulge", "disc", "halo") for name in THR
 
 
 @settings(max_examples=30, deadline=None)
-@given(target=st.sampled_from(PARAM_KEYS + [("disc", "height"), ("halo", None), ("name", None)]),
-       action=st.sampled_from(["set", "delete"]), value=values)
+@given(
+    target=st.sampled_from(PARAM_KEYS + [("disc", "height"), ("halo", None), ("name", None)]),
+    action=st.sampled_from(["set", "delete"]),
+    value=values,
+)
 def test_potential_from_dict_is_exact_or_names_the_key(target, action, value):
     data = copy.deepcopy(THREE)
     part, name = target
@@ -142,9 +152,12 @@ def test_potential_from_dict_is_exact_or_names_the_key(target, action, value):
 
 
 @settings(max_examples=30, deadline=None)
-@given(part=st.sampled_from(["bulge", "disc", "halo"]),
-       params=st.dictionaries(st.sampled_from(["mass", "a", "b", "scale", "alpha", "cutoff", "model"]),
-                              values, max_size=3))
+@given(
+    part=st.sampled_from(["bulge", "disc", "halo"]),
+    params=st.dictionaries(
+        st.sampled_from(["mass", "a", "b", "scale", "alpha", "cutoff", "model"]), values, max_size=3
+    ),
+)
 def test_three_component_is_exact_or_names_the_parameter(part, params):
     result, _ = _build(lambda: Potential.three_component(**{part: params}))
     if isinstance(result, Exception):
@@ -159,6 +172,7 @@ def test_three_component_is_exact_or_names_the_parameter(part, params):
 
 # ---------------------------------------------------------------- the command line
 
+
 @pytest.fixture(scope="module")
 def tiny_input(tmp_path_factory):
     from mwkin.cli import main
@@ -169,11 +183,18 @@ def tiny_input(tmp_path_factory):
 
 
 OPTIONS = {  # option -> (how the result shows it, unit named in errors)
-    "--R0": ("R0_kpc", "kpc"), "--z-sun": ("z_sun_pc", "pc"), "--seed": (None, ""),
-    "--n-samples": (None, ""), "--min-parallax-snr": (None, ""), "--parallax-zero-point": (None, "mas"),
+    "--R0": ("R0_kpc", "kpc"),
+    "--z-sun": ("z_sun_pc", "pc"),
+    "--seed": (None, ""),
+    "--n-samples": (None, ""),
+    "--min-parallax-snr": (None, ""),
+    "--parallax-zero-point": (None, "mas"),
 }
-option_values = st.one_of(st.floats(allow_nan=True, allow_infinity=True).map(repr),
-                          st.integers(-50, 50).map(str), st.sampled_from(["", "x", "1e999", "-0", "8.2.1", "nan"]))
+option_values = st.one_of(
+    st.floats(allow_nan=True, allow_infinity=True).map(repr),
+    st.integers(-50, 50).map(str),
+    st.sampled_from(["", "x", "1e999", "-0", "8.2.1", "nan"]),
+)
 
 
 @settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])

@@ -10,27 +10,35 @@ from __future__ import annotations
 import json
 import math
 
+import astropy.units as u
 import numpy as np
 import pytest
-import astropy.units as u
 from astropy.table import QTable, Table
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from scipy.stats import norm
 
 from mwkin.catalog import CORRELATION_COLUMNS
-from mwkin.distances import (DistanceColumn, DistanceError, InverseParallax, REASONS, distance_from_dict)
-from mwkin.frames import SolarFrame
 from mwkin.coords import K_KMS_PER_MASYR_KPC
-from mwkin.kinematics import (OUTPUT_COLUMNS, KinematicsError, cylindrical_from_cartesian, from_galactocentric,
-                              galactocentric_from_observables, heliocentric_from_observables,
-                              observables_from_galactocentric, to_galactocentric)
+from mwkin.distances import REASONS, DistanceColumn, DistanceError, InverseParallax, distance_from_dict
+from mwkin.frames import SolarFrame
+from mwkin.kinematics import (
+    OUTPUT_COLUMNS,
+    KinematicsError,
+    cylindrical_from_cartesian,
+    from_galactocentric,
+    galactocentric_from_observables,
+    heliocentric_from_observables,
+    observables_from_galactocentric,
+    to_galactocentric,
+)
 
 KMS = u.km / u.s
 MASYR = u.mas / u.yr
 FRAME = SolarFrame(R0=8.0, z_sun=15.0, v_sun=(10.0, 235.0, 7.0), roll=2.0)
-CORR_INDEX = dict(zip(CORRELATION_COLUMNS, [(0, 1), (0, 2), (0, 3), (0, 4), (1, 2), (1, 3), (1, 4), (2, 3),
-                                            (2, 4), (3, 4)]))
+CORR_INDEX = dict(
+    zip(CORRELATION_COLUMNS, [(0, 1), (0, 2), (0, 3), (0, 4), (1, 2), (1, 3), (1, 4), (2, 3), (2, 4), (3, 4)])
+)
 
 
 def _random_correlations(rng, n):
@@ -44,14 +52,16 @@ def _random_correlations(rng, n):
 def _stars(rng, n=40, rel_plx_error=0.05, big_sky_errors=False, correlated=True):
     """A table of stars with all Gaia uncertainty and correlation columns."""
     plx = rng.uniform(0.3, 3.0, n)
-    t = QTable({
-        "ra": rng.uniform(0, 360, n) * u.deg,
-        "dec": np.degrees(np.arcsin(rng.uniform(-0.98, 0.98, n))) * u.deg,
-        "parallax": plx * u.mas,
-        "pmra": rng.normal(0, 20, n) * MASYR,
-        "pmdec": rng.normal(0, 20, n) * MASYR,
-        "radial_velocity": rng.normal(0, 50, n) * KMS,
-    })
+    t = QTable(
+        {
+            "ra": rng.uniform(0, 360, n) * u.deg,
+            "dec": np.degrees(np.arcsin(rng.uniform(-0.98, 0.98, n))) * u.deg,
+            "parallax": plx * u.mas,
+            "pmra": rng.normal(0, 20, n) * MASYR,
+            "pmdec": rng.normal(0, 20, n) * MASYR,
+            "radial_velocity": rng.normal(0, 50, n) * KMS,
+        }
+    )
     sky = 3e3 if big_sky_errors else 0.1  # mas; big values make the ra/dec terms visible
     t["ra_error"] = rng.uniform(0.3, 1.0, n) * sky * u.mas
     t["dec_error"] = rng.uniform(0.3, 1.0, n) * sky * u.mas
@@ -69,8 +79,13 @@ def _stars(rng, n=40, rel_plx_error=0.05, big_sky_errors=False, correlated=True)
 def _input_covariance(t):
     """The 6x6 covariance of (ra*, dec, parallax, pmra, pmdec, rv) per star, in mas, mas/yr, km/s."""
     n = len(t)
-    sig = np.stack([np.asarray(t[c].value) for c in ("ra_error", "dec_error", "parallax_error", "pmra_error",
-                                                      "pmdec_error", "radial_velocity_error")], axis=1)
+    sig = np.stack(
+        [
+            np.asarray(t[c].value)
+            for c in ("ra_error", "dec_error", "parallax_error", "pmra_error", "pmdec_error", "radial_velocity_error")
+        ],
+        axis=1,
+    )
     corr = np.tile(np.eye(6), (n, 1, 1))
     for name, (i, j) in CORR_INDEX.items():
         if name in t.colnames:
@@ -82,8 +97,10 @@ def _numerical_jacobian(t, frame):
     """Central-difference Jacobian of every output column with respect to the six inputs."""
     names = ("ra", "dec", "parallax", "pmra", "pmdec", "radial_velocity")
     base = {k: np.asarray(t[k].value, dtype=float) for k in names}
-    sig = [np.asarray(t[c].value) for c in ("ra_error", "dec_error", "parallax_error", "pmra_error",
-                                            "pmdec_error", "radial_velocity_error")]
+    sig = [
+        np.asarray(t[c].value)
+        for c in ("ra_error", "dec_error", "parallax_error", "pmra_error", "pmdec_error", "radial_velocity_error")
+    ]
     jac = {c: np.zeros((len(t), 6)) for c in OUTPUT_COLUMNS}
     for p, name in enumerate(names):
         h = 1e-3 * sig[p]
@@ -107,7 +124,7 @@ def test_output_columns_units_and_descriptions(rng):
     for name, (unit, description) in OUTPUT_COLUMNS.items():
         assert out[name].unit == unit
         assert out[name].info.description == description
-    assert list(out.colnames[:len(OUTPUT_COLUMNS)]) == list(OUTPUT_COLUMNS)
+    assert list(out.colnames[: len(OUTPUT_COLUMNS)]) == list(OUTPUT_COLUMNS)
     assert "positive in the direction of Galactic rotation" in out["v_phi"].info.description
     assert "+245" in out["v_phi"].info.description
     assert "increasing in the direction of Galactic rotation" in out["phi"].info.description
@@ -175,28 +192,44 @@ def test_cylindrical_sign_convention_by_hand():
 # ----------------------------------------------------------------------------------------- flags & counts
 def _problem_table():
     """Rows: fine, NaN parallax, low S/N, negative parallax, no RV, NaN pmra, NaN ra, zero-error parallax."""
-    return QTable({
-        "ra": [10.0, 20.0, 30.0, 40.0, 50.0, 60.0, np.nan, 80.0] * u.deg,
-        "dec": [0.0, 10.0, 20.0, 30.0, -40.0, -50.0, 0.0, 5.0] * u.deg,
-        "parallax": [2.0, np.nan, 0.3, -0.5, 1.0, 1.0, 1.0, 1.5] * u.mas,
-        "parallax_error": [0.1, 0.1, 0.1, 0.1, 0.1, 0.1, 0.1, np.nan] * u.mas,
-        "pmra": [1.0, 2.0, 3.0, 4.0, 5.0, np.nan, 7.0, 8.0] * MASYR,
-        "pmdec": [1.0] * 8 * MASYR,
-        "radial_velocity": [10.0, 10.0, 10.0, 10.0, np.nan, 10.0, 10.0, 10.0] * KMS,
-    })
+    return QTable(
+        {
+            "ra": [10.0, 20.0, 30.0, 40.0, 50.0, 60.0, np.nan, 80.0] * u.deg,
+            "dec": [0.0, 10.0, 20.0, 30.0, -40.0, -50.0, 0.0, 5.0] * u.deg,
+            "parallax": [2.0, np.nan, 0.3, -0.5, 1.0, 1.0, 1.0, 1.5] * u.mas,
+            "parallax_error": [0.1, 0.1, 0.1, 0.1, 0.1, 0.1, 0.1, np.nan] * u.mas,
+            "pmra": [1.0, 2.0, 3.0, 4.0, 5.0, np.nan, 7.0, 8.0] * MASYR,
+            "pmdec": [1.0] * 8 * MASYR,
+            "radial_velocity": [10.0, 10.0, 10.0, 10.0, np.nan, 10.0, 10.0, 10.0] * KMS,
+        }
+    )
 
 
 def test_flags_and_counts_for_missing_inputs():
     out = to_galactocentric(_problem_table(), FRAME)  # default: InverseParallax(min_snr=5)
     flags = list(out["flag"])
-    assert flags == ["", "no_parallax", "parallax_below_cut", "nonpositive_parallax", "no_radial_velocity",
-                     "no_proper_motion", "no_sky_position", "no_parallax_error"]
+    assert flags == [
+        "",
+        "no_parallax",
+        "parallax_below_cut",
+        "nonpositive_parallax",
+        "no_radial_velocity",
+        "no_proper_motion",
+        "no_sky_position",
+        "no_parallax_error",
+    ]
     assert list(out["has_velocity"]) == [True, False, False, False, False, False, False, False]
     assert out.meta["n_position"] == 3  # rows 0, 4, 5
     assert out.meta["n_velocity"] == 1
-    assert out.meta["dropped"] == {"no_sky_position": 1, "no_parallax": 1, "nonpositive_parallax": 1,
-                                   "no_parallax_error": 1, "parallax_below_cut": 1, "no_proper_motion": 1,
-                                   "no_radial_velocity": 1}
+    assert out.meta["dropped"] == {
+        "no_sky_position": 1,
+        "no_parallax": 1,
+        "nonpositive_parallax": 1,
+        "no_parallax_error": 1,
+        "parallax_below_cut": 1,
+        "no_proper_motion": 1,
+        "no_radial_velocity": 1,
+    }
     pos = np.isfinite(out["x"].value)
     vel = np.isfinite(out["vx"].value)
     assert list(pos) == [True, False, False, False, True, True, False, False]
@@ -210,8 +243,9 @@ def test_flags_and_counts_for_missing_inputs():
 
 
 def test_several_reasons_are_joined():
-    t = QTable({"ra": [10.0], "dec": [5.0], "parallax": [0.1], "parallax_error": [0.2], "pmra": [np.nan],
-                "pmdec": [1.0]})
+    t = QTable(
+        {"ra": [10.0], "dec": [5.0], "parallax": [0.1], "parallax_error": [0.2], "pmra": [np.nan], "pmdec": [1.0]}
+    )
     out = to_galactocentric(t, FRAME)
     assert out["flag"][0] == "parallax_below_cut,no_proper_motion,no_radial_velocity"
     assert out.meta["dropped"]["no_radial_velocity"] == 1
@@ -247,8 +281,7 @@ def test_inverse_parallax_cut_and_zero_point():
     np.testing.assert_allclose(res.distance_kpc[0], 1.0 / 1.017)
     assert list(res.usable) == [True, False, False, False]
     assert list(res.reason) == ["", "parallax_below_cut", "parallax_below_cut", "nonpositive_parallax"]
-    assert res.counts == {"no_parallax": 0, "nonpositive_parallax": 1, "no_parallax_error": 0,
-                          "parallax_below_cut": 2}
+    assert res.counts == {"no_parallax": 0, "nonpositive_parallax": 1, "no_parallax_error": 0, "parallax_below_cut": 2}
     np.testing.assert_allclose(res.distance_error_kpc[0], 0.1 / 1.017**2)
     assert np.isnan(res.distance_kpc[1:]).all()
     assert set(res.reason) <= set(REASONS) | {""}
@@ -300,8 +333,9 @@ def test_default_distance_choice_on_a_distance_only_table_is_an_error():
         to_galactocentric(t)
 
 
-@pytest.mark.parametrize("choice", [InverseParallax(), InverseParallax(min_snr=10, zero_point_mas=-0.017),
-                                    DistanceColumn("d_kpc")])
+@pytest.mark.parametrize(
+    "choice", [InverseParallax(), InverseParallax(min_snr=10, zero_point_mas=-0.017), DistanceColumn("d_kpc")]
+)
 def test_distance_choice_round_trip_and_describe(choice):
     data = json.loads(json.dumps(choice.to_dict()))
     assert distance_from_dict(data) == choice
@@ -315,8 +349,14 @@ def test_inverse_parallax_describe_carries_the_bias_caveat():
     assert "Bailer-Jones" in InverseParallax.__doc__ and "PASP 127, 994" in InverseParallax.__doc__
 
 
-@pytest.mark.parametrize("kwargs, match", [(dict(min_snr=-1), "min_snr"), (dict(min_snr=float("nan")), "min_snr"),
-                                           (dict(zero_point_mas=float("inf")), "zero_point")])
+@pytest.mark.parametrize(
+    "kwargs, match",
+    [
+        (dict(min_snr=-1), "min_snr"),
+        (dict(min_snr=float("nan")), "min_snr"),
+        (dict(zero_point_mas=float("inf")), "zero_point"),
+    ],
+)
 def test_bad_inverse_parallax_settings(kwargs, match):
     with pytest.raises(DistanceError, match=match):
         InverseParallax(**kwargs)
@@ -332,15 +372,18 @@ def test_bad_distance_dicts():
 
 
 # ----------------------------------------------------------------------------------------- bad arguments
-@pytest.mark.parametrize("kwargs, match", [
-    (dict(errors="bootstrap"), "errors must be one of"),
-    (dict(errors="montecarlo", n_samples=1), "n_samples"),
-    (dict(errors="montecarlo", n_samples=10.5), "n_samples"),
-    (dict(errors="montecarlo", percentiles=(16, 120)), "percentiles"),
-    (dict(errors="none", return_covariance=True), "return_covariance"),
-    (dict(distance=5.0), "distance must be a distance choice"),
-    (dict(frame="v4.0"), "frame must be a SolarFrame"),
-])
+@pytest.mark.parametrize(
+    "kwargs, match",
+    [
+        (dict(errors="bootstrap"), "errors must be one of"),
+        (dict(errors="montecarlo", n_samples=1), "n_samples"),
+        (dict(errors="montecarlo", n_samples=10.5), "n_samples"),
+        (dict(errors="montecarlo", percentiles=(16, 120)), "percentiles"),
+        (dict(errors="none", return_covariance=True), "return_covariance"),
+        (dict(distance=5.0), "distance must be a distance choice"),
+        (dict(frame="v4.0"), "frame must be a SolarFrame"),
+    ],
+)
 def test_bad_arguments(rng, kwargs, match):
     with pytest.raises(KinematicsError, match=match):
         to_galactocentric(_stars(rng, 2), **kwargs)
@@ -373,8 +416,10 @@ def test_linear_sigmas_match_numerical_jacobian(rng):
 def test_linear_covariances_are_consistent(rng):
     t = _stars(rng, 30)
     out = to_galactocentric(t, FRAME, errors="linear", return_covariance=True)
-    for key, cols in (("cov_galactocentric", ("x", "y", "z", "vx", "vy", "vz")),
-                      ("cov_heliocentric", ("X", "Y", "Z", "U", "V", "W"))):
+    for key, cols in (
+        ("cov_galactocentric", ("x", "y", "z", "vx", "vy", "vz")),
+        ("cov_heliocentric", ("X", "Y", "Z", "U", "V", "W")),
+    ):
         cov = np.asarray(out[key])
         assert cov.shape == (30, 6, 6)
         np.testing.assert_allclose(cov, cov.transpose(0, 2, 1), rtol=0, atol=0)
@@ -383,10 +428,12 @@ def test_linear_covariances_are_consistent(rng):
         np.testing.assert_allclose(np.sqrt(np.einsum("nii->ni", cov)), sig, rtol=1e-12)
     # The two are rotations of each other, so the traces of the blocks agree.
     g, h = np.asarray(out["cov_galactocentric"]), np.asarray(out["cov_heliocentric"])
-    np.testing.assert_allclose(np.trace(g[:, :3, :3], axis1=1, axis2=2), np.trace(h[:, :3, :3], axis1=1, axis2=2),
-                               rtol=1e-12)
-    np.testing.assert_allclose(np.trace(g[:, 3:, 3:], axis1=1, axis2=2), np.trace(h[:, 3:, 3:], axis1=1, axis2=2),
-                               rtol=1e-12)
+    np.testing.assert_allclose(
+        np.trace(g[:, :3, :3], axis1=1, axis2=2), np.trace(h[:, :3, :3], axis1=1, axis2=2), rtol=1e-12
+    )
+    np.testing.assert_allclose(
+        np.trace(g[:, 3:, 3:], axis1=1, axis2=2), np.trace(h[:, 3:, 3:], axis1=1, axis2=2), rtol=1e-12
+    )
 
 
 def test_linear_without_correlation_columns_equals_zero_correlation(rng):
@@ -454,8 +501,7 @@ def test_linear_and_montecarlo_agree_at_small_parallax_errors(rng):
     # (measured there with 4e5 samples; here 12000 samples, so a few per cent per star).
     t = _stars(rng, 24, rel_plx_error=0.06)
     lin = to_galactocentric(t, FRAME, errors="linear", distance=InverseParallax(min_snr=0))
-    mc = to_galactocentric(t, FRAME, errors="montecarlo", n_samples=12000, seed=7,
-                           distance=InverseParallax(min_snr=0))
+    mc = to_galactocentric(t, FRAME, errors="montecarlo", n_samples=12000, seed=7, distance=InverseParallax(min_snr=0))
     for col in OUTPUT_COLUMNS:
         ratio = mc[f"sigma_{col}"].value / lin[f"sigma_{col}"].value
         assert abs(np.median(ratio) - 1) < 0.02, col
@@ -471,8 +517,7 @@ def test_linear_and_montecarlo_part_ways_at_large_parallax_errors(rng):
     f = 0.3
     t = _stars(rng, 20, rel_plx_error=f)
     lin = to_galactocentric(t, FRAME, errors="linear", distance=InverseParallax(min_snr=0))
-    mc = to_galactocentric(t, FRAME, errors="montecarlo", n_samples=12000, seed=9,
-                           distance=InverseParallax(min_snr=0))
+    mc = to_galactocentric(t, FRAME, errors="montecarlo", n_samples=12000, seed=9, distance=InverseParallax(min_snr=0))
     plx = t["parallax"].value
     ratio = mc["sigma_distance"].value / lin["sigma_distance"].value
     expected = (1 / (1 - f) - 1 / (1 + f)) / 2 / f
@@ -491,8 +536,7 @@ def test_linear_and_montecarlo_part_ways_at_large_parallax_errors(rng):
 
 def test_montecarlo_counts_nonpositive_parallax_draws(rng):
     t = _stars(rng, 4, rel_plx_error=1.0)  # parallax S/N = 1: 15.9% of the draws are <= 0
-    out = to_galactocentric(t, FRAME, errors="montecarlo", n_samples=8000, seed=3,
-                            distance=InverseParallax(min_snr=0))
+    out = to_galactocentric(t, FRAME, errors="montecarlo", n_samples=8000, seed=3, distance=InverseParallax(min_snr=0))
     frac = out["mc_excluded_fraction"]
     np.testing.assert_allclose(frac, norm.cdf(-1.0), atol=0.015)  # scipy [lib]
     assert out.meta["mc_nonpositive_draws"] == pytest.approx(4 * 8000 * norm.cdf(-1.0), rel=0.05)
@@ -503,8 +547,18 @@ def test_montecarlo_counts_nonpositive_parallax_draws(rng):
 def test_montecarlo_angles_do_not_wrap(rng):
     # A star right at l = 0 has draws on both sides of 0/360; percentiles stay next to the nominal value.
     ra, dec = 266.40499, -28.93618  # the Hipparcos (l, b) = (0, 0) direction (REFERENCES.md)
-    t = QTable({"ra": [ra], "dec": [dec], "parallax": [0.5], "parallax_error": [0.01], "pmra": [0.0],
-                "pmdec": [0.0], "ra_error": [5000.0], "dec_error": [5000.0]})
+    t = QTable(
+        {
+            "ra": [ra],
+            "dec": [dec],
+            "parallax": [0.5],
+            "parallax_error": [0.01],
+            "pmra": [0.0],
+            "pmdec": [0.0],
+            "ra_error": [5000.0],
+            "dec_error": [5000.0],
+        }
+    )
     out = to_galactocentric(t, FRAME, errors="montecarlo", n_samples=2000, seed=1)
     l16, l50, l84 = (out[f"l_p{q}"].value[0] for q in (16, 50, 84))
     assert l16 < l50 < l84 and l84 - l16 < 0.01
@@ -530,9 +584,20 @@ def test_from_galactocentric_accepts_arrays_dicts_and_units():
     ps = np.array([[-8.0, 0.5, 0.1, 10.0, 230.0, 5.0], [-7.0, -1.0, -0.2, -30.0, 200.0, 0.0]])
     a = from_galactocentric(ps, FRAME)
     b = from_galactocentric(dict(zip(("x", "y", "z", "vx", "vy", "vz"), ps.T)), FRAME)
-    c = from_galactocentric(QTable({"x": ps[:, 0] * 1000 * u.pc, "y": ps[:, 1] * u.kpc, "z": ps[:, 2] * u.kpc,
-                                    "vx": ps[:, 3] * 1000 * u.m / u.s, "vy": ps[:, 4] * KMS,
-                                    "vz": ps[:, 5] * KMS, "source_id": [5, 6]}), FRAME)
+    c = from_galactocentric(
+        QTable(
+            {
+                "x": ps[:, 0] * 1000 * u.pc,
+                "y": ps[:, 1] * u.kpc,
+                "z": ps[:, 2] * u.kpc,
+                "vx": ps[:, 3] * 1000 * u.m / u.s,
+                "vy": ps[:, 4] * KMS,
+                "vz": ps[:, 5] * KMS,
+                "source_id": [5, 6],
+            }
+        ),
+        FRAME,
+    )
     for col in ("ra", "dec", "parallax", "pmra", "radial_velocity"):
         np.testing.assert_allclose(a[col].value, b[col].value, rtol=1e-15)
         np.testing.assert_allclose(a[col].value, c[col].value, rtol=1e-12)
@@ -547,8 +612,7 @@ def test_from_galactocentric_bad_input():
     from mwkin.units import UnitMismatchError
 
     with pytest.raises(UnitMismatchError, match="vx"):
-        from_galactocentric(QTable({"x": [1.0], "y": [1.0], "z": [1.0], "vx": [1.0] * u.kpc, "vy": [1.0],
-                                    "vz": [1.0]}))
+        from_galactocentric(QTable({"x": [1.0], "y": [1.0], "z": [1.0], "vx": [1.0] * u.kpc, "vy": [1.0], "vz": [1.0]}))
 
 
 def test_point_at_the_sun_has_no_direction():
@@ -579,8 +643,7 @@ _rv = st.floats(-1000.0, 1000.0)
 # the array-level functions above take them. These draw the same values without subnormals.
 _sky_table = st.tuples(
     st.floats(0.0, 360.0, exclude_max=True, allow_subnormal=False),
-    st.one_of(st.floats(-90.0, 90.0, allow_subnormal=False), st.floats(89.9999, 90.0),
-              st.floats(-90.0, -89.9999)),
+    st.one_of(st.floats(-90.0, 90.0, allow_subnormal=False), st.floats(89.9999, 90.0), st.floats(-90.0, -89.9999)),
 )
 _pm_table = st.floats(-1000.0, 1000.0, allow_subnormal=False)
 _rv_table = _pm_table
@@ -595,9 +658,15 @@ def test_property_round_trip(sky, d, pmra, pmdec, rv):
     # Positions come back to ~1e-16 of R0 (the Sun's offset sets the scale of the round-off).
     assert obs["distance"][0] == pytest.approx(d, rel=1e-12, abs=1e-13)
     tol_ang = 1e-13 * FRAME.R0 / d + 1e-12  # radians
-    sep = math.acos(min(1.0, math.sin(math.radians(dec)) * math.sin(math.radians(obs["dec"][0]))
-                        + math.cos(math.radians(dec)) * math.cos(math.radians(obs["dec"][0]))
-                        * math.cos(math.radians(obs["ra"][0] - ra))))
+    sep = math.acos(
+        min(
+            1.0,
+            math.sin(math.radians(dec)) * math.sin(math.radians(obs["dec"][0]))
+            + math.cos(math.radians(dec))
+            * math.cos(math.radians(obs["dec"][0]))
+            * math.cos(math.radians(obs["ra"][0] - ra)),
+        )
+    )
     assert sep < 10 * tol_ang + 1e-7  # acos near 1 loses half the digits
     speed = math.hypot(K_KMS_PER_MASYR_KPC * d * math.hypot(pmra, pmdec), rv)
     tol_v = 1e-12 * (300.0 + speed) * (1.0 + FRAME.R0 / d * 1e-3)
@@ -629,21 +698,35 @@ def test_property_invariants(sky, d, pmra, pmdec, rv):
     assert los == pytest.approx(rv, abs=1e-9 * (speed + 1.0))
     cyl = cylindrical_from_cartesian(*(gc[k] for k in ("x", "y", "z", "vx", "vy", "vz")))
     assert -math.pi <= cyl["phi"][0] <= math.pi
-    assert cyl["v_R"][0] ** 2 + cyl["v_phi"][0] ** 2 == pytest.approx(gc["vx"][0] ** 2 + gc["vy"][0] ** 2,
-                                                                     rel=1e-10, abs=1e-8)
+    assert cyl["v_R"][0] ** 2 + cyl["v_phi"][0] ** 2 == pytest.approx(
+        gc["vx"][0] ** 2 + gc["vy"][0] ** 2, rel=1e-10, abs=1e-8
+    )
 
 
 @settings(max_examples=25, deadline=None)
-@given(sky=_sky_table, plx=st.floats(0.05, 50.0), rel=st.floats(0.001, 0.1), pmra=_pm_table, pmdec=_pm_table,
-       rv=_rv_table)
+@given(
+    sky=_sky_table, plx=st.floats(0.05, 50.0), rel=st.floats(0.001, 0.1), pmra=_pm_table, pmdec=_pm_table, rv=_rv_table
+)
 def test_property_linear_errors_are_finite_and_scale(sky, plx, rel, pmra, pmdec, rv):
     # Doubling every input uncertainty doubles every linear sigma (linearity of the propagation).
     # (Draws without subnormal values since the catalogue reader refuses them; see _sky_table.)
     ra, dec = sky
-    row = {"ra": [ra], "dec": [dec], "parallax": [plx], "pmra": [pmra], "pmdec": [pmdec],
-           "radial_velocity": [rv], "ra_error": [0.1], "dec_error": [0.1], "parallax_error": [rel * plx],
-           "pmra_error": [0.2], "pmdec_error": [0.1], "radial_velocity_error": [2.0],
-           "parallax_pmra_corr": [0.4], "ra_dec_corr": [-0.3]}
+    row = {
+        "ra": [ra],
+        "dec": [dec],
+        "parallax": [plx],
+        "pmra": [pmra],
+        "pmdec": [pmdec],
+        "radial_velocity": [rv],
+        "ra_error": [0.1],
+        "dec_error": [0.1],
+        "parallax_error": [rel * plx],
+        "pmra_error": [0.2],
+        "pmdec_error": [0.1],
+        "radial_velocity_error": [2.0],
+        "parallax_pmra_corr": [0.4],
+        "ra_dec_corr": [-0.3],
+    }
     a = to_galactocentric(QTable(row), FRAME, errors="linear", distance=InverseParallax(min_snr=0))
     row2 = {k: ([2 * v[0]] if k.endswith("_error") else v) for k, v in row.items()}
     b = to_galactocentric(QTable(row2), FRAME, errors="linear", distance=InverseParallax(min_snr=0))

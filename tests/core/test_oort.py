@@ -11,14 +11,14 @@ import json
 import subprocess
 import sys
 
+import astropy.units as u
 import numpy as np
 import pytest
-import astropy.units as u
 from astropy.table import QTable
 
+from mwkin.coords import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC, proper_motions_to_galactic
 from mwkin.distances import DistanceColumn, InverseParallax
 from mwkin.frames import SolarFrame
-from mwkin.coords import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC, proper_motions_to_galactic
 from mwkin.oort import UNCONSTRAINED_ERROR, OortFit, OortInputError, fit_in_distance_bins, fit_oort
 from mwkin.oort.sample import galactic_geometry, prepare_sample, sky_motions
 
@@ -68,8 +68,9 @@ def mock(n=4000, seed=0, *, truth=TRUTH, sigma=(30.0, 20.0, 15.0), r_max=0.4, in
     if in_plane:
         direction[2] = 0.0
     pos = r * direction / np.linalg.norm(direction, axis=0)
-    grad = np.array([[truth["K"] + truth["C"], truth["A"] - truth["B"]],
-                     [truth["A"] + truth["B"], truth["K"] - truth["C"]]])
+    grad = np.array(
+        [[truth["K"] + truth["C"], truth["A"] - truth["B"]], [truth["A"] + truth["B"], truth["K"] - truth["C"]]]
+    )
     vel = np.zeros((3, n))
     vel[:2] = grad @ pos[:2]
     vel -= np.array([truth["U"], truth["V"], truth["W"]])[:, None]
@@ -112,8 +113,14 @@ def test_sky_motions_are_the_galactic_coordinates_the_fit_uses(rng):
     dec = np.degrees(np.arcsin(rng.uniform(-1, 1, n)))
     pmra, pmdec = rng.normal(0, 10, (2, n))
     lon, lat, mu_l, mu_b = proper_motions_to_galactic(np.radians(ra), np.radians(dec), pmra, pmdec)
-    table = QTable({"ra": ra * u.deg, "dec": np.radians(dec) * u.rad, "pmra": pmra * MASYR,
-                    "pmdec": pmdec * 1e-3 * u.arcsec / u.yr})
+    table = QTable(
+        {
+            "ra": ra * u.deg,
+            "dec": np.radians(dec) * u.rad,
+            "pmra": pmra * MASYR,
+            "pmdec": pmdec * 1e-3 * u.arcsec / u.yr,
+        }
+    )
     l_deg, b_deg, mu_l_star, mu_b_out = sky_motions(table)
     np.testing.assert_allclose(l_deg, np.degrees(np.mod(lon, 2 * np.pi)), atol=1e-9)
     assert np.all((l_deg >= 0) & (l_deg < 360))
@@ -177,8 +184,7 @@ def test_rotated_proper_motion_covariance_and_distance_term_match_a_numerical_ja
         return t
 
     def block_of(values):
-        prep = prepare_sample(one_row(values), use="both", distance=InverseParallax(min_snr=0),
-                              distance_range=(0, 10))
+        prep = prepare_sample(one_row(values), use="both", distance=InverseParallax(min_snr=0), distance_range=(0, 10))
         (block,) = prep.blocks
         return block
 
@@ -277,8 +283,8 @@ def test_normalised_residuals_are_aligned_and_unit_normal(stars):
 # ---------------------------------------------------------------------------------- selections and counts
 def test_drop_counts_by_reason():
     table = mock(2000, seed=7)
-    table["parallax"][:10] = -1.0 * u.mas                       # no usable distance
-    table["parallax_error"][10:20] = 1.0 * u.mas                 # below the signal-to-noise cut
+    table["parallax"][:10] = -1.0 * u.mas  # no usable distance
+    table["parallax_error"][10:20] = 1.0 * u.mas  # below the signal-to-noise cut
     table["radial_velocity"][20:40] = np.nan * KMS
     quality = np.ones(len(table), dtype=bool)
     quality[40:45] = False
@@ -312,7 +318,7 @@ def test_rows_without_position_or_proper_motion_are_left_out_not_propagated():
 
 def test_plain_dataframe_input_goes_through_read_catalog():
     table = mock(1500, seed=13)
-    frame = table.to_pandas()                                     # no units: the standard units are assumed
+    frame = table.to_pandas()  # no units: the standard units are assumed
     from_table = fit_oort(table)
     from_frame = fit_oort(frame)
     assert from_frame.n_used == from_table.n_used
@@ -352,7 +358,7 @@ def test_caveat_notes_follow_the_settings(stars):
 # ---------------------------------------------------------------------------------- robust and bootstrap
 def test_sigma_clipping_rejects_injected_outliers():
     table = mock(5000, seed=10)
-    bad = np.arange(0, 5000, 100)                                  # 50 stars
+    bad = np.arange(0, 5000, 100)  # 50 stars
     table["radial_velocity"][bad] += 400.0 * KMS
     table["pmra"][bad] += 300.0 / (k * table["distance"][bad].value) * MASYR
     plain = fit_oort(table)
@@ -414,7 +420,7 @@ def test_potential_comparison_takes_the_in_plane_R0():
         def describe(self):
             return "flat test curve"
 
-    frame = SolarFrame(R0=8.0, z_sun=100.0)                        # in-plane R0 = sqrt(8^2 - 0.1^2)
+    frame = SolarFrame(R0=8.0, z_sun=100.0)  # in-plane R0 = sqrt(8^2 - 0.1^2)
     result = fit_oort(mock(800, seed=11), frame=frame, potential=Flat())
     R = np.sqrt(8.0**2 - 0.1**2)
     assert result.potential_oort["R_kpc"] == pytest.approx(R)
@@ -433,8 +439,12 @@ def test_derived_quantities_and_their_errors(fit):
     assert fit.derived["Omega0"][1] == pytest.approx(np.sqrt(cov[0, 0] + cov[1, 1] - 2 * cov[0, 1]))
     # kappa's error by finite differences of sqrt(-4 B (A - B)) (first-order propagation).
     h = 1e-6
-    grad = np.array([(np.sqrt(-4 * B * (A + h - B)) - np.sqrt(-4 * B * (A - h - B))) / (2 * h),
-                     (np.sqrt(-4 * (B + h) * (A - B - h)) - np.sqrt(-4 * (B - h) * (A - B + h))) / (2 * h)])
+    grad = np.array(
+        [
+            (np.sqrt(-4 * B * (A + h - B)) - np.sqrt(-4 * B * (A - h - B))) / (2 * h),
+            (np.sqrt(-4 * (B + h) * (A - B - h)) - np.sqrt(-4 * (B - h) * (A - B + h))) / (2 * h),
+        ]
+    )
     assert fit.derived["kappa"][1] == pytest.approx(np.sqrt(grad @ cov @ grad), rel=1e-5)
 
 
@@ -494,8 +504,10 @@ def test_missing_columns_are_named(stars):
 
 
 def test_core_import_pulls_in_no_widget_library():
-    code = ("import sys, mwkin.oort; bad = [m for m in ('ipywidgets', 'bqplot', 'anywidget', 'traitlets') "
-            "if m in sys.modules]; print(bad); sys.exit(1 if bad else 0)")
+    code = (
+        "import sys, mwkin.oort; bad = [m for m in ('ipywidgets', 'bqplot', 'anywidget', 'traitlets') "
+        "if m in sys.modules]; print(bad); sys.exit(1 if bad else 0)"
+    )
     assert subprocess.run([sys.executable, "-c", code], capture_output=True).returncode == 0
 
 

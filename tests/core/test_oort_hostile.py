@@ -21,7 +21,7 @@ def spoiled(survey, n_bad, scale, seed=0):
     """The survey with ``n_bad`` nearby stars given wild proper motions (a cross-match gone wrong)."""
     table = Table(survey, copy=True)
     rng = np.random.default_rng(seed)
-    near = np.flatnonzero(np.asarray(table["parallax"]) > 2.0)          # within 0.5 kpc
+    near = np.flatnonzero(np.asarray(table["parallax"]) > 2.0)  # within 0.5 kpc
     bad = rng.choice(near, n_bad, replace=False)
     table["pmra"][bad] = rng.normal(0.0, scale, n_bad)
     table["pmdec"][bad] = rng.normal(0.0, scale, n_bad)
@@ -58,19 +58,22 @@ def test_heavy_tail_outliers_on_a_gaussian_and_a_contaminated_sample(rng):
     # Gaussian: P(|z| > 5) = 5.7e-7 per component (Abramowitz & Stegun 1964, 26.2 [from memory])
     assert np.count_nonzero(heavy_tail_outliers(z, used)) <= 3
     z[0, :200] = 1e3
-    z[2, 500:510] = np.nan               # not observed: never an outlier
+    z[2, 500:510] = np.nan  # not observed: never an outlier
     flagged = heavy_tail_outliers(z, used)
     assert flagged[:200].all() and not flagged[500:510].any()
-    assert not heavy_tail_outliers(z, np.zeros_like(used)).any()    # nothing used, nothing flagged
+    assert not heavy_tail_outliers(z, np.zeros_like(used)).any()  # nothing used, nothing flagged
 
 
-@pytest.mark.parametrize("keyword, value, words", [
-    ("bootstrap", 10**9, "bootstrap must be a whole number of resamples from 0 to 100000, got 1000000000"),
-    ("bootstrap", True, "got True"),
-    ("bootstrap", -1, "got -1"),
-    ("seed", -5, "seed must be a whole number >= 0 or None, got -5"),
-    ("seed", 1.5, "got 1.5"),
-])
+@pytest.mark.parametrize(
+    "keyword, value, words",
+    [
+        ("bootstrap", 10**9, "bootstrap must be a whole number of resamples from 0 to 100000, got 1000000000"),
+        ("bootstrap", True, "got True"),
+        ("bootstrap", -1, "got -1"),
+        ("seed", -5, "seed must be a whole number >= 0 or None, got -5"),
+        ("seed", 1.5, "got 1.5"),
+    ],
+)
 def test_bootstrap_and_seed_out_of_range_are_named_errors(survey, keyword, value, words):
     with pytest.raises(ValueError) as info:
         mk.fit_oort(survey[:500], **{keyword: value})

@@ -54,8 +54,9 @@ def test_track_at_t0_returns_the_input(pot, disc_stars):
     for i, name in enumerate(("x", "y", "z", "vx", "vy", "vz")):
         np.testing.assert_allclose(getattr(orbits, name)[:, 0].value, disc_stars[:, i], rtol=1e-12, atol=1e-12)
     track = orbits.track(3)
-    np.testing.assert_allclose([track[c][0].value for c in ("x", "y", "z", "vx", "vy", "vz")], disc_stars[3],
-                               rtol=1e-12, atol=1e-12)
+    np.testing.assert_allclose(
+        [track[c][0].value for c in ("x", "y", "z", "vx", "vy", "vz")], disc_stars[3], rtol=1e-12, atol=1e-12
+    )
 
 
 def test_sign_conventions_for_the_sun(pot):
@@ -205,8 +206,18 @@ def test_orbit_parameters_columns_and_meta(pot, disc_stars):
     table = _as_table(disc_stars)
     table["source_id"] = np.arange(len(table)) + 100
     params = orbit_parameters(table, pot)
-    assert params.colnames == ["source_id", "rperi", "rapo", "zmax", "eccentricity", "energy", "Lz",
-                               "staeckel_delta", "flag", "method"]
+    assert params.colnames == [
+        "source_id",
+        "rperi",
+        "rapo",
+        "zmax",
+        "eccentricity",
+        "energy",
+        "Lz",
+        "staeckel_delta",
+        "flag",
+        "method",
+    ]
     assert params.meta["method"] == "staeckel" and set(params["method"]) == {"staeckel"}
     assert np.all(params["source_id"] == table["source_id"])
     assert np.all((params["rperi"] <= params["rapo"]) & (params["staeckel_delta"] > 0 * u.kpc))
@@ -364,7 +375,7 @@ def test_phase_space_samples_follow_the_covariance_and_the_seed(disc_stars, rng)
     # One star with a full (correlated) covariance: the draws' mean and covariance approach the given
     # ones as 1/sqrt(n) (common practice, no source).
     a = rng.normal(size=(6, 6))
-    scale = np.diag([0.1] * 3 + [2.0] * 3)                  # kpc and km/s
+    scale = np.diag([0.1] * 3 + [2.0] * 3)  # kpc and km/s
     cov = scale @ (a @ a.T / 6.0) @ scale
     sigma = np.sqrt(np.diag(cov))
     draws = draw_phase_space_samples(disc_stars[0], cov, 40000, seed=3)
@@ -372,8 +383,10 @@ def test_phase_space_samples_follow_the_covariance_and_the_seed(disc_stars, rng)
     assert np.all(np.abs(draws[0].mean(axis=0) - disc_stars[0]) < 4 * sigma / np.sqrt(40000))
     assert np.all(np.abs(np.cov(draws[0].T) - cov) < 0.05 * np.outer(sigma, sigma))
     # the same seed, the same draws; many stars at once; a zero covariance gives the point itself
-    np.testing.assert_array_equal(draw_phase_space_samples(disc_stars[0], cov, 5, seed=3),
-                                  draw_phase_space_samples(disc_stars[0], cov, 5, seed=np.random.default_rng(3)))
+    np.testing.assert_array_equal(
+        draw_phase_space_samples(disc_stars[0], cov, 5, seed=3),
+        draw_phase_space_samples(disc_stars[0], cov, 5, seed=np.random.default_rng(3)),
+    )
     many = draw_phase_space_samples(disc_stars[:3], np.zeros((3, 6, 6)), 4, seed=0)
     assert many.shape == (3, 4, 6)
     np.testing.assert_array_equal(many, np.broadcast_to(disc_stars[:3, None, :], (3, 4, 6)))
@@ -391,14 +404,17 @@ def test_phase_space_samples_are_the_ones_orbit_parameters_summarises(pot, disc_
     assert hi == pytest.approx(params["rapo_p84"][0].value, rel=1e-12)
 
 
-@pytest.mark.parametrize("args, message", [
-    ((np.zeros(5), np.eye(6), 3), "shape \\(6,\\) or \\(M, 6\\)"),
-    ((np.zeros(6), np.eye(5), 3), "covariance must have shape"),
-    ((np.zeros(6), np.eye(6), 0), "n_samples must be a whole number >= 1"),
-    ((np.zeros(6), np.eye(6), 2.5), "n_samples must be a whole number >= 1"),
-    ((np.zeros(6), np.eye(6), True), "n_samples must be a whole number >= 1"),
-    ((np.zeros(6), np.full((6, 6), np.nan), 3), "star 0 has a non-finite"),
-])
+@pytest.mark.parametrize(
+    "args, message",
+    [
+        ((np.zeros(5), np.eye(6), 3), "shape \\(6,\\) or \\(M, 6\\)"),
+        ((np.zeros(6), np.eye(5), 3), "covariance must have shape"),
+        ((np.zeros(6), np.eye(6), 0), "n_samples must be a whole number >= 1"),
+        ((np.zeros(6), np.eye(6), 2.5), "n_samples must be a whole number >= 1"),
+        ((np.zeros(6), np.eye(6), True), "n_samples must be a whole number >= 1"),
+        ((np.zeros(6), np.full((6, 6), np.nan), 3), "star 0 has a non-finite"),
+    ],
+)
 def test_phase_space_samples_refuse_bad_input(args, message):
     with pytest.raises(OrbitError, match=message):
         draw_phase_space_samples(*args)
@@ -409,8 +425,10 @@ def test_span_parameters_are_the_extremes_of_both_directions(pot, disc_stars):
     forward, backward = integrate_orbits(disc_stars, pot, t=t), integrate_orbits(disc_stars, pot, t=-t)
     table = span_parameters([forward, None, backward])
     assert table.colnames == ["rperi", "rapo", "zmax", "eccentricity", "energy", "Lz", "flag"]
-    r = np.hypot(np.concatenate([forward.R.value, backward.R.value], axis=1),
-                 np.concatenate([forward.z.value, backward.z.value], axis=1))
+    r = np.hypot(
+        np.concatenate([forward.R.value, backward.R.value], axis=1),
+        np.concatenate([forward.z.value, backward.z.value], axis=1),
+    )
     np.testing.assert_array_equal(table["rperi"].value, np.minimum(forward.rperi.value, backward.rperi.value))
     np.testing.assert_array_equal(table["rapo"].value, r.max(axis=1))
     np.testing.assert_array_equal(table["zmax"].value, np.maximum(forward.zmax.value, backward.zmax.value))

@@ -34,8 +34,14 @@ def _run_child(code):
     """Run ``code`` in a fresh interpreter with a deadline; return what it printed as JSON."""
     env = dict(os.environ, PYTHONPATH=os.pathsep.join([str(REPO), os.environ.get("PYTHONPATH", "")]))
     try:
-        done = subprocess.run([sys.executable, "-c", textwrap.dedent(code)], capture_output=True, text=True,
-                              timeout=DEADLINE_S, env=env, cwd=str(REPO))
+        done = subprocess.run(
+            [sys.executable, "-c", textwrap.dedent(code)],
+            capture_output=True,
+            text=True,
+            timeout=DEADLINE_S,
+            env=env,
+            cwd=str(REPO),
+        )
     except subprocess.TimeoutExpired:
         pytest.fail(f"the orbit computation did not return within {DEADLINE_S} s (stalled)")
     assert done.returncode == 0, done.stderr[-3000:]
@@ -46,9 +52,11 @@ def _run_child(code):
 def clean():
     pot = Potential.preset("MWPotential2014")
     t = np.linspace(0, 1.0, 1001)
-    return (integrate_orbits(np.array(GOOD), pot, t=t),
-            orbit_parameters(np.array(GOOD), pot, method="integrate", t=t),
-            orbit_parameters(np.array(GOOD), pot))
+    return (
+        integrate_orbits(np.array(GOOD), pot, t=t),
+        orbit_parameters(np.array(GOOD), pot, method="integrate", t=t),
+        orbit_parameters(np.array(GOOD), pot),
+    )
 
 
 @pytest.mark.parametrize("name", list(STALLING))
@@ -114,7 +122,7 @@ def test_time_limit_stops_a_runaway_star_the_screen_misses(clean):
 
 def test_galpy_guard_isolates_the_runaway_star_in_a_batch():
     # _galpy.integrate on its own (no screening): batch limit, then one star at a time.
-    out = _run_child(f"""
+    out = _run_child("""
         import json, numpy as np
         from mwkin.potentials import _galpy
         from mwkin.potentials import Potential
@@ -124,8 +132,8 @@ def test_galpy_guard_isolates_the_runaway_star_in_a_batch():
         t = np.linspace(0, 1.0, 101)
         track, method, stopped = _galpy.integrate(model, w, t, timeout=1.0)
         ref, _, _ = _galpy.integrate(model, w[[0, 2]], t)
-        print(json.dumps({{"stopped": stopped.tolist(), "finite": np.isfinite(track).all(axis=(1, 2)).tolist(),
-                          "diff": float(np.abs(track[[0, 2]] - ref).max())}}))
+        print(json.dumps({"stopped": stopped.tolist(), "finite": np.isfinite(track).all(axis=(1, 2)).tolist(),
+                          "diff": float(np.abs(track[[0, 2]] - ref).max())}))
     """)
     assert out["stopped"] == [False, True, False]
     assert out["finite"] == [True, False, True]

@@ -141,16 +141,21 @@ def test_time_grids_are_validated(pot, t):
     np.testing.assert_array_equal(orbits.t.to_value(u.Gyr), arr)
 
 
-@pytest.mark.parametrize("t, message", [
-    ([0.0, 0.02, 0.01, 0.03], r"evenly spaced .* between indices 1 and 2"),  # unsorted
-    ([0.0, 0.01, 0.01, 0.02], r"evenly spaced .* between indices 1 and 2"),  # duplicated
-    ([0.0, -0.01, -0.03], r"evenly spaced .* between indices 1 and 2"),
-    ([0.0, 0.0, 0.0], r"the step is zero"),
-    ([], r"at least 2 times"),
-])
+@pytest.mark.parametrize(
+    "t, message",
+    [
+        ([0.0, 0.02, 0.01, 0.03], r"evenly spaced .* between indices 1 and 2"),  # unsorted
+        ([0.0, 0.01, 0.01, 0.02], r"evenly spaced .* between indices 1 and 2"),  # duplicated
+        ([0.0, -0.01, -0.03], r"evenly spaced .* between indices 1 and 2"),
+        ([0.0, 0.0, 0.0], r"the step is zero"),
+        ([], r"at least 2 times"),
+    ],
+)
 def test_named_time_grid_errors(pot, t, message):
-    for call in (lambda: integrate_orbits(np.zeros(6) + [-8, 0, 0, 0, 220, 0], pot, t=t),
-                 lambda: orbit_parameters(np.zeros(6) + [-8, 0, 0, 0, 220, 0], pot, method="integrate", t=t)):
+    for call in (
+        lambda: integrate_orbits(np.zeros(6) + [-8, 0, 0, 0, 220, 0], pot, t=t),
+        lambda: orbit_parameters(np.zeros(6) + [-8, 0, 0, 0, 220, 0], pot, method="integrate", t=t),
+    ):
         with pytest.raises(TimeGridError, match=message):
             call()
 
@@ -196,6 +201,6 @@ def test_wrong_units_are_named(pot, column, unit):
 def test_empty_inputs_are_refused(pot):
     empty = QTable({n: np.array([]) * un for n, un in zip(NAMES, UNITS)})
     for stars in (empty, np.zeros((0, 6))):
-        for call in (lambda: integrate_orbits(stars, pot, t=T_SHORT), lambda: orbit_parameters(stars, pot)):
+        for call in (lambda: integrate_orbits(stars, pot, t=T_SHORT), lambda: orbit_parameters(stars, pot)):  # noqa: B023 (each lambda is called within the iteration)
             with pytest.raises(OrbitError, match="no rows|shape"):
                 call()

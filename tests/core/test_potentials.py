@@ -32,8 +32,10 @@ def mw14():
 def test_importing_the_core_pulls_in_no_widget_library():
     # common practice (no source): the core must run without the widget stack. A fresh interpreter,
     # because other test files in the same session may import widgets.
-    code = ("import sys, mwkin.potentials, mwkin.orbits; "
-            "print(sorted({'ipywidgets', 'bqplot', 'anywidget', 'traitlets'} & set(sys.modules)))")
+    code = (
+        "import sys, mwkin.potentials, mwkin.orbits; "
+        "print(sorted({'ipywidgets', 'bqplot', 'anywidget', 'traitlets'} & set(sys.modules)))"
+    )
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "[]"
 
@@ -200,8 +202,7 @@ def test_escape_speed_of_a_point_mass():
     gm = 220.0**2 * 8.0  # G M in kpc (km/s)^2 for amp = 1 natural unit
     r = np.array([2.0, 8.0, 20.0])
     np.testing.assert_allclose(pot.escape_speed(r).value, np.sqrt(2 * gm / r), rtol=1e-12)
-    np.testing.assert_allclose(pot.escape_speed(r, r_max=40.0).value, np.sqrt(2 * gm * (1 / r - 1 / 40.0)),
-                               rtol=1e-12)
+    np.testing.assert_allclose(pot.escape_speed(r, r_max=40.0).value, np.sqrt(2 * gm * (1 / r - 1 / 40.0)), rtol=1e-12)
 
 
 def test_escape_speed_is_measured_against_the_potential_at_infinity(mw14):

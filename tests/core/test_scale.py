@@ -22,8 +22,9 @@ def test_dask_partitions_match_in_memory():
     direct = mk.to_galactocentric(sample, frame=frame, errors="linear")
     assert len(result) == len(sample)
     for name in ("x", "vy", "v_phi", "U", "sigma_v_phi"):
-        np.testing.assert_allclose(result[name].to_numpy(), np.asarray(direct[name].value),
-                                   rtol=1e-12, equal_nan=True, err_msg=name)
+        np.testing.assert_allclose(
+            result[name].to_numpy(), np.asarray(direct[name].value), rtol=1e-12, equal_nan=True, err_msg=name
+        )
     assert list(result["flag"]) == list(np.asarray(direct["flag"]).astype(str))
 
 
@@ -62,8 +63,9 @@ def test_distributed_result_writes_to_parquet_and_round_trips(tmp_path):
     assert len(back) == len(sample)
     np.testing.assert_array_equal(back["source_id"].to_numpy(), np.asarray(sample["source_id"])[order])
     for name in ("x", "vy", "v_phi", "U", "distance"):
-        np.testing.assert_allclose(back[name].to_numpy(), np.asarray(direct[name].value)[order],
-                                   rtol=1e-12, equal_nan=True, err_msg=name)
+        np.testing.assert_allclose(
+            back[name].to_numpy(), np.asarray(direct[name].value)[order], rtol=1e-12, equal_nan=True, err_msg=name
+        )
     assert list(back["flag"]) == list(np.asarray(direct["flag"]).astype(str)[order])
     # The kept star columns make the written result a catalogue read_catalog accepts again.
     again = mk.read_catalog(back.reset_index(drop=True))

@@ -27,8 +27,13 @@ def test_notebook_runs(path, tmp_path):
     nb = nbformat.read(work / path.name, as_version=4)
     client = NotebookClient(nb, timeout=600, kernel_name="python3", resources={"metadata": {"path": str(work)}})
     client.execute()
-    errors = [out for cell in nb.cells if cell.cell_type == "code" for out in cell.get("outputs", [])
-              if out.get("output_type") == "error"]
+    errors = [
+        out
+        for cell in nb.cells
+        if cell.cell_type == "code"
+        for out in cell.get("outputs", [])
+        if out.get("output_type") == "error"
+    ]
     assert not errors, errors
     # The kernel is the test's own interpreter environment, so mwkin resolves to this checkout.
     assert sys.executable
@@ -38,6 +43,7 @@ def test_notebooks_match_their_generator_script():
     # The notebooks are written by example_notebooks/_build_notebooks.py; --check fails on any drift.
     import subprocess
 
-    result = subprocess.run([sys.executable, str(NOTEBOOK_DIR / "_build_notebooks.py"), "--check"],
-                            capture_output=True, text=True)
+    result = subprocess.run(
+        [sys.executable, str(NOTEBOOK_DIR / "_build_notebooks.py"), "--check"], capture_output=True, text=True
+    )
     assert result.returncode == 0, result.stdout + result.stderr

@@ -11,22 +11,28 @@ from __future__ import annotations
 
 import math
 
+import astropy.units as u
 import numpy as np
 import pytest
-import astropy.units as u
-from astropy.coordinates import ICRS, CartesianDifferential, CartesianRepresentation, SkyCoord
-from astropy.coordinates import galactocentric_frame_defaults
+from astropy.coordinates import (
+    ICRS,
+    CartesianDifferential,
+    CartesianRepresentation,
+    SkyCoord,
+    galactocentric_frame_defaults,
+)
 from astropy.coordinates.builtin_frames.galactocentric import get_matrix_vectors
 
-from mwkin.frames import SolarFrame
 from mwkin.coords import K_KMS_PER_MASYR_KPC
+from mwkin.frames import SolarFrame
 
 KMS = u.km / u.s
 
 
 def _non_default_frame():
-    return SolarFrame(R0=7.95, z_sun=-25.0, v_sun=(-9.0, 228.0, 11.5), roll=7.0,
-                      galcen_ra=266.41683, galcen_dec=-29.00781)
+    return SolarFrame(
+        R0=7.95, z_sun=-25.0, v_sun=(-9.0, 228.0, 11.5), roll=7.0, galcen_ra=266.41683, galcen_dec=-29.00781
+    )
 
 
 @pytest.mark.parametrize("registry_name, preset", [("v4.0", "astropy v4.0"), ("pre-v4.0", "astropy pre-v4.0")])
@@ -42,8 +48,9 @@ def test_presets_match_astropy_registry(registry_name, preset):
     assert f.galcen_dec == pytest.approx(params["galcen_coord"].dec.deg, rel=1e-15)
 
 
-@pytest.mark.parametrize("frame", [SolarFrame.preset("astropy v4.0"), _non_default_frame()],
-                         ids=["v4.0", "non-default"])
+@pytest.mark.parametrize(
+    "frame", [SolarFrame.preset("astropy v4.0"), _non_default_frame()], ids=["v4.0", "non-default"]
+)
 def test_matrix_and_offset_match_astropy(frame):
     # Reference: astropy's own construction of the ICRS -> Galactocentric affine map (astropy source).
     matrix_ref, offset_ref = get_matrix_vectors(frame.to_astropy())
@@ -52,8 +59,9 @@ def test_matrix_and_offset_match_astropy(frame):
     np.testing.assert_allclose(offset, offset_ref.xyz.to_value(u.kpc), rtol=1e-15, atol=1e-15)
 
 
-@pytest.mark.parametrize("frame", [SolarFrame.preset("astropy v4.0"), _non_default_frame()],
-                         ids=["v4.0", "non-default"])
+@pytest.mark.parametrize(
+    "frame", [SolarFrame.preset("astropy v4.0"), _non_default_frame()], ids=["v4.0", "non-default"]
+)
 def test_sun_position_matches_astropy(frame):
     # The heliocentric origin transformed by astropy is the Sun's Galactocentric position (astropy) [lib].
     sun = SkyCoord(CartesianRepresentation([0.0, 0.0, 0.0] * u.kpc), frame=ICRS()).transform_to(frame.to_astropy())
@@ -84,9 +92,10 @@ def test_reflex_proper_motion_matches_astropy():
     # A source at rest at the Galactocentric origin, seen from the Sun through astropy's transforms,
     # gives the same proper motion (astropy; Galactic axes differ from Hipparcos' by < 1e-7 rad).
     frame = _non_default_frame()
-    centre = SkyCoord(CartesianRepresentation([0.0, 0.0, 0.0] * u.kpc,
-                                              differentials=CartesianDifferential([0.0, 0.0, 0.0] * KMS)),
-                      frame=frame.to_astropy())
+    centre = SkyCoord(
+        CartesianRepresentation([0.0, 0.0, 0.0] * u.kpc, differentials=CartesianDifferential([0.0, 0.0, 0.0] * KMS)),
+        frame=frame.to_astropy(),
+    )
     gal = centre.transform_to("galactic")
     pm = frame.reflex_proper_motion()
     assert pm.mu_l_star == pytest.approx(gal.pm_l_cosb.to_value(u.mas / u.yr), abs=1e-6)

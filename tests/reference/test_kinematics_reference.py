@@ -12,18 +12,17 @@ from __future__ import annotations
 
 import math
 
+import astropy.units as u
 import erfa
 import numpy as np
 import pytest
-import astropy.units as u
 from astropy.coordinates import CylindricalDifferential, CylindricalRepresentation, SkyCoord
 from astropy.table import QTable
 
+from mwkin.coords import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC
 from mwkin.distances import InverseParallax
 from mwkin.frames import SolarFrame
-from mwkin.coords import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC
-from mwkin.kinematics import (galactocentric_from_observables, heliocentric_from_observables,
-                              to_galactocentric)
+from mwkin.kinematics import galactocentric_from_observables, heliocentric_from_observables, to_galactocentric
 
 KMS = u.km / u.s
 MASYR = u.mas / u.yr
@@ -44,21 +43,40 @@ def stars(rng):
     dec[20:40] = -90.0 + 10.0 ** rng.uniform(-9, -3, 20)
     distance = 10.0 ** rng.uniform(-1.0, 1.3, n)  # 0.1 to 20 kpc
     distance[40:60] = 10.0 ** rng.uniform(-5.0, -2.0, 20)  # 10 mau to 10 pc: near the Sun
-    return dict(ra=ra, dec=dec, distance=distance, pmra=rng.normal(0, 30, n), pmdec=rng.normal(0, 30, n),
-                rv=rng.normal(0, 80, n))
+    return dict(
+        ra=ra,
+        dec=dec,
+        distance=distance,
+        pmra=rng.normal(0, 30, n),
+        pmdec=rng.normal(0, 30, n),
+        rv=rng.normal(0, 80, n),
+    )
 
 
 def _astropy(stars, frame):
-    c = SkyCoord(ra=stars["ra"] * u.deg, dec=stars["dec"] * u.deg, distance=stars["distance"] * u.kpc,
-                 pm_ra_cosdec=stars["pmra"] * MASYR, pm_dec=stars["pmdec"] * MASYR,
-                 radial_velocity=stars["rv"] * KMS, frame="icrs")
+    c = SkyCoord(
+        ra=stars["ra"] * u.deg,
+        dec=stars["dec"] * u.deg,
+        distance=stars["distance"] * u.kpc,
+        pm_ra_cosdec=stars["pmra"] * MASYR,
+        pm_dec=stars["pmdec"] * MASYR,
+        radial_velocity=stars["rv"] * KMS,
+        frame="icrs",
+    )
     return c.transform_to(frame.to_astropy())
 
 
 def _table(stars):
-    return QTable({"ra": stars["ra"] * u.deg, "dec": stars["dec"] * u.deg,
-                   "parallax": (1.0 / stars["distance"]) * u.mas, "pmra": stars["pmra"] * MASYR,
-                   "pmdec": stars["pmdec"] * MASYR, "radial_velocity": stars["rv"] * KMS})
+    return QTable(
+        {
+            "ra": stars["ra"] * u.deg,
+            "dec": stars["dec"] * u.deg,
+            "parallax": (1.0 / stars["distance"]) * u.mas,
+            "pmra": stars["pmra"] * MASYR,
+            "pmdec": stars["pmdec"] * MASYR,
+            "radial_velocity": stars["rv"] * KMS,
+        }
+    )
 
 
 def _assert_roundoff(ours, ref, scale, rel=1e-12):
@@ -86,8 +104,9 @@ def test_array_function_matches_astropy(stars, name):
     # Same reference through the array-level function.
     frame = FRAMES[name]
     ref = _astropy(stars, frame)
-    out = galactocentric_from_observables(stars["ra"], stars["dec"], stars["distance"], stars["pmra"],
-                                          stars["pmdec"], stars["rv"], frame)
+    out = galactocentric_from_observables(
+        stars["ra"], stars["dec"], stars["distance"], stars["pmra"], stars["pmdec"], stars["rv"], frame
+    )
     _assert_roundoff(out["x"], ref.x.to_value(u.kpc), frame.R0 + 20)
     _assert_roundoff(out["vy"], ref.v_y.to_value(KMS), 300.0 + K_KMS_PER_MASYR_KPC * 50 * 20)
 
@@ -116,9 +135,13 @@ def test_sun_has_positive_v_phi_and_phi_zero():
     gc = galactocentric_from_observables(123.0, -45.0, 0.0, 0.0, 0.0, 0.0, frame)
     np.testing.assert_allclose([gc[k][0] for k in ("x", "y", "z")], frame.sun_position, atol=1e-15)
     np.testing.assert_allclose([gc[k][0] for k in ("vx", "vy", "vz")], frame.v_sun, atol=1e-13)
-    out = to_galactocentric(QTable({"ra": [10.0], "dec": [20.0], "parallax": [1e9], "pmra": [0.0],
-                                    "pmdec": [0.0], "radial_velocity": [0.0]}),
-                            frame, distance=InverseParallax(min_snr=0))
+    out = to_galactocentric(
+        QTable(
+            {"ra": [10.0], "dec": [20.0], "parallax": [1e9], "pmra": [0.0], "pmdec": [0.0], "radial_velocity": [0.0]}
+        ),
+        frame,
+        distance=InverseParallax(min_snr=0),
+    )
     assert out["phi"][0].to_value(u.deg) == pytest.approx(0.0, abs=1e-7)  # 1e-9 kpc from the Sun
     assert out["v_phi"][0].to_value(KMS) == pytest.approx(245.6, abs=0.01)
     assert out["U"][0].to_value(KMS) == pytest.approx(0.0, abs=1e-12)
@@ -149,9 +172,13 @@ def _erfa_matrix():
 
 def test_galactic_matrix_against_hipparcos_and_erfa():
     # ESA 1997 eq. 1.5.11 (rows of A_G', 10 decimals) [pub] and ERFA icrs2g [lib].
-    published = np.array([[-0.0548755604, -0.8734370902, -0.4838350155],
-                          [+0.4941094279, -0.4448296300, +0.7469822445],
-                          [-0.8676661490, -0.1980763734, +0.4559837762]])
+    published = np.array(
+        [
+            [-0.0548755604, -0.8734370902, -0.4838350155],
+            [+0.4941094279, -0.4448296300, +0.7469822445],
+            [-0.8676661490, -0.1980763734, +0.4559837762],
+        ]
+    )
     np.testing.assert_allclose(ICRS_TO_GALACTIC, published, atol=1e-10)
     np.testing.assert_allclose(ICRS_TO_GALACTIC, _hipparcos_matrix_from_constants(), atol=1e-14)
     np.testing.assert_allclose(ICRS_TO_GALACTIC, _erfa_matrix(), atol=1e-10)
@@ -179,14 +206,21 @@ def test_l_b_differ_from_astropy_galactic_by_less_than_30_mas(stars):
 def test_uvw_against_hipparcos_matrix(stars):
     # Johnson & Soderblom 1987, AJ 93, 864 [pub]: (U, V, W) = T (v_icrs); here v_icrs from astropy's ICRS
     # Cartesian differential [lib] and T rebuilt from the ESA 1997 constants [pub], to ~1e-10 relative.
-    c = SkyCoord(ra=stars["ra"] * u.deg, dec=stars["dec"] * u.deg, distance=stars["distance"] * u.kpc,
-                 pm_ra_cosdec=stars["pmra"] * MASYR, pm_dec=stars["pmdec"] * MASYR,
-                 radial_velocity=stars["rv"] * KMS, frame="icrs")
+    c = SkyCoord(
+        ra=stars["ra"] * u.deg,
+        dec=stars["dec"] * u.deg,
+        distance=stars["distance"] * u.kpc,
+        pm_ra_cosdec=stars["pmra"] * MASYR,
+        pm_dec=stars["pmdec"] * MASYR,
+        radial_velocity=stars["rv"] * KMS,
+        frame="icrs",
+    )
     r_icrs = c.cartesian.xyz.to_value(u.kpc)
     v_icrs = c.velocity.d_xyz.to_value(KMS)
     matrix = _erfa_matrix()
-    out = heliocentric_from_observables(stars["ra"], stars["dec"], stars["distance"], stars["pmra"],
-                                        stars["pmdec"], stars["rv"])
+    out = heliocentric_from_observables(
+        stars["ra"], stars["dec"], stars["distance"], stars["pmra"], stars["pmdec"], stars["rv"]
+    )
     v_ref = matrix @ v_icrs
     r_ref = matrix @ r_icrs
     speed = np.linalg.norm(v_icrs, axis=0)
@@ -208,9 +242,13 @@ def test_uvw_of_a_star_toward_the_galactic_centre():
 
 
 def _lb_to_radec(lon_deg, lat_deg):
-    gal = np.array([math.cos(math.radians(lat_deg)) * math.cos(math.radians(lon_deg)),
-                    math.cos(math.radians(lat_deg)) * math.sin(math.radians(lon_deg)),
-                    math.sin(math.radians(lat_deg))])
+    gal = np.array(
+        [
+            math.cos(math.radians(lat_deg)) * math.cos(math.radians(lon_deg)),
+            math.cos(math.radians(lat_deg)) * math.sin(math.radians(lon_deg)),
+            math.sin(math.radians(lat_deg)),
+        ]
+    )
     x, y, z = ICRS_TO_GALACTIC.T @ gal
     return math.degrees(math.atan2(y, x)) % 360.0, math.degrees(math.asin(z))
 
@@ -241,21 +279,44 @@ def test_cov_galactocentric_against_astropy_jacobian(rng):
     # same input covariance, gives the same 6x6 covariance to ~1e-6 relative.
     frame = FRAMES["non-default"]
     n = 8
-    base = dict(ra=rng.uniform(0, 360, n), dec=rng.uniform(-80, 80, n), parallax=rng.uniform(0.3, 3, n),
-                pmra=rng.normal(0, 20, n), pmdec=rng.normal(0, 20, n), rv=rng.normal(0, 50, n))
+    base = dict(
+        ra=rng.uniform(0, 360, n),
+        dec=rng.uniform(-80, 80, n),
+        parallax=rng.uniform(0.3, 3, n),
+        pmra=rng.normal(0, 20, n),
+        pmdec=rng.normal(0, 20, n),
+        rv=rng.normal(0, 50, n),
+    )
     sig = np.array([2.0, 1.5, 0.05, 0.08, 0.06, 2.0])  # mas, mas, mas, mas/yr, mas/yr, km/s
-    table = QTable({"ra": base["ra"], "dec": base["dec"], "parallax": base["parallax"], "pmra": base["pmra"],
-                    "pmdec": base["pmdec"], "radial_velocity": base["rv"],
-                    "ra_error": np.full(n, sig[0]), "dec_error": np.full(n, sig[1]),
-                    "parallax_error": np.full(n, sig[2]), "pmra_error": np.full(n, sig[3]),
-                    "pmdec_error": np.full(n, sig[4]), "radial_velocity_error": np.full(n, sig[5]),
-                    "parallax_pmra_corr": np.full(n, 0.3), "ra_dec_corr": np.full(n, -0.2)})
-    out = to_galactocentric(table, frame, errors="linear", distance=InverseParallax(min_snr=0),
-                            return_covariance=True)
+    table = QTable(
+        {
+            "ra": base["ra"],
+            "dec": base["dec"],
+            "parallax": base["parallax"],
+            "pmra": base["pmra"],
+            "pmdec": base["pmdec"],
+            "radial_velocity": base["rv"],
+            "ra_error": np.full(n, sig[0]),
+            "dec_error": np.full(n, sig[1]),
+            "parallax_error": np.full(n, sig[2]),
+            "pmra_error": np.full(n, sig[3]),
+            "pmdec_error": np.full(n, sig[4]),
+            "radial_velocity_error": np.full(n, sig[5]),
+            "parallax_pmra_corr": np.full(n, 0.3),
+            "ra_dec_corr": np.full(n, -0.2),
+        }
+    )
+    out = to_galactocentric(table, frame, errors="linear", distance=InverseParallax(min_snr=0), return_covariance=True)
 
     def transform(ra, dec, plx, pmra, pmdec, rv):
-        c = SkyCoord(ra=ra * u.deg, dec=dec * u.deg, distance=(1 / plx) * u.kpc, pm_ra_cosdec=pmra * MASYR,
-                     pm_dec=pmdec * MASYR, radial_velocity=rv * KMS).transform_to(frame.to_astropy())
+        c = SkyCoord(
+            ra=ra * u.deg,
+            dec=dec * u.deg,
+            distance=(1 / plx) * u.kpc,
+            pm_ra_cosdec=pmra * MASYR,
+            pm_dec=pmdec * MASYR,
+            radial_velocity=rv * KMS,
+        ).transform_to(frame.to_astropy())
         return np.concatenate([c.cartesian.xyz.to_value(u.kpc), c.velocity.d_xyz.to_value(KMS)])
 
     for i in range(n):
@@ -273,5 +334,4 @@ def test_cov_galactocentric_against_astropy_jacobian(rng):
         corr[0, 1] = corr[1, 0] = -0.2
         cov_in = corr * np.outer(sig, sig)
         cov_ref = J @ cov_in @ J.T
-        np.testing.assert_allclose(out["cov_galactocentric"][i], cov_ref, rtol=1e-5,
-                                   atol=1e-9 * np.abs(cov_ref).max())
+        np.testing.assert_allclose(out["cov_galactocentric"][i], cov_ref, rtol=1e-5, atol=1e-9 * np.abs(cov_ref).max())

@@ -9,15 +9,15 @@ from __future__ import annotations
 
 import warnings
 
+import astropy.units as u
 import numpy as np
 import pytest
-import astropy.units as u
 from astropy.coordinates import ICRS, SkyCoord
 from astropy.table import QTable
 
+from mwkin.coords import ICRS_TO_GALACTIC
 from mwkin.distances import DistanceColumn, InverseParallax
 from mwkin.frames import SolarFrame
-from mwkin.coords import ICRS_TO_GALACTIC
 from mwkin.oort import fit_oort
 
 KMS = u.km / u.s
@@ -46,8 +46,15 @@ def observe(frame, pos_gc, vel_gc, rng, pm_err=0.02, rv_err=0.5, plx_err=0.01, r
     Proper-motion errors are correlated (pmra_pmdec_corr = rho); the pmdec error is 1.3 times the
     pmra error so that the rotation to Galactic axes mixes unequal errors.
     """
-    gc = SkyCoord(x=pos_gc[0] * u.kpc, y=pos_gc[1] * u.kpc, z=pos_gc[2] * u.kpc,
-                  v_x=vel_gc[0] * KMS, v_y=vel_gc[1] * KMS, v_z=vel_gc[2] * KMS, frame=frame.to_astropy())
+    gc = SkyCoord(
+        x=pos_gc[0] * u.kpc,
+        y=pos_gc[1] * u.kpc,
+        z=pos_gc[2] * u.kpc,
+        v_x=vel_gc[0] * KMS,
+        v_y=vel_gc[1] * KMS,
+        v_z=vel_gc[2] * KMS,
+        frame=frame.to_astropy(),
+    )
     icrs = gc.transform_to(ICRS())
     n = pos_gc.shape[1]
     d = icrs.distance.to_value(u.kpc)
@@ -69,8 +76,9 @@ def observe(frame, pos_gc, vel_gc, rng, pm_err=0.02, rv_err=0.5, plx_err=0.01, r
     return t
 
 
-def linear_field_mock(n, seed, frame, *, A, B, C, K, sun=(11.1, 12.2, 7.3), sigma=(30.0, 20.0, 15.0),
-                      r_max=0.4, **noise):
+def linear_field_mock(
+    n, seed, frame, *, A, B, C, K, sun=(11.1, 12.2, 7.3), sigma=(30.0, 20.0, 15.0), r_max=0.4, **noise
+):
     """Stars in an exactly linear velocity field around the Sun, defined in Galactic axes.
 
     Mean velocity at heliocentric Galactic position X: v_flow(sun) + M X with the planar gradient
@@ -99,7 +107,7 @@ def axisymmetric_mock(n, seed, frame, *, v_phi, v_R=None, sigma=(30.0, 20.0, 15.
     rot, offset = galactic_to_galactocentric(frame)
     pos = rot @ random_positions(n, rng, r_max) + offset[:, None]
     R = np.hypot(pos[0], pos[1])
-    phi = np.arctan2(pos[1], -pos[0])              # increases in the direction of rotation
+    phi = np.arctan2(pos[1], -pos[0])  # increases in the direction of rotation
     vp = v_phi(R)
     vr = np.zeros_like(R) if v_R is None else v_R(R)
     # R_hat = (-cos phi, sin phi), phi_hat = (sin phi, cos phi) in astropy's Galactocentric axes.
@@ -127,7 +135,7 @@ def test_linear_field_recovered_from_exact_astropy_kinematics():
     # Exact astropy Galactocentric -> ICRS kinematics (astropy.coordinates); the field is linear, so the
     # first-order equations of REFERENCES.md ("Oort constants") hold exactly for it.
     frame = SolarFrame()
-    truth_in = dict(A=15.3, B=-11.9, C=-3.2, K=-3.3)   # Bovy 2017, MNRAS 468, L63 values as the injection
+    truth_in = dict(A=15.3, B=-11.9, C=-3.2, K=-3.3)  # Bovy 2017, MNRAS 468, L63 values as the injection
     table, truth = linear_field_mock(20000, 11, frame, **truth_in)
     fit = fit_oort(table, frame, use="both", distance=InverseParallax(min_snr=5))
     assert fit.n_used > 19000
@@ -181,7 +189,11 @@ def test_radial_outflow_gives_positive_C_and_K():
     _, offset = galactic_to_galactocentric(frame)
     R_sun = np.hypot(offset[0], offset[1])
     table, sun, _ = axisymmetric_mock(
-        20000, 7, frame, v_phi=lambda R: np.full_like(R, 230.0), v_R=lambda R: 6.0 * (R - R_sun),
+        20000,
+        7,
+        frame,
+        v_phi=lambda R: np.full_like(R, 230.0),
+        v_R=lambda R: 6.0 * (R - R_sun),
         sigma=(10.0, 8.0, 6.0),
     )
     fit = fit_oort(table, frame, use="both")
@@ -203,7 +215,7 @@ def test_warm_disc_from_galpy_dehnendf_matches_its_own_oort_constants():
     rng = np.random.default_rng(3)
     df = dehnendf(beta=0.0)
     with warnings.catch_warnings():
-        warnings.simplefilter("ignore")   # galpy's integrals warn about overflow in tails
+        warnings.simplefilter("ignore")  # galpy's integrals warn about overflow in tails
         mean_vt = df.meanvT(1.0) * vo
         truth = dict(A=df.oortA(1.0) * vo / ro, B=df.oortB(1.0) * vo / ro, C=0.0, K=0.0)
     sun = (11.1, 12.2, 7.3)
@@ -239,9 +251,10 @@ def test_mwpotential2014_oort_constants_alongside_the_fit():
     # MWPotential2014 (Bovy 2015, ApJS 216, 29) at R0 = 8 kpc, vc = 220 km/s: A = 15.1376, B = -12.3624
     # km/s/kpc (REFERENCES.md [lib], from galpy's rotation curve). Through Potential.oort_constants.
     from galpy.potential import MWPotential2014, vcirc
+
     from mwkin.potentials import Potential
 
-    frame = SolarFrame(R0=8.0, z_sun=0.0, v_sun=(11.1, 232.2, 7.3))   # in-plane R0 = 8 kpc = galpy's ro
+    frame = SolarFrame(R0=8.0, z_sun=0.0, v_sun=(11.1, 232.2, 7.3))  # in-plane R0 = 8 kpc = galpy's ro
     potential = Potential.preset("MWPotential2014")
 
     def v_phi(R):
@@ -272,8 +285,7 @@ def test_demo_survey_gives_plausible_local_oort_constants():
     frame = sample.meta.get("frame")
     if isinstance(frame, dict):
         frame = SolarFrame.from_dict(frame)
-    fit = fit_oort(sample, frame if isinstance(frame, SolarFrame) else None, use="both",
-                   distance_range=(0.0, 0.5))
+    fit = fit_oort(sample, frame if isinstance(frame, SolarFrame) else None, use="both", distance_range=(0.0, 0.5))
     published = {"A": [(15.3, 0.4), (14.82, 0.84)], "B": [(-11.9, 0.4), (-12.37, 0.64)]}
     for name, values in published.items():
         lo = min(v - 3 * e for v, e in values) - 3 * fit.errors[name]

@@ -100,8 +100,9 @@ def test_independent_solve_ivp_integration_agrees():
     from galpy.potential import MiyamotoNagaiPotential, PlummerPotential
 
     unit = VO**2 * RO
-    galpy_pot = (MiyamotoNagaiPotential(amp=GM_DISC / unit, a=A_DISC / RO, b=B_DISC / RO)
-                 + PlummerPotential(amp=GM_BULGE / unit, b=B_BULGE / RO))
+    galpy_pot = MiyamotoNagaiPotential(amp=GM_DISC / unit, a=A_DISC / RO, b=B_DISC / RO) + PlummerPotential(
+        amp=GM_BULGE / unit, b=B_BULGE / RO
+    )
     pot = Potential.from_galpy(galpy_pot, ro=RO, vo=VO)
     starts = np.array([[-8.0, 0.5, 0.4, 25.0, 190.0, 30.0], [-5.0, -2.0, -0.8, -60.0, 120.0, -20.0]])
     t_gyr = np.linspace(0, 2.0, 201)
@@ -109,16 +110,24 @@ def test_independent_solve_ivp_integration_agrees():
     t_internal = t_gyr / GYR_PER_KPC_S_PER_KM  # kpc / (km/s)
     for i, w0 in enumerate(starts):
         # scipy's DOP853 (Hairer, Norsett & Wanner 1993) at tight tolerances, Cartesian, astropy axes.
-        sol = solve_ivp(lambda t, w: np.concatenate([w[3:], _analytic_acceleration(w[:3])]),
-                        (0, t_internal[-1]), w0, method="DOP853", t_eval=t_internal, rtol=1e-12, atol=1e-12)
+        sol = solve_ivp(
+            lambda t, w: np.concatenate([w[3:], _analytic_acceleration(w[:3])]),
+            (0, t_internal[-1]),
+            w0,
+            method="DOP853",
+            t_eval=t_internal,
+            rtol=1e-12,
+            atol=1e-12,
+        )
         assert sol.success
         for k, name in enumerate(("x", "y", "z", "vx", "vy", "vz")):
             scale = 1.0 if k < 3 else 100.0
             np.testing.assert_allclose(getattr(ours, name)[i].value, sol.y[k], rtol=0, atol=1e-7 * scale)
     # Energy: ours (galpy's zero point, 0 at infinity for both components) against the analytic potential.
     r2 = starts[:, 0] ** 2 + starts[:, 1] ** 2
-    phi = (-GM_DISC / np.sqrt(r2 + (A_DISC + np.sqrt(starts[:, 2] ** 2 + B_DISC**2)) ** 2)
-           - GM_BULGE / np.sqrt(r2 + starts[:, 2] ** 2 + B_BULGE**2))
+    phi = -GM_DISC / np.sqrt(r2 + (A_DISC + np.sqrt(starts[:, 2] ** 2 + B_DISC**2)) ** 2) - GM_BULGE / np.sqrt(
+        r2 + starts[:, 2] ** 2 + B_BULGE**2
+    )
     np.testing.assert_allclose(ours.energy.value, phi + 0.5 * np.sum(starts[:, 3:] ** 2, axis=1), rtol=1e-12)
 
 
@@ -134,8 +143,15 @@ def test_matches_galpys_own_solar_frame_conversion():
     frame = SolarFrame(R0=math.sqrt(8.0**2 + z_sun**2), z_sun=1000 * z_sun, v_sun=(12.9, 245.6, 7.78))
     xyz = np.array([[-7.5, 0.8, 0.3, 20.0, 230.0, -15.0], [-9.0, -1.0, -0.2, -30.0, 200.0, 10.0]])
     kms = u.km / u.s
-    coord = SkyCoord(x=xyz[:, 0] * u.kpc, y=xyz[:, 1] * u.kpc, z=xyz[:, 2] * u.kpc, v_x=xyz[:, 3] * kms,
-                     v_y=xyz[:, 4] * kms, v_z=xyz[:, 5] * kms, frame=frame.to_astropy()).transform_to("icrs")
+    coord = SkyCoord(
+        x=xyz[:, 0] * u.kpc,
+        y=xyz[:, 1] * u.kpc,
+        z=xyz[:, 2] * u.kpc,
+        v_x=xyz[:, 3] * kms,
+        v_y=xyz[:, 4] * kms,
+        v_z=xyz[:, 5] * kms,
+        frame=frame.to_astropy(),
+    ).transform_to("icrs")
     vx, vy, vz = frame.v_sun
     reference = Orbit(coord, ro=8.0, vo=220.0, zo=z_sun, solarmotion=[-vx, vy - 220.0, vz] * kms)
     t = np.linspace(0, 1.0, 11) * u.Gyr
@@ -191,12 +207,20 @@ def test_vectorised_delta_and_staeckel_match_galpy(name, disc_sample):
     sample = disc_sample[:40]
     ours = orbit_parameters(sample, pot)
     R, z = np.hypot(sample[:, 0], sample[:, 1]), sample[:, 2]
-    ref_delta = estimateDeltaStaeckel(model.pot, R / model.ro, z / model.ro, no_median=True,
-                                      use_physical=False) * model.ro
+    ref_delta = (
+        estimateDeltaStaeckel(model.pot, R / model.ro, z / model.ro, no_median=True, use_physical=False) * model.ro
+    )
     np.testing.assert_allclose(ours["staeckel_delta"].value, ref_delta, rtol=1e-12)
-    cyl = np.column_stack([R, np.arctan2(sample[:, 1], -sample[:, 0]), z,
-                           (sample[:, 0] * sample[:, 3] + sample[:, 1] * sample[:, 4]) / R,
-                           (sample[:, 1] * sample[:, 3] - sample[:, 0] * sample[:, 4]) / R, sample[:, 5]])
+    cyl = np.column_stack(
+        [
+            R,
+            np.arctan2(sample[:, 1], -sample[:, 0]),
+            z,
+            (sample[:, 0] * sample[:, 3] + sample[:, 1] * sample[:, 4]) / R,
+            (sample[:, 1] * sample[:, 3] - sample[:, 0] * sample[:, 4]) / R,
+            sample[:, 5],
+        ]
+    )
     orbit = Orbit(cyl[:, [0, 3, 4, 2, 5, 1]] / [model.ro, model.vo, model.vo, model.ro, model.vo, 1.0])
     kw = dict(analytic=True, type="staeckel", pot=model.pot, delta=ref_delta / model.ro, use_physical=False)
     np.testing.assert_allclose(ours["rperi"].value, orbit.rperi(**kw) * model.ro, rtol=1e-10)

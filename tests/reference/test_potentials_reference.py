@@ -64,8 +64,9 @@ def test_mwpotential2014_potential_at_infinity_is_the_bulge_offset(mw14):
     # as r -> inf (the other two components tend to 0). Re-derived here from the bulge's total mass.
     p = {"mass": 4.501365375e9, "alpha": 1.8, "cutoff": 1.9}
     # Total mass M = 2 pi rho_amp rc^(3 - alpha) Gamma(3/2 - alpha/2) with r1 = 8 kpc folded into rho_amp.
-    rho_amp_G = G_KPC_KMS2_PER_MSUN * p["mass"] / (2 * math.pi * p["cutoff"] ** (3 - p["alpha"])
-                                                    * gamma(1.5 - p["alpha"] / 2))
+    rho_amp_G = (
+        G_KPC_KMS2_PER_MSUN * p["mass"] / (2 * math.pi * p["cutoff"] ** (3 - p["alpha"]) * gamma(1.5 - p["alpha"] / 2))
+    )
     expected = 2 * math.pi * rho_amp_G * p["cutoff"] ** (2 - p["alpha"]) * gamma(1 - p["alpha"] / 2)
     assert mw14.potential_at_infinity().to_value(u.km**2 / u.s**2) == pytest.approx(expected, rel=1e-8)
 
