@@ -22,6 +22,19 @@ from .transforms import _matmul
 
 
 # ====================================================================== linear propagation
+def _sigma_from_variance(variance, out):
+    """sqrt(variance) into ``out``, with variances that rounded below zero taken as zero.
+
+    A rotated covariance gives the variance of a component that is ~0 along the line of sight (Z for
+    a star in the Galactic plane, y toward the Galactic centre) as the difference of terms of size
+    sigma_distance^2, which can round to a tiny negative number. Its true value is below the
+    rounding error of those terms, so zero is as accurate as the arithmetic allows; NaN would be a
+    silent failure. NaN variances (missing inputs) stay NaN.
+    """
+    np.maximum(variance, 0.0, out=out)
+    return np.sqrt(out, out)
+
+
 def _nonzero(value):
     return not (isinstance(value, float) and value == 0.0)
 
@@ -35,7 +48,9 @@ def _combine(out, tmp, terms, alias=False):
     no operation is spent on copies or signs; ``out`` must not be one of the factors. With
     ``alias``, a sum of a single array is that array itself (nothing is written to ``out``).
     """
-    plus, minus, plain = [], [], []
+    plus: list[tuple] = []
+    minus: list[tuple] = []
+    plain: list = []
     for term in terms:
         if term is None:
             continue
@@ -218,11 +233,11 @@ class _Linear:
 
         with np.errstate(invalid="ignore"):
             for i, axis in enumerate("xyz"):
-                np.sqrt(rr[sym[axis + axis]], out[_CARTESIAN[i]])
-                np.sqrt(vv[sym[axis + axis]], out[_CARTESIAN[i + 3]])
+                _sigma_from_variance(rr[sym[axis + axis]], out[_CARTESIAN[i]])
+                _sigma_from_variance(vv[sym[axis + axis]], out[_CARTESIAN[i + 3]])
                 helio = axis.upper() * 2
-                np.sqrt(rr[sym[helio]], out[_HELIO[i]])
-                np.sqrt(vv[sym[helio]], out[_HELIO[i + 3]])
+                _sigma_from_variance(rr[sym[helio]], out[_HELIO[i]])
+                _sigma_from_variance(vv[sym[helio]], out[_HELIO[i + 3]])
             self._cylindrical(
                 [rr[sym[k]] for k in ("xx", "xy", "yy")],
                 [vv[sym[k]] for k in ("xx", "xy", "yy")],
@@ -347,7 +362,7 @@ class _Linear:
             np.add(tmp, across, tmp)
             np.add(half, tmp, along)
             np.subtract(half, tmp, across)
-        np.sqrt(out["R"], out["R"])
+        _sigma_from_variance(out["R"], out["R"])
         yxx, yxy, yyy = yy
         np.subtract(yxx, yyy, cov0)
         np.multiply(cov0, cs, cov0)
@@ -364,8 +379,8 @@ class _Linear:
             np.add(tmp, cov, tmp)
             np.multiply(tmp, f, tmp)
             np.add(tmp, base, out[name])
-            np.sqrt(out[name], out[name])
-        np.sqrt(var_p1, out["phi"])
+            _sigma_from_variance(out[name], out[name])
+        _sigma_from_variance(var_p1, out["phi"])
         np.multiply(out["phi"], inv_R, out["phi"])
         out["phi"] *= _DEG
 
@@ -405,7 +420,7 @@ class _Linear:
             np.multiply(total, inv_cb2, total)
             if name == "l":
                 np.multiply(total, inv_cb2, total)
-            np.sqrt(total, total)
+            _sigma_from_variance(total, total)
             total *= _DEG
 
 

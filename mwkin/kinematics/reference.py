@@ -87,8 +87,28 @@ RAD_TO_DEG = 180.0 / math.pi
 PARAMETERS = ("ra*", "dec", "distance", "pmra", "pmdec", "radial_velocity")
 
 #: Rows of :func:`jacobian`, in the order of the fast path's output columns (angles in deg).
-OUTPUT_NAMES = ("x", "y", "z", "vx", "vy", "vz", "R", "phi", "v_R", "v_phi", "v_z",
-                "X", "Y", "Z", "U", "V", "W", "l", "b", "distance")
+OUTPUT_NAMES = (
+    "x",
+    "y",
+    "z",
+    "vx",
+    "vy",
+    "vz",
+    "R",
+    "phi",
+    "v_R",
+    "v_phi",
+    "v_z",
+    "X",
+    "Y",
+    "Z",
+    "U",
+    "V",
+    "W",
+    "l",
+    "b",
+    "distance",
+)
 
 _VELOCITY_NAMES = ("vx", "vy", "vz", "v_R", "v_phi", "v_z", "U", "V", "W")
 
@@ -158,7 +178,8 @@ def galactocentric_rotation(frame=None):
     """
     frame = _frame_or_default(frame)
     centre_on_x = rotation_matrix("y", math.radians(frame.galcen_dec)) @ rotation_matrix(
-        "z", -math.radians(frame.galcen_ra))
+        "z", -math.radians(frame.galcen_ra)
+    )
     pole_on_z = rotation_matrix("x", math.radians(frame.roll - _ROLL0_DEG))
     tilt = rotation_matrix("y", math.asin(frame.z_sun / 1000.0 / frame.R0))  # z_sun is in pc
     matrix = tilt @ pole_on_z @ centre_on_x
@@ -261,8 +282,14 @@ def heliocentric(ra_deg, dec_deg, distance_kpc, pmra, pmdec, rv_kms):
     position, velocity = icrs_position_velocity(ra_deg, dec_deg, distance_kpc, pmra, pmdec, rv_kms)
     galactic_position = position @ ICRS_TO_GALACTIC.T
     galactic_velocity = velocity @ ICRS_TO_GALACTIC.T
-    return {"X": galactic_position[:, 0], "Y": galactic_position[:, 1], "Z": galactic_position[:, 2],
-            "U": galactic_velocity[:, 0], "V": galactic_velocity[:, 1], "W": galactic_velocity[:, 2]}
+    return {
+        "X": galactic_position[:, 0],
+        "Y": galactic_position[:, 1],
+        "Z": galactic_position[:, 2],
+        "U": galactic_velocity[:, 0],
+        "V": galactic_velocity[:, 1],
+        "W": galactic_velocity[:, 2],
+    }
 
 
 def galactocentric(ra_deg, dec_deg, distance_kpc, pmra, pmdec, rv_kms, frame=None):
@@ -339,7 +366,7 @@ def observables(x, y, z, vx, vy, vz, frame=None):
     frame = _frame_or_default(frame)
     x, y, z, vx, vy, vz = _as_float_arrays(x, y, z, vx, vy, vz)
     matrix, sun = galactocentric_rotation(frame)
-    position = (np.stack([x, y, z], axis=-1) - sun) @ matrix    # row vectors: (M^T p)^T = p^T M
+    position = (np.stack([x, y, z], axis=-1) - sun) @ matrix  # row vectors: (M^T p)^T = p^T M
     velocity = (np.stack([vx, vy, vz], axis=-1) - np.asarray(frame.v_sun, dtype=float)) @ matrix
     d = np.sqrt(np.sum(position**2, axis=-1))
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -354,8 +381,7 @@ def observables(x, y, z, vx, vy, vz, frame=None):
         pmdec = np.sum(velocity * e_dec, axis=-1) / (K * d)
     ra_deg = np.mod(np.degrees(ra), 360.0)
     ra_deg = np.where(ra_deg >= 360.0, 0.0, ra_deg)  # a hair below 0 deg may round to 360
-    return {"ra": ra_deg, "dec": np.degrees(dec), "distance": d, "pmra": pmra, "pmdec": pmdec,
-            "radial_velocity": rv}
+    return {"ra": ra_deg, "dec": np.degrees(dec), "distance": d, "pmra": pmra, "pmdec": pmdec, "radial_velocity": rv}
 
 
 def forward(ra_deg, dec_deg, distance_kpc, pmra, pmdec, rv_kms, frame=None):
@@ -435,8 +461,8 @@ def jacobian(ra_deg, dec_deg, distance_kpc, pmra, pmdec, rv_kms, frame=None):
 
     # Constant rotations into the Galactocentric and heliocentric Galactic axes.
     matrix, _ = galactocentric_rotation(frame)
-    J_gc_r = matrix @ dr           # rows x, y, z
-    J_gc_v = matrix @ dv           # rows vx, vy, vz
+    J_gc_r = matrix @ dr  # rows x, y, z
+    J_gc_v = matrix @ dv  # rows vx, vy, vz
     J_h_r = ICRS_TO_GALACTIC @ dr  # rows X, Y, Z
     J_h_v = ICRS_TO_GALACTIC @ dv  # rows U, V, W
 
@@ -450,7 +476,7 @@ def jacobian(ra_deg, dec_deg, distance_kpc, pmra, pmdec, rv_kms, frame=None):
         v_R = (x * vx + y * vy) / R
         v_phi = (y * vx - x * vy) / R
         dR = (x * dx + y * dy) / R
-        dphi = (y * dx - x * dy) / R**2 * RAD_TO_DEG   # d atan2(Y, X) = (X dY - Y dX)/(X^2 + Y^2), X = -x
+        dphi = (y * dx - x * dy) / R**2 * RAD_TO_DEG  # d atan2(Y, X) = (X dY - Y dX)/(X^2 + Y^2), X = -x
         dv_R = (vx * dx + x * dvx + vy * dy + y * dvy) / R - v_R * dR / R
         dv_phi = (vx * dy + y * dvx - vy * dx - x * dvy) / R - v_phi * dR / R
 
@@ -460,17 +486,33 @@ def jacobian(ra_deg, dec_deg, distance_kpc, pmra, pmdec, rv_kms, frame=None):
     gx, gy = g[:, 0, None], g[:, 1, None]
     with np.errstate(invalid="ignore", divide="ignore"):
         dl = (gx * dg[:, 1] - gy * dg[:, 0]) / (gx**2 + gy**2) * RAD_TO_DEG
-        db = dg[:, 2] / np.hypot(gx, gy) * RAD_TO_DEG    # d asin(g_z) = dg_z / cos b
+        db = dg[:, 2] / np.hypot(gx, gy) * RAD_TO_DEG  # d asin(g_z) = dg_z / cos b
 
     d_distance = np.zeros((n, 6))
     d_distance[:, 2] = 1.0
 
-    rows = {"x": J_gc_r[:, 0], "y": J_gc_r[:, 1], "z": J_gc_r[:, 2],
-            "vx": J_gc_v[:, 0], "vy": J_gc_v[:, 1], "vz": J_gc_v[:, 2],
-            "R": dR, "phi": dphi, "v_R": dv_R, "v_phi": dv_phi, "v_z": J_gc_v[:, 2],
-            "X": J_h_r[:, 0], "Y": J_h_r[:, 1], "Z": J_h_r[:, 2],
-            "U": J_h_v[:, 0], "V": J_h_v[:, 1], "W": J_h_v[:, 2],
-            "l": dl, "b": db, "distance": d_distance}
+    rows = {
+        "x": J_gc_r[:, 0],
+        "y": J_gc_r[:, 1],
+        "z": J_gc_r[:, 2],
+        "vx": J_gc_v[:, 0],
+        "vy": J_gc_v[:, 1],
+        "vz": J_gc_v[:, 2],
+        "R": dR,
+        "phi": dphi,
+        "v_R": dv_R,
+        "v_phi": dv_phi,
+        "v_z": J_gc_v[:, 2],
+        "X": J_h_r[:, 0],
+        "Y": J_h_r[:, 1],
+        "Z": J_h_r[:, 2],
+        "U": J_h_v[:, 0],
+        "V": J_h_v[:, 1],
+        "W": J_h_v[:, 2],
+        "l": dl,
+        "b": db,
+        "distance": d_distance,
+    }
     return np.stack([rows[name] for name in OUTPUT_NAMES], axis=1)
 
 
@@ -567,8 +609,9 @@ def distance_of(table, choice=None):
             return np.where(d > 0, d, np.nan), False
     if isinstance(choice, InverseParallax):
         plx = _column(table, "parallax", u.mas)
-        return inverse_parallax_distance(plx, _column(table, "parallax_error", u.mas), choice.min_snr,
-                                         choice.zero_point_mas), True
+        return inverse_parallax_distance(
+            plx, _column(table, "parallax_error", u.mas), choice.min_snr, choice.zero_point_mas
+        ), True
     raise TypeError(f"distance must be InverseParallax or DistanceColumn, got {choice!r}")
 
 
@@ -606,9 +649,14 @@ def observables_covariance(table, distance=None):
     d, from_parallax = distance_of(table, distance)
     n = len(table)
     third_error = "parallax_error" if from_parallax else f"{distance.column}_error"
-    error_columns = (("ra_error", u.mas), ("dec_error", u.mas), (third_error, u.mas if from_parallax else u.kpc),
-                     ("pmra_error", u.mas / u.yr), ("pmdec_error", u.mas / u.yr),
-                     ("radial_velocity_error", u.km / u.s))
+    error_columns = (
+        ("ra_error", u.mas),
+        ("dec_error", u.mas),
+        (third_error, u.mas if from_parallax else u.kpc),
+        ("pmra_error", u.mas / u.yr),
+        ("pmdec_error", u.mas / u.yr),
+        ("radial_velocity_error", u.km / u.s),
+    )
     sigma = np.zeros((n, 6))
     for i, (name, unit) in enumerate(error_columns):
         values = _column(table, name, unit)
@@ -724,8 +772,10 @@ def to_galactocentric_reference(stars, frame=None, errors="none", distance=None)
             lacking = ~has_position
         out[f"sigma_{name}"] = np.where(lacking | invalid, np.nan, sigmas[:, i])
 
-    for key, names in (("cov_galactocentric", ("x", "y", "z", "vx", "vy", "vz")),
-                       ("cov_heliocentric", ("X", "Y", "Z", "U", "V", "W"))):
+    for key, names in (
+        ("cov_galactocentric", ("x", "y", "z", "vx", "vy", "vz")),
+        ("cov_heliocentric", ("X", "Y", "Z", "U", "V", "W")),
+    ):
         rows = [OUTPUT_NAMES.index(name) for name in names]
         block = cov[:, rows][:, :, rows]
         block[~has_position | invalid] = np.nan

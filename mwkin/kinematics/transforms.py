@@ -340,8 +340,11 @@ class _Forward:
                 col *= _DEG
         # l in [0, 360) deg: add a full turn where arctan2 gave a negative angle (a product with the
         # mask is several times faster than a masked add).
-        np.multiply(np.less(lon, 0.0, out=ws.mask("negative", m)), 360.0 if self.degrees else 2.0 * math.pi, t1)
+        turn = 360.0 if self.degrees else 2.0 * math.pi
+        np.multiply(np.less(lon, 0.0, out=ws.mask("negative", m)), turn, t1)
         np.add(lon, t1, lon)
+        # a hair below 0 plus a full turn rounds to exactly one turn: that is l = 0
+        np.copyto(lon, 0.0, where=np.greater_equal(lon, turn, out=ws.mask("negative", m)))
         if self.then is not None:
             self.then(start, stop, ws, dict(sa=sa, ca=ca, sd=sd, cd=cd, kd=kd, inv_R=inv_R, cos2_b=cos2_b))
 
