@@ -38,8 +38,8 @@ HIP_ALPHA_G_DEG = 192.85948
 HIP_DELTA_G_DEG = 27.12825
 HIP_L_OMEGA_DEG = 32.93192
 
-# astropy's Galactic frame is defined through FK4/B1950 (Blaauw et al. 1960 pole, transformed to ICRS),
-# not through the Hipparcos constants. The module docstring puts the difference at "up to ~1e-7 (about
+# astropy's Galactic frame is defined through FK4/B1950 (the IAU 1958 pole of Blaauw et al. 1960, MNRAS 121,
+# 123, transformed to ICRS; from memory), not through the Hipparcos constants. The module docstring puts the difference at "up to ~1e-7 (about
 # 25 mas on the sky)". Bound used here: 30 mas = 1.45e-7 rad, the documented ~25 mas with a margin.
 ASTROPY_FRAME_BOUND_RAD = (30.0 * u.mas).to_value(u.rad)
 
@@ -98,11 +98,13 @@ def test_matrix_equals_one_built_independently_from_pole_and_node():
 def test_matrix_matches_the_published_hipparcos_matrix():
     # ESA 1997, ESA SP-1200, Vol. 1, Sect. 1.5.3, eq. (1.5.11), the matrix A_G' (r_Gal = A_G' r_ICRS),
     # printed to 10 decimals. Digits quoted from memory.
-    published = np.array([
-        [-0.0548755604, -0.8734370902, -0.4838350155],
-        [+0.4941094279, -0.4448296300, +0.7469822445],
-        [-0.8676661490, -0.1980763734, +0.4559837762],
-    ])
+    published = np.array(
+        [
+            [-0.0548755604, -0.8734370902, -0.4838350155],
+            [+0.4941094279, -0.4448296300, +0.7469822445],
+            [-0.8676661490, -0.1980763734, +0.4559837762],
+        ]
+    )
     np.testing.assert_allclose(ICRS_TO_GALACTIC, published, rtol=0, atol=1e-10)
 
 
@@ -153,8 +155,9 @@ def test_matrix_agrees_with_astropy_galactic_frame_within_documented_bound(rng):
 
 def test_matrix_elements_agree_with_astropy_within_documented_bound():
     # astropy's matrix, read off by transforming the ICRS axes.
-    axes = SkyCoord(x=[1.0, 0.0, 0.0], y=[0.0, 1.0, 0.0], z=[0.0, 0.0, 1.0], representation_type="cartesian",
-                    frame="icrs").galactic.cartesian.xyz.value
+    axes = SkyCoord(
+        x=[1.0, 0.0, 0.0], y=[0.0, 1.0, 0.0], z=[0.0, 0.0, 1.0], representation_type="cartesian", frame="icrs"
+    ).galactic.cartesian.xyz.value
     # The module docstring: the two matrices "differ by up to ~1e-7".
     assert np.abs(ICRS_TO_GALACTIC - axes).max() <= ASTROPY_FRAME_BOUND_RAD
     # the rotation angle between the two frames, from the trace of A_ours A_astropy^T
@@ -207,6 +210,24 @@ def test_radec_to_lb_takes_scalars_and_gives_longitude_in_0_2pi(rng):
     assert l.shape == b.shape == (5000,)
     assert np.all((l >= 0.0) & (l < 2.0 * np.pi))
     assert np.all(np.abs(b) <= np.pi / 2)
+
+
+def test_longitude_just_below_zero_stays_below_2pi(rng):
+    # Documented range [0, 2 pi): a direction a hair below l = 0 (Galactic y = -1e-17, say) must come out
+    # as l ~ 2 pi - 1e-17, which rounds to 2 pi in float64, or as 0 -- never as 2 pi (= 360 deg, a longitude
+    # outside the documented range that compares unequal to 0).
+    # The Galactic centre direction as the matrix defines it (its first row), as ra, dec:
+    gc = ICRS_TO_GALACTIC[0]
+    ra, dec = np.arctan2(gc[1], gc[0]), np.arcsin(gc[2])
+    l, _ = radec_to_lb(np.array([ra]), np.array([dec]))
+    assert 0.0 <= l[0] < 2.0 * np.pi
+    # and a ring of directions within 1e-15 rad of the l = 0 meridian, either side
+    n = 2000
+    gal = np.stack([np.ones(n), rng.uniform(-1e-15, 1e-15, n), rng.uniform(-0.5, 0.5, n)])
+    gal /= np.linalg.norm(gal, axis=0)
+    icrs = ICRS_TO_GALACTIC.T @ gal
+    l, _ = radec_to_lb(np.arctan2(icrs[1], icrs[0]), np.arcsin(icrs[2]))
+    assert np.all((l >= 0.0) & (l < 2.0 * np.pi))
 
 
 def test_tangent_basis_is_orthonormal_and_right_handed(rng):
@@ -305,8 +326,9 @@ def test_pm_agrees_with_astropy_within_the_frame_difference(rng):
     ra, dec = _random_sky(rng, n)
     pmra, pmdec = rng.normal(0.0, 30.0, (2, n))
     _, lat, pml, pmb = proper_motions_to_galactic(ra, dec, pmra, pmdec)
-    gal = SkyCoord(ra=ra * u.rad, dec=dec * u.rad, pm_ra_cosdec=pmra * u.mas / u.yr, pm_dec=pmdec * u.mas / u.yr,
-                   frame="icrs").galactic
+    gal = SkyCoord(
+        ra=ra * u.rad, dec=dec * u.rad, pm_ra_cosdec=pmra * u.mas / u.yr, pm_dec=pmdec * u.mas / u.yr, frame="icrs"
+    ).galactic
     d_pm = np.hypot(pml - gal.pm_l_cosb.to_value(u.mas / u.yr), pmb - gal.pm_b.to_value(u.mas / u.yr))
     # Bound: a frame rotation by eps (|eps| <= ASTROPY_FRAME_BOUND_RAD) turns the local (l, b) basis by at
     # most |eps| (1 + |tan b|) (the usual small-rotation formulae; from memory), so the proper-motion

@@ -86,13 +86,16 @@ def test_nan_and_inf_pass_through():
     assert to_value(float("inf") * u.pc, "kpc", "R0") == math.inf
 
 
-@pytest.mark.parametrize("value, unit, name", [
-    (3.0 * u.km / u.s, u.kpc, "R0"),
-    (1.0 * u.mas, u.kpc, "distance"),          # a parallax is not a distance without an equivalency
-    (2.0 * u.mas / u.yr, KMS, "v_sun"),        # a proper motion is not a velocity without a distance
-    (1.0 * u.kpc, u.dimensionless_unscaled, "min_snr"),
-    (1.0 * u.Hz, u.m, "wavelength"),           # convertible only with the spectral equivalency
-])
+@pytest.mark.parametrize(
+    "value, unit, name",
+    [
+        (3.0 * u.km / u.s, u.kpc, "R0"),
+        (1.0 * u.mas, u.kpc, "distance"),  # a parallax is not a distance without an equivalency
+        (2.0 * u.mas / u.yr, KMS, "v_sun"),  # a proper motion is not a velocity without a distance
+        (1.0 * u.kpc, u.dimensionless_unscaled, "min_snr"),
+        (1.0 * u.Hz, u.m, "wavelength"),  # convertible only with the spectral equivalency
+    ],
+)
 def test_incompatible_unit_raises_unit_mismatch_naming_the_quantity_and_both_units(value, unit, name):
     with pytest.raises(UnitMismatchError) as info:
         to_value(value, unit, name)
