@@ -92,7 +92,7 @@ def run_blocks(n, block, work, scratch=dict, threads=None):
     """
     starts = iter(range(0, n, block))
     lock = threading.Lock()
-    failed = []
+    failed: list[BaseException] = []
 
     def worker():
         mine = scratch()

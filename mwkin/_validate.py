@@ -19,6 +19,7 @@ import math
 import numbers
 import os
 import sys
+import types
 import warnings
 from collections.abc import Mapping
 
@@ -101,7 +102,7 @@ def check_keys(data, what, error, *, required=(), optional=()):
     error
         Unknown keys (usually typos) are reported first, then missing ones.
     """
-    units = {}
+    units: dict = {}
     for group in (required, optional):
         if isinstance(group, Mapping):
             units.update(group)
@@ -235,7 +236,7 @@ def text(value, name, error):
 def _caller_stacklevel():
     # The first frame outside mwkin (and outside dataclass-generated __init__ code, whose file is
     # "<string>"), so the warning points at the user's line, not ours.
-    frame = sys._getframe(2)
+    frame: types.FrameType | None = sys._getframe(2)
     level = 2
     while frame is not None:
         filename = frame.f_code.co_filename

@@ -301,7 +301,7 @@ def column_values(table, name, unit=None, *, error=ValueError):
 
 def alias_doc_table():
     """The alias list as a reST table, for docstrings (built from the dict so the two never drift)."""
-    by_target = {}
+    by_target: dict[str, list[str]] = {}
     for alias, std in COLUMN_ALIASES.items():
         by_target.setdefault(std, []).append(alias)
     rows = [(f"``{std}``", ", ".join(f"``{a}``" for a in spellings)) for std, spellings in by_target.items()]

@@ -21,7 +21,9 @@ from __future__ import annotations
 import dataclasses
 import math
 import types
+from collections.abc import Mapping
 from dataclasses import dataclass, field
+from typing import Any
 
 import astropy.units as u
 import numpy as np
@@ -50,7 +52,9 @@ DEFAULT_PRESET = "astropy v4.0"
 
 #: The default frame's parameters (astropy's Galactocentric defaults since v4.0): R0 in kpc, z_sun in pc,
 #: v_sun in km/s. Read-only; the one home of these numbers (the default preset and the widgets use it).
-DEFAULT_FRAME_PARAMETERS = types.MappingProxyType({"R0": 8.122, "z_sun": 20.8, "v_sun": (12.9, 245.6, 7.78)})
+DEFAULT_FRAME_PARAMETERS: Mapping[str, Any] = types.MappingProxyType(
+    {"R0": 8.122, "z_sun": 20.8, "v_sun": (12.9, 245.6, 7.78)}
+)
 
 #: Measured proper motion of Sgr A* in Galactic coordinates, mas/yr, as (value, sigma); mu_l is
 #: mu_l cos b (Reid & Brunthaler 2020, ApJ 892, 39).

@@ -9,10 +9,16 @@ table would, so results agree row for row with the in-memory path. Requires the 
 from __future__ import annotations
 
 import re
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from .catalog import CatalogError, read_catalog
+
+if TYPE_CHECKING:
+    import pandas as pd
+
+    from .frames import SolarFrame
 
 __all__ = [
     "OUTPUT_COLUMNS",
@@ -130,8 +136,8 @@ def _flag_series(values, index):
 
 
 def galactocentric_partition(
-    df,
-    frame=None,
+    df: pd.DataFrame,
+    frame: SolarFrame | None = None,
     distance=None,
     errors="none",
     columns=OUTPUT_COLUMNS,
@@ -139,7 +145,7 @@ def galactocentric_partition(
     path_column="path",
     partition_paths=None,
     partition_info=None,
-):
+) -> pd.DataFrame:
     """Convert one pandas partition; returns a pandas DataFrame with plain float columns.
 
     Parameters
@@ -208,7 +214,7 @@ def _empty_frame(df, kept, names):
 
 def to_galactocentric_dask(
     ddf,
-    frame=None,
+    frame: SolarFrame | None = None,
     distance=None,
     errors="none",
     columns=OUTPUT_COLUMNS,
@@ -274,7 +280,7 @@ def to_galactocentric_dask(
     return ddf.map_partitions(galactocentric_partition, meta=meta, **options)
 
 
-def local_client(address=None, n_workers=2, threads_per_worker=1):
+def local_client(address: str | None = None, n_workers: int = 2, threads_per_worker: int = 1):
     """A ``dask.distributed`` client: a local cluster by default, or the scheduler at ``address``."""
     from dask.distributed import Client, LocalCluster
 

@@ -174,7 +174,7 @@ def _decode_problem(description, exc, used, default):
 
 def _duplicates(names):
     """{name: [0-based positions]} for every name given more than once (blanks around it ignored)."""
-    positions = {}
+    positions: dict[str, list[int]] = {}
     for i, name in enumerate(names):
         positions.setdefault(str(name).strip().lstrip(_BOM), []).append(i)
     return {name: where for name, where in positions.items() if len(where) > 1}

@@ -31,7 +31,7 @@ from .values import (
 )
 
 
-def read_catalog(source, *, format=None, aliases=None, units=None, encoding=None):
+def read_catalog(source, *, format=None, aliases=None, units=None, encoding=None) -> QTable:
     """Read a star catalogue into a table with standard columns, units and checks.
 
     Parameters
@@ -152,7 +152,7 @@ def _read_catalog(source, format=None, aliases=None, units=None, copy=True, enco
     for alias in aliases or {}:
         if _key(alias) not in lowered:
             raise CatalogError(f"aliases: there is no column {alias!r}; columns found: {_list_names(table.colnames)}")
-    found = {}
+    found: dict[str, list[str]] = {}
     for name in table.colnames:
         std = lookup.get(_key(name))
         if std is not None:
@@ -205,7 +205,7 @@ def _read_catalog(source, format=None, aliases=None, units=None, copy=True, enco
         if std == "source_id":
             continue
         label = _column_label(std, original)
-        found_here = []
+        found_here: list[str] = []
         column_problems.append(found_here)
         values, unit, ours = _as_float(table[original], label, copy and not owned)
         if values is None:

@@ -270,7 +270,7 @@ def _subnormal_mask(values):
 def _summaries(columns):
     """:class:`_Summary` of each array, on a few threads for large tables (numpy's reductions
     release the interpreter lock)."""
-    out = [None] * len(columns)
+    out: list[_Summary | None] = [None] * len(columns)
     if sum(c.size for c in columns) < (1 << 20):
         return [_Summary(c) for c in columns]
     from .._blocks import run_blocks

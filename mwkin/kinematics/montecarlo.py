@@ -43,7 +43,9 @@ class _CorrelationCheck:
         m = stop - start
         sl = slice(start, stop)
         p = self.params
-        E, L, D = {}, {}, []
+        E: dict[tuple[int, int], np.ndarray] = {}
+        L: dict[tuple[int, int], np.ndarray] = {}
+        D: list[np.ndarray] = []
         tmp = ws.vec("corr_tmp", m)
         ok = ws.mask("corr_ok", m)
         ok.fill(True)

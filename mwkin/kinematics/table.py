@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import numbers
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
@@ -32,6 +33,9 @@ from .transforms import (
     _scratch_for,
     observables_from_galactocentric,
 )
+
+if TYPE_CHECKING:
+    from ..frames import SolarFrame
 
 
 # ====================================================================== table level
@@ -73,7 +77,7 @@ def _check_options(errors, n_samples, percentiles, return_covariance, distance, 
         if not (
             seed is None
             or isinstance(seed, np.random.Generator)
-            or (isinstance(seed, numbers.Integral) and not isinstance(seed, bool) and seed >= 0)
+            or (isinstance(seed, numbers.Integral) and not isinstance(seed, bool) and int(seed) >= 0)
         ):
             raise KinematicsError(f"seed must be a whole number >= 0, a numpy Generator or None, got {seed!r}")
         try:
@@ -92,15 +96,15 @@ def _check_options(errors, n_samples, percentiles, return_covariance, distance, 
 
 def to_galactocentric(
     stars,
-    frame=None,
+    frame: SolarFrame | None = None,
     *,
     errors="none",
     distance=None,
     n_samples=1000,
     seed=None,
     percentiles=(16, 50, 84),
-    return_covariance=False,
-):
+    return_covariance: bool = False,
+) -> QTable:
     """Galactocentric and heliocentric positions and velocities of the stars in a table.
 
     Parameters
@@ -275,6 +279,7 @@ def to_galactocentric(
     columns["distance"] = d
     extra = {}
     if montecarlo:
+        assert trig is not None  # allocated above for montecarlo
         inp = dict(
             trig, pmra=pmra, pmdec=pmdec, rv=rv, nominal_phi=columns["phi"].copy(), nominal_l=columns["l"].copy()
         )
@@ -304,11 +309,11 @@ def to_galactocentric(
         sigmas["v_z"] = sigmas["vz"]
         no_position, no_velocity = ~has_position, ~has_velocity
         for name, values in sigmas.items():
-            missing = no_sky if name in ("l", "b") else (no_velocity if name in _VELOCITY_COLUMNS else no_position)
+            undefined = no_sky if name in ("l", "b") else (no_velocity if name in _VELOCITY_COLUMNS else no_position)
             if bad_corr is not None:
-                missing = missing | bad_corr
-            if missing.any():
-                values[missing] = np.nan
+                undefined = undefined | bad_corr
+            if undefined.any():
+                values[undefined] = np.nan
             extra[f"sigma_{name}"] = (values, OUTPUT_COLUMNS[name][0], f"linear uncertainty (1 sigma) of {name}")
         for key, cov in (covs or {}).items():
             cov[no_position] = np.nan
@@ -352,7 +357,7 @@ def to_galactocentric(
 _PHASE_SPACE = {"x": u.kpc, "y": u.kpc, "z": u.kpc, "vx": KMS, "vy": KMS, "vz": KMS}
 
 
-def from_galactocentric(phase_space, frame=None):
+def from_galactocentric(phase_space, frame: SolarFrame | None = None) -> QTable:
     """Observables of stars given by Galactocentric positions and velocities (the inverse conversion).
 
     Parameters
@@ -414,7 +419,8 @@ def from_galactocentric(phase_space, frame=None):
             values.append(to_value(col if isinstance(col, u.Quantity) else np.asarray(col, dtype=float), unit, name))
         if "source_id" in names:
             source_id = np.array(phase_space["source_id"])
-    obs = observables_from_galactocentric(*values, frame=frame)
+    x, y, z, vx, vy, vz = values
+    obs = observables_from_galactocentric(x, y, z, vx, vy, vz, frame=frame)
     with np.errstate(divide="ignore"):
         parallax = np.where(obs["distance"] > 0, 1.0 / obs["distance"], np.nan)
     cols = {}
@@ -429,8 +435,8 @@ def from_galactocentric(phase_space, frame=None):
         ("pmdec", MASYR, obs["pmdec"], "proper motion mu_delta"),
         ("radial_velocity", KMS, obs["radial_velocity"], "heliocentric radial velocity"),
     )
-    for name, unit, values, _ in spec:
-        cols[name] = values << unit
+    for name, unit, column, _ in spec:
+        cols[name] = column << unit
     result = QTable(cols, copy=False)
     for name, _, _, description in spec:
         result[name].info.description = description

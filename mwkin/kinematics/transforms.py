@@ -363,11 +363,11 @@ def _forward_all(sa, ca, sd, cd, d, pmra, pmdec, rv, geo):
 def _as_arrays(names_values):
     arrays = [np.asarray(v, dtype=float) for v in names_values.values()]
     try:
-        arrays = np.broadcast_arrays(*arrays)
+        broadcast = np.broadcast_arrays(*arrays)
     except ValueError:
         shapes = ", ".join(f"{n} {np.shape(v)}" for n, v in names_values.items())
         raise KinematicsError(f"arrays of different shapes: {shapes}") from None
-    return [np.array(a, dtype=float, ndmin=1).ravel() for a in arrays]
+    return [np.array(a, dtype=float, ndmin=1).ravel() for a in broadcast]
 
 
 def _observables_forward(ra_deg, dec_deg, distance_kpc, pmra, pmdec, rv_kms, frame):

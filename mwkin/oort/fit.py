@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 import warnings
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
@@ -16,6 +17,9 @@ from .model import KMS_KPC, PARAMETERS, UNITS, derived_from_samples, derived_qua
 from .result import OortFit
 from .sample import STATUS, STATUS_CODE, USES, OortInputError, prepare_sample
 from .solver import bootstrap_parameters, solve, sym_apply
+
+if TYPE_CHECKING:
+    from ..frames import SolarFrame
 
 __all__ = [
     "fit_oort",
@@ -121,7 +125,7 @@ def _potential_oort(potential, frame):
 # ---------------------------------------------------------------------- the fit
 def fit_oort(
     stars,
-    frame=None,
+    frame: SolarFrame | None = None,
     *,
     use="both",
     distance=None,
@@ -135,7 +139,7 @@ def fit_oort(
     potential=None,
     dispersion="ellipsoid",
     propagate_distance_errors=True,
-):
+) -> OortFit:
     """Fit the Oort constants and the solar motion to a stellar sample.
 
     Parameters
@@ -321,6 +325,7 @@ def _fit_prepared(prep, *, frame, use, distance, distance_range, robust, clip, b
             if not blocks:
                 raise OortInputError("sigma clipping rejected every star; raise clip")
             solution = solve(blocks, isotropic=isotropic, theta0=solution.theta, p0=solution.p)
+        assert rejected_prev is not None  # set by the first pass of the loop
         n_rejected = len(rejected_prev)
         status[rejected_prev] = STATUS_CODE["outlier"]
     n_counts = {}
@@ -617,7 +622,7 @@ def _per_star(evaluated, p, theta, status, n_rows):
 def fit_in_distance_bins(
     stars,
     bins,
-    frame=None,
+    frame: SolarFrame | None = None,
     *,
     use="both",
     distance=None,
@@ -626,7 +631,7 @@ def fit_in_distance_bins(
     clip=4.0,
     dispersion="ellipsoid",
     propagate_distance_errors=True,
-):
+) -> Table:
     """Fit the Oort constants separately in distance bins, to show where the first-order model holds.
 
     Parameters

@@ -244,6 +244,8 @@ class Block:
                 ]
             )
         if self.kind == "sky":
+            # Set together with var_d (oort.sample.make_block).
+            assert self.cov_ld is not None and self.cov_bd is not None
             g_l = np.einsum("ij,ij->j", g, e_l)
             g_b = np.einsum("ij,ij->j", g, e_b)
             return np.stack(
@@ -258,8 +260,10 @@ class Block:
 
     def _base_covariance(self):
         if self.kind == "sky":
+            assert self.e_ll is not None and self.e_lb is not None and self.e_bb is not None
             return np.stack([self.e_ll, self.e_lb, self.e_bb])
         if self.kind == "los":
+            assert self.e_rr is not None
             return self.e_rr[None, :]
         e_l, e_b, r_hat = self.basis()
         # P^T E P + e_rr r r^T with P = [e_l; e_b]: first G = E P (rows g_l, g_b).
@@ -574,6 +578,7 @@ def solve(blocks, *, isotropic=False, theta0=None, p0=None, max_iter=50, tol=1e-
     if isotropic:
         theta_cov = np.full((3, 3), theta_cov[0, 0])
     theta_cov = np.where(np.outer(free, free), theta_cov, np.nan)
+    assert p is not None  # set by the first iteration
     return Solution(
         p=p,
         covariance=lin.covariance,

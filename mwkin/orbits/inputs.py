@@ -154,11 +154,11 @@ def _phase_space(stars, frame, need_cov=False, distance=None):
     bad = ~np.all(np.isfinite(xyz), axis=1)
     if "has_velocity" in names:
         no_vel = ~np.asarray(table["has_velocity"], dtype=bool)
-        for i in np.flatnonzero(no_vel):
-            flags[i].append("no_velocity")
+        for row in np.flatnonzero(no_vel):
+            flags[row].append("no_velocity")
         bad &= ~no_vel
-    for i in np.flatnonzero(bad):
-        flags[i].append("nonfinite_input")
+    for row in np.flatnonzero(bad):
+        flags[row].append("nonfinite_input")
     cov = None
     if need_cov:
         if "cov_galactocentric" not in names:

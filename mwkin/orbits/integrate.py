@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import astropy.units as u
 import numpy as np
 
@@ -24,12 +26,16 @@ from .screening import (
     _timeouts,
 )
 
+if TYPE_CHECKING:
+    from ..frames import SolarFrame
+    from ..potentials import Potential
+
 
 # --------------------------------------------------------------------------------------- integration
 def integrate_orbits(
     stars_or_phase_space,
-    pot,
-    frame=None,
+    pot: Potential,
+    frame: SolarFrame | None = None,
     *,
     t,
     distance=None,
@@ -38,7 +44,7 @@ def integrate_orbits(
     cancel=None,
     chunk_size=None,
     timeout=None,
-):
+) -> OrbitSet:
     """Integrate the orbits of one star or many in a potential.
 
     Parameters

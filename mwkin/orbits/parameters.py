@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import astropy.units as u
 import numpy as np
 from astropy.table import QTable
@@ -26,6 +28,10 @@ from .screening import (
     _short_grid,
     _timeouts,
 )
+
+if TYPE_CHECKING:
+    from ..frames import SolarFrame
+    from ..potentials import Potential
 
 __all__ = ["orbit_parameters", "draw_phase_space_samples", "span_parameters"]
 
@@ -233,8 +239,8 @@ def span_parameters(orbit_sets):
 
 def orbit_parameters(
     stars_or_phase_space,
-    pot,
-    frame=None,
+    pot: Potential,
+    frame: SolarFrame | None = None,
     method="staeckel",
     t=None,
     n_samples=0,
@@ -245,7 +251,7 @@ def orbit_parameters(
     numcores=None,
     distance=None,
     timeout=None,
-):
+) -> QTable:
     """Orbital parameters of many stars: rperi, rapo, zmax, eccentricity, energy, Lz.
 
     Parameters
@@ -409,9 +415,9 @@ def orbit_parameters(
             sample_out["energy"], sample_out["Lz"] = e_s, lz_s
             n_used[sel] = np.isfinite(sample_out["rapo"].reshape(sel.size, n_samples)).sum(axis=1)
             for k, values in sample_out.items():
-                values = values.reshape(sel.size, n_samples)
+                per_star = values.reshape(sel.size, n_samples)
                 with np.errstate(all="ignore"), _quiet_nan_warnings():
-                    p16, p50, p84 = np.nanpercentile(values, [16, 50, 84], axis=1)
+                    p16, p50, p84 = np.nanpercentile(per_star, [16, 50, 84], axis=1)
                 bands[f"{k}_p16"][sel], bands[f"{k}_p50"][sel], bands[f"{k}_p84"][sel] = p16, p50, p84
 
     size = _chunk_size(chunk_size, _DEFAULT_CHUNK[method])
@@ -441,6 +447,7 @@ def orbit_parameters(
             "vectorised as galpy's estimateDeltaStaeckel"
         )
     else:
+        assert grid is not None  # method == "integrate"
         meta.update({"integrator": _galpy.INTEGRATOR, "t_end_gyr": float(grid[-1]), "n_times": int(grid.size)})
     table.meta.update(meta)
     if remaining.size:

@@ -426,7 +426,7 @@ class Potential:
         table["R"].info.description = "Galactocentric cylindrical radius in the mid-plane"
         table["vc"] = self.vcirc(R)
         table["vc"].info.description = "circular velocity of the whole model"
-        seen = {}
+        seen: dict[str, int] = {}
         for comp, label in zip(self._model.components, self.component_names):
             col = _column_name(label)
             seen[col] = seen.get(col, 0) + 1

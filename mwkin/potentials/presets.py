@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 import types
+from collections.abc import Mapping
 from dataclasses import dataclass
 
 import astropy.units as u
@@ -123,6 +124,7 @@ def _component_params(kind, given, defaults, label):
     unknown = set(given) - set(spec)
     if unknown:
         raise PotentialError(f"unknown {label} parameter(s) {sorted(unknown)}; expected {sorted(spec)}")
+    base: Mapping
     if defaults is None:
         base = {}
     else:
