@@ -73,6 +73,8 @@ def radec_to_lb(ra_rad, dec_rad):
     """Galactic longitude in [0, 2 pi) and latitude, radians, from ICRS ra and dec in radians."""
     x, y, z = ICRS_TO_GALACTIC @ unit_vectors(ra_rad, dec_rad)
     lon = np.mod(np.arctan2(y, x), 2.0 * np.pi)
+    # a hair below 0 modulo a full turn rounds to exactly 2 pi: that is l = 0
+    lon = np.where(lon >= 2.0 * np.pi, 0.0, lon)
     lat = np.arctan2(z, np.hypot(x, y))
     return lon, lat
 
@@ -113,6 +115,12 @@ def proper_motions_to_galactic(ra_rad, dec_rad, pmra, pmdec):
     :data:`ICRS_TO_GALACTIC`, and projected on the Galactic east/north basis. This is exact for any
     position (no small-angle or pole approximation).
     """
+    scalar = np.ndim(ra_rad) == 0 and np.ndim(dec_rad) == 0 and np.ndim(pmra) == 0 and np.ndim(pmdec) == 0
+    if scalar:  # one star given as plain numbers: the same numbers as for one-element arrays
+        out = proper_motions_to_galactic(
+            *(np.atleast_1d(np.asarray(v, dtype=float)) for v in (ra_rad, dec_rad, pmra, pmdec))
+        )
+        return tuple(float(v[0]) for v in out)
     _, e_ra, e_dec = tangent_basis(ra_rad, dec_rad)
     pm_vec = ICRS_TO_GALACTIC @ (e_ra * np.asarray(pmra, dtype=float) + e_dec * np.asarray(pmdec, dtype=float))
     lon, lat = radec_to_lb(ra_rad, dec_rad)

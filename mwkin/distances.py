@@ -31,7 +31,6 @@ import numpy as np
 
 from ._validate import real_number, require_mapping, text
 from .columns import column_values
-from .units import to_value
 
 __all__ = [
     "DistanceError",
@@ -246,8 +245,9 @@ class InverseParallax:
     reasons = ("no_parallax", "nonpositive_parallax", "no_parallax_error", "parallax_below_cut")
 
     def __post_init__(self):
-        min_snr = to_value(self.min_snr, u.dimensionless_unscaled, "min_snr")
-        zero_point = to_value(self.zero_point_mas, u.mas, "zero_point_mas")
+        # the same type rules as from_dict: strings, booleans and sequences are refused, naming the setting
+        min_snr = real_number(self.min_snr, "min_snr", "", DistanceError, finite=False)
+        zero_point = real_number(self.zero_point_mas, "zero_point_mas", "mas", DistanceError, finite=False)
         if not (np.ndim(min_snr) == 0 and np.isfinite(min_snr) and min_snr >= 0):
             raise DistanceError(f"min_snr must be a finite number >= 0 (0 switches the cut off), got {min_snr}")
         if not (np.ndim(zero_point) == 0 and np.isfinite(zero_point)):

@@ -16,7 +16,7 @@ import pytest
 from mwkin.orbits import integrate_orbits, orbit_parameters
 from mwkin.potentials import Potential
 
-REPO = Path(__file__).resolve().parents[2]
+REPO = Path(__file__).resolve().parents[3]
 # Generous: the child imports galpy and integrates a few orbits (about 2 s); a stall runs forever.
 DEADLINE_S = 120
 
