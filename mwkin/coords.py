@@ -69,14 +69,59 @@ def unit_vectors(lon_rad, lat_rad):
     return np.stack([cos_lat * np.cos(lon), cos_lat * np.sin(lon), np.sin(lat)])
 
 
+def _sin_cos(angle_rad):
+    """sin and cos from one tangent of the half angle (cheaper than np.sin plus np.cos, same accuracy)."""
+    t = np.tan(0.5 * angle_rad)
+    t2 = t * t
+    inv = 1.0 / (1.0 + t2)
+    return 2.0 * t * inv, (1.0 - t2) * inv
+
+
+def galactic_geometry(ra_deg, dec_deg):
+    """sin/cos of Galactic l and b and the proper-motion rotation, from ICRS ra, dec in degrees.
+
+    Returns
+    -------
+    sl, cl, sb, cb, c1, c2 : numpy.ndarray
+        ``(mu_l*, mu_b) = [[c1, c2], [-c2, c1]] (mu_alpha*, mu_delta)``.
+
+    Notes
+    -----
+    The Galactic unit vector is the Hipparcos matrix applied to the ICRS one; the rotation angle of
+    the proper motions comes from the north Galactic pole n (the matrix's third row): c1 = n . e_delta
+    / cos b, c2 = -n . e_alpha / cos b. Exact at every position except the Galactic poles, where l is
+    undefined.
+    """
+    sa, ca = _sin_cos(np.radians(ra_deg))
+    sd, cd = _sin_cos(np.radians(dec_deg))
+    g = ICRS_TO_GALACTIC
+    ux, uy = cd * ca, cd * sa
+    gx = g[0, 0] * ux + g[0, 1] * uy + g[0, 2] * sd
+    gy = g[1, 0] * ux + g[1, 1] * uy + g[1, 2] * sd
+    gz = g[2, 0] * ux + g[2, 1] * uy + g[2, 2] * sd
+    n_dot_ea = -g[2, 0] * sa + g[2, 1] * ca
+    n_dot_ed = -sd * (g[2, 0] * ca + g[2, 1] * sa) + g[2, 2] * cd
+    cb = np.sqrt(n_dot_ed * n_dot_ed + n_dot_ea * n_dot_ea)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        inv_cb = 1.0 / cb
+        rho = np.sqrt(gx * gx + gy * gy)
+        cl = np.where(rho > 0, gx / rho, 1.0)
+        sl = np.where(rho > 0, gy / rho, 0.0)
+    return sl, cl, gz, cb, n_dot_ed * inv_cb, -n_dot_ea * inv_cb
+
+
+def rotate_proper_motions(c1, c2, pmra, pmdec):
+    """(mu_l*, mu_b) from (mu_alpha*, mu_delta) with the rotation (c1, c2) of :func:`galactic_geometry`."""
+    return c1 * pmra + c2 * pmdec, -c2 * pmra + c1 * pmdec
+
+
 def radec_to_lb(ra_rad, dec_rad):
     """Galactic longitude in [0, 2 pi) and latitude, radians, from ICRS ra and dec in radians."""
-    x, y, z = ICRS_TO_GALACTIC @ unit_vectors(ra_rad, dec_rad)
-    lon = np.mod(np.arctan2(y, x), 2.0 * np.pi)
+    sl, cl, sb, cb, _, _ = galactic_geometry(np.degrees(ra_rad), np.degrees(dec_rad))
+    lon = np.mod(np.arctan2(sl, cl), 2.0 * np.pi)
     # a hair below 0 modulo a full turn rounds to exactly 2 pi: that is l = 0
     lon = np.where(lon >= 2.0 * np.pi, 0.0, lon)
-    lat = np.arctan2(z, np.hypot(x, y))
-    return lon, lat
+    return lon, np.arctan2(sb, cb)
 
 
 def tangent_basis(lon_rad, lat_rad):
@@ -111,18 +156,13 @@ def proper_motions_to_galactic(ra_rad, dec_rad, pmra, pmdec):
 
     Notes
     -----
-    The proper-motion vector is rebuilt in ICRS Cartesian from the local east/north basis, rotated with
-    :data:`ICRS_TO_GALACTIC`, and projected on the Galactic east/north basis. This is exact for any
-    position (no small-angle or pole approximation).
+    The rotation angle between the equatorial and Galactic east/north bases at the star comes from the
+    north Galactic pole (:func:`galactic_geometry`, the same geometry the Oort fit uses). Exact at
+    every position except the Galactic poles, where l is undefined.
     """
-    scalar = np.ndim(ra_rad) == 0 and np.ndim(dec_rad) == 0 and np.ndim(pmra) == 0 and np.ndim(pmdec) == 0
-    if scalar:  # one star given as plain numbers: the same numbers as for one-element arrays
-        out = proper_motions_to_galactic(
-            *(np.atleast_1d(np.asarray(v, dtype=float)) for v in (ra_rad, dec_rad, pmra, pmdec))
-        )
-        return tuple(float(v[0]) for v in out)
-    _, e_ra, e_dec = tangent_basis(ra_rad, dec_rad)
-    pm_vec = ICRS_TO_GALACTIC @ (e_ra * np.asarray(pmra, dtype=float) + e_dec * np.asarray(pmdec, dtype=float))
-    lon, lat = radec_to_lb(ra_rad, dec_rad)
-    _, e_l, e_b = tangent_basis(lon, lat)
-    return lon, lat, np.einsum("ij,ij->j", e_l, pm_vec), np.einsum("ij,ij->j", e_b, pm_vec)
+    ra, dec, mu_a, mu_d = (np.asarray(v, dtype=float) for v in (ra_rad, dec_rad, pmra, pmdec))
+    sl, cl, sb, cb, c1, c2 = galactic_geometry(np.degrees(ra), np.degrees(dec))
+    lon = np.mod(np.arctan2(sl, cl), 2.0 * np.pi)
+    lon = np.where(lon >= 2.0 * np.pi, 0.0, lon)
+    pm_l, pm_b = rotate_proper_motions(c1, c2, mu_a, mu_d)
+    return lon, np.arctan2(sb, cb), pm_l, pm_b

@@ -16,7 +16,7 @@ import astropy.units as u
 import numpy as np
 
 from ..columns import column_values
-from ..coords import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC
+from ..coords import K_KMS_PER_MASYR_KPC, galactic_geometry, rotate_proper_motions
 from ..units import to_value
 from .solver import CHUNK, Block
 
@@ -101,52 +101,6 @@ def _optional(table, name, unit, n, fill):
     return np.full(n, fill), False
 
 
-def _sin_cos(angle_rad):
-    """sin and cos from one tangent of the half angle (cheaper than np.sin plus np.cos, same accuracy)."""
-    t = np.tan(0.5 * angle_rad)
-    t2 = t * t
-    inv = 1.0 / (1.0 + t2)
-    return 2.0 * t * inv, (1.0 - t2) * inv
-
-
-def galactic_geometry(ra_deg, dec_deg):
-    """sin/cos of Galactic l and b and the proper-motion rotation, from ICRS ra, dec in degrees.
-
-    Returns
-    -------
-    sl, cl, sb, cb, c1, c2 : numpy.ndarray
-        ``(mu_l*, mu_b) = [[c1, c2], [-c2, c1]] (mu_alpha*, mu_delta)``.
-
-    Notes
-    -----
-    The Galactic unit vector is the Hipparcos matrix applied to the ICRS one; the rotation angle of
-    the proper motions comes from the north Galactic pole n (the matrix's third row): c1 = n . e_delta
-    / cos b, c2 = -n . e_alpha / cos b. Exact at every position except the Galactic poles, where l is
-    undefined.
-    """
-    sa, ca = _sin_cos(np.radians(ra_deg))
-    sd, cd = _sin_cos(np.radians(dec_deg))
-    g = ICRS_TO_GALACTIC
-    ux, uy = cd * ca, cd * sa
-    gx = g[0, 0] * ux + g[0, 1] * uy + g[0, 2] * sd
-    gy = g[1, 0] * ux + g[1, 1] * uy + g[1, 2] * sd
-    gz = g[2, 0] * ux + g[2, 1] * uy + g[2, 2] * sd
-    n_dot_ea = -g[2, 0] * sa + g[2, 1] * ca
-    n_dot_ed = -sd * (g[2, 0] * ca + g[2, 1] * sa) + g[2, 2] * cd
-    cb = np.sqrt(n_dot_ed * n_dot_ed + n_dot_ea * n_dot_ea)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        inv_cb = 1.0 / cb
-        rho = np.sqrt(gx * gx + gy * gy)
-        cl = np.where(rho > 0, gx / rho, 1.0)
-        sl = np.where(rho > 0, gy / rho, 0.0)
-    return sl, cl, gz, cb, n_dot_ed * inv_cb, -n_dot_ea * inv_cb
-
-
-def _galactic_proper_motions(c1, c2, pmra, pmdec):
-    """(mu_l*, mu_b) from (mu_alpha*, mu_delta) with the rotation of :func:`galactic_geometry`."""
-    return c1 * pmra + c2 * pmdec, -c2 * pmra + c1 * pmdec
-
-
 def sky_motions(stars):
     """Galactic longitude, latitude and proper motions of every star, as the Oort fit sees them.
 
@@ -193,7 +147,7 @@ def sky_motions(stars):
         if name not in stars.colnames:
             raise OortInputError(f"sky_motions: the star table has no {name!r} column")
     sl, cl, sb, cb, c1, c2 = galactic_geometry(_column(stars, "ra", u.deg), _column(stars, "dec", u.deg))
-    mu_l, mu_b = _galactic_proper_motions(c1, c2, _column(stars, "pmra", _MASYR), _column(stars, "pmdec", _MASYR))
+    mu_l, mu_b = rotate_proper_motions(c1, c2, _column(stars, "pmra", _MASYR), _column(stars, "pmdec", _MASYR))
     l_deg = np.degrees(np.mod(np.arctan2(sl, cl), 2.0 * np.pi))
     b_deg = np.degrees(np.arctan2(sb, cb))
     return l_deg, b_deg, mu_l, mu_b
@@ -379,7 +333,7 @@ def _make_block(kind, rows, ctx):
     ux, uy, uz = vel
     if kind in ("full", "sky"):
         pma, pmd = ctx["pmra"][rows], ctx["pmdec"][rows]
-        mu_l, mu_b = _galactic_proper_motions(c1, c2, pma, pmd)
+        mu_l, mu_b = rotate_proper_motions(c1, c2, pma, pmd)
         t_l, t_b = kd * mu_l, kd * mu_b
         # e_l = (-sl, cl, 0), e_b = (-sb cl, -sb sl, cb)
         ux += -sl * t_l - sb * cl * t_b
