@@ -118,7 +118,7 @@ def _potential_oort(potential, frame):
         out["A"] = float(to_value(result[0], KMS_KPC, "potential A"))
         out["B"] = float(to_value(result[1], KMS_KPC, "potential B"))
     if "A" not in out or "B" not in out:
-        raise OortInputError("potential.oort_constants(R0) did not return A and B")
+        raise OortInputError("potential.oort_constants(R) did not return A and B")
     return out
 
 

@@ -133,7 +133,7 @@ def integrate_orbits(
         nonlocal track
         chunk_limit, star_limit = _timeouts(timeout, len(idx), t)
         out, method, stopped = _galpy.integrate(
-            pot._model, ps.cyl[idx], t, numcores=numcores, timeout=chunk_limit, star_timeout=star_limit
+            pot.model, ps.cyl[idx], t, numcores=numcores, timeout=chunk_limit, star_timeout=star_limit
         )
         method_used["method"] = method
         timed_out[idx] = stopped
@@ -164,7 +164,7 @@ def integrate_orbits(
         good = computed[finite]
         rperi[good], rapo[good], zmax[good], ecc[good] = _parameters_from_tracks(track[good])
         energy[computed], lz[computed] = _energy_lz(pot, ps.cyl[computed])
-        phi_inf = pot._model.potential_at_infinity_kms2()[0]
+        phi_inf = pot.model.potential_at_infinity_kms2()[0]
         for i in computed[energy[computed] >= phi_inf]:
             ps.flags[i].append("unbound")
             rperi[i] = rapo[i] = zmax[i] = ecc[i] = np.nan

@@ -230,7 +230,7 @@ def _jsonable(obj):
 
 
 def _base_meta(pot, frame, ps):
-    value, how = pot._model.potential_at_infinity_kms2()
+    value, how = pot.model.potential_at_infinity_kms2()
     meta = {
         "input": ps.source,
         "energy_zero_point": pot.describe_zero_point(),
@@ -243,5 +243,5 @@ def _base_meta(pot, frame, ps):
 
 
 def _energy_lz(pot, cyl):
-    energy = _galpy.energy_kms2(pot._model, cyl)
+    energy = _galpy.energy_kms2(pot.model, cyl)
     return energy, cyl[:, 0] * cyl[:, 4]

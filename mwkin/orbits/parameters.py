@@ -56,7 +56,7 @@ def _staeckel_block(pot, cyl):
     Impossible values (zmax < 0, rperi > rapo, e outside [0, 1]) become NaN and are marked in
     ``unphysical``; ``unreliable`` marks finite values outside the tested validity.
     """
-    model = pot._model
+    model = pot.model
     delta = _galpy.estimate_delta(model, cyl[:, 0], cyl[:, 2])
     out = {k: np.full(len(cyl), np.nan) for k in ("eccentricity", "zmax", "rperi", "rapo")}
     ok = np.isfinite(delta) & (delta > 0)
@@ -86,7 +86,7 @@ def _staeckel_block(pot, cyl):
 def _integrated_block(pot, cyl, t, numcores, timeout):
     chunk_limit, star_limit = _timeouts(timeout, len(cyl), t)
     track, method, timed_out = _galpy.integrate(
-        pot._model, cyl, t, numcores=numcores, timeout=chunk_limit, star_timeout=star_limit
+        pot.model, cyl, t, numcores=numcores, timeout=chunk_limit, star_timeout=star_limit
     )
     finite = np.all(np.isfinite(track), axis=(1, 2))
     rperi, rapo, zmax, ecc = _parameters_from_tracks(track)
@@ -362,7 +362,7 @@ def orbit_parameters(
     n_used = np.zeros(n, dtype=int)
     marks = {reason: np.zeros(n, dtype=bool) for _, reason in _BLOCK_FLAGS}
     usable = np.flatnonzero(ps.usable)
-    phi_inf = pot._model.potential_at_infinity_kms2()[0]
+    phi_inf = pot.model.potential_at_infinity_kms2()[0]
 
     # Points per call: integrated tracks take nt x 48 bytes each, so sampled batches are split up.
     block = 20000 if method == "staeckel" else _DEFAULT_CHUNK["integrate"]

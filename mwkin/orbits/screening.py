@@ -90,7 +90,7 @@ def _coarse_grid(pot, cyl0, track, t):
     seen; when it exceeds the sampled extreme by more than 1 % (or 1 pc), the star is flagged.
     At the first or last time a rate pointing out of the span means the extreme is that end point.
     """
-    model = pot._model
+    model = pot.model
     step = abs(float(t[1] - t[0]))
     R0 = cyl0[:, 0]
     n, nt = track.shape[:2]

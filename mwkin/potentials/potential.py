@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import warnings
 from dataclasses import dataclass
 
 import astropy.units as u
@@ -275,6 +276,15 @@ class Potential:
             scale={"vc_kms": vc, "R_kpc": R, "factor": factor},
         )
 
+    @property
+    def model(self):
+        """The galpy adapter of this potential (:class:`mwkin.potentials._galpy.GalpyModel`).
+
+        The interface between :mod:`mwkin.potentials` and :mod:`mwkin.orbits` (which integrates in
+        it); users ask the :class:`Potential` itself.
+        """
+        return self._model
+
     def _unscaled_model(self):
         if self._scale is None:
             return self._model
@@ -438,13 +448,18 @@ class Potential:
             table[col].info.description = f"circular velocity of the {label} alone"
         return table
 
-    def oort_constants(self, R0=8.0):
-        """Oort constants A, B and Omega, kappa, dvc/dR implied by the rotation curve at R0.
+    def oort_constants(self, R=8.0, *, R0=None):
+        """Oort constants A, B and Omega, kappa, dvc/dR implied by the rotation curve at radius R.
 
         Parameters
         ----------
-        R0 : float, array or Quantity
-            Mid-plane radius, kpc (for the Sun, the in-plane distance; see :meth:`circular_velocity_at_sun`).
+        R : float, array or Quantity
+            Mid-plane (cylindrical) radius, kpc. For the Sun this is the in-plane distance
+            :attr:`SolarFrame.inplane_radius <mwkin.SolarFrame.inplane_radius>`, not the Sun-centre
+            distance R0 (see :meth:`circular_velocity_at_sun`).
+        R0 : float, array or Quantity, optional
+            Deprecated name of ``R`` (it is the name mwkin uses for the Sun-centre distance, which this
+            is not); still accepted, with a DeprecationWarning.
 
         Returns
         -------
@@ -459,7 +474,15 @@ class Potential:
         ----------
         Binney & Tremaine 2008, Galactic Dynamics, 2nd ed., Sect. 3.2.3.
         """
-        R = self._radius(R0, "R0")
+        if R0 is not None:
+            warnings.warn(
+                "Potential.oort_constants(R0=...) is deprecated: the argument is the in-plane radius R "
+                "(R0 is the Sun-centre distance elsewhere in mwkin); use oort_constants(R=...)",
+                DeprecationWarning,
+                stacklevel=2,
+            )
+            R = R0
+        R = self._radius(R, "R")
         vc = self.vcirc(R).value
         dvc = self._model.dvcdR(R)
         dvc = float(dvc) if np.ndim(R) == 0 else dvc

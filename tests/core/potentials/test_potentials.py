@@ -183,7 +183,7 @@ def test_rotation_curve_components_add_in_quadrature(mw14):
 def test_derived_quantities_reject_bad_radii(mw14):
     with pytest.raises(PotentialError, match=r"R must be positive and finite \(kpc\), got \[-1.0\]"):
         mw14.vcirc([-1.0, 8.0])
-    with pytest.raises(UnitMismatchError, match="R0"):
+    with pytest.raises(UnitMismatchError, match=r"^R: got a value in km / s, expected a unit convertible to kpc"):
         mw14.oort_constants(8 * u.km / u.s)
 
 
@@ -227,3 +227,12 @@ def test_describe_names_model_citation_and_units(mw14):
     assert "MWPotential2014 (Bovy 2015, ApJS 216, 29)" in text
     assert "scaled to vc(8 kpc) = 230 km/s" in text
     assert "ro=8 kpc" in text
+
+
+def test_oort_constants_old_keyword_still_works_with_a_deprecation_warning(mw14):
+    # R0 is the Sun-centre distance elsewhere in mwkin; the argument here is the in-plane radius R.
+    with pytest.warns(DeprecationWarning, match=r"oort_constants\(R=\.\.\.\)"):
+        old = mw14.oort_constants(R0=8.0)
+    new = mw14.oort_constants(R=8.0)
+    assert old.A == new.A and old.B == new.B
+    assert mw14.oort_constants(8.0).A == new.A
