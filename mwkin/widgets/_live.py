@@ -71,25 +71,38 @@ class LiveRunner:
         with self._lock:
             return self._delivered >= self._generation
 
-    def submit(self, request):
-        """Queue ``request``, replacing any request that has not started yet; returns its generation."""
+    def submit(self, request, inline=False):
+        """Queue ``request``, replacing any request that has not started yet; returns its generation.
+
+        Parameters
+        ----------
+        request : object
+            Handed to ``compute``.
+        inline : bool, optional
+            For a computation known to be quick: when nothing is queued or running, compute it at once
+            on the caller's thread (without the busy callback, which would only flicker); otherwise it
+            is queued like any other. Either way only the newest request is delivered.
+        """
         with self._lock:
             self._generation += 1
             generation = self._generation
-            self._pending = (generation, request)
-            if not self._threaded:
-                pass
-            elif self._thread is None or not self._thread.is_alive() or self._stalled():
-                self._thread = threading.Thread(target=self._work, name="mwkin-live", daemon=True)
-                self._thread.start()
-            else:
-                self._lock.notify_all()
-        if not self._threaded:
-            self._on_busy(True)
+            here = not self._threaded or (inline and self._pending is None and self._running_since is None)
+            if not here:
+                self._pending = (generation, request)
+                if self._thread is None or not self._thread.is_alive() or self._stalled():
+                    self._thread = threading.Thread(target=self._work, name="mwkin-live", daemon=True)
+                    self._thread.start()
+                else:
+                    self._lock.notify_all()
+        if here:
+            busy = not inline
+            if busy:
+                self._on_busy(True)
             try:
-                self._run_one()
+                self._execute(generation, request, worker=False)
             finally:
-                self._on_busy(False)
+                if busy:
+                    self._on_busy(False)
         return generation
 
     def supersede(self):
@@ -114,12 +127,17 @@ class LiveRunner:
         return not self._threaded or threading.current_thread() is self._thread
 
     def _run_one(self):
+        """Take the pending request and compute it on the worker thread; False when there is none."""
         with self._lock:
             if self._pending is None or not self._is_current_worker():
                 return False
             generation, request = self._pending
             self._pending = None
             self._running_since = time.monotonic()
+        return self._execute(generation, request, worker=True)
+
+    def _execute(self, generation, request, worker):
+        """Compute one request and deliver it if it is still the newest; False if the worker was abandoned."""
         start = time.perf_counter()
         try:
             result = self._compute(request)
@@ -129,9 +147,10 @@ class LiveRunner:
             error.__mwkin_traceback__ = traceback.format_exc()
         seconds = time.perf_counter() - start
         with self._lock:
-            if not self._is_current_worker():
-                return False    # abandoned as stalled: a fresh worker has taken over
-            self._running_since = None
+            if worker:
+                if not self._is_current_worker():
+                    return False    # abandoned as stalled: a fresh worker has taken over
+                self._running_since = None
             if generation == self._generation:
                 self.last_seconds = seconds
                 try:

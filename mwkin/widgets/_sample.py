@@ -22,6 +22,7 @@ import numpy as np
 from ..catalog import CatalogError, read_catalog
 from ..columns import column_values
 from ..distances import InverseParallax
+from ._base import Quiet, Setting
 from .state import ConfigError, require_mapping
 
 __all__ = [
@@ -33,7 +34,8 @@ __all__ = [
     "inverse_parallax_caveat",
     "SampleLoader",
     "DistanceControls",
-    "apply_sample_config",
+    "SAMPLE_SETTING",
+    "DISTANCE_SETTING",
     "UPLOAD_SUFFIXES",
     "LOW_SNR",
     "SampleWarning",
@@ -338,7 +340,7 @@ class DistanceControls(widgets.VBox):
         min_snr = default.min_snr if min_snr is None else min_snr
         zero_point_mas = default.zero_point_mas if zero_point_mas is None else zero_point_mas
         self._on_change = on_change
-        self._quiet = False
+        self._quiet = Quiet()
         self.method = widgets.ToggleButtons(options=[self.METHODS[0]], value=self.METHODS[0],
                                             description="distance", style={"button_width": "135px"},
                                             tooltip="how each star's distance is obtained")
@@ -364,12 +366,9 @@ class DistanceControls(widgets.VBox):
         has_parallax = stars is not None and "parallax" in stars.colnames
         options = ([self.METHODS[0]] if has_parallax or stars is None else []) + ([self.METHODS[1]] if has_column else [])
         current = self.method.value
-        self._quiet = True
-        try:
+        with self._quiet:
             self.method.options = options
             self.method.value = current if current in options else options[0]
-        finally:
-            self._quiet = False
         self._update_enabled()
 
     def _update_enabled(self):
@@ -401,7 +400,8 @@ class DistanceControls(widgets.VBox):
         return {"method": self.method.value, "min_snr": float(self.min_snr.value),
                 "zero_point_mas": float(self.zero_point.value)}
 
-    def load_config(self, config):
+    def check_config(self, config):
+        """A :attr:`config`-like dict checked (nothing applied); a :class:`ConfigError` names what is wrong."""
         config = require_mapping(config, "config['distance']")
         unknown = set(config) - {"method", "min_snr", "zero_point_mas"}
         if unknown:
@@ -414,72 +414,90 @@ class DistanceControls(widgets.VBox):
             value = config.get(key, 0.0)
             if isinstance(value, bool) or not isinstance(value, (int, float)) or not np.isfinite(value):
                 raise ConfigError(f"config['distance'][{key!r}] must be a finite number{unit}, got {value!r:.80}")
-        self._quiet = True  # the owner recomputes once, after the whole config is applied
-        try:
+        return config
+
+    def apply_config(self, config):
+        """Show a checked config (:meth:`check_config`) without reporting a change: the owner refreshes."""
+        method = config.get("method", self.method.value)
+        with self._quiet:
             if method not in self.method.options:
                 self.method.options = tuple(self.method.options) + (method,)
             self.min_snr.value = config.get("min_snr", self.min_snr.value)
             self.zero_point.value = config.get("zero_point_mas", self.zero_point.value)
             self.method.value = method
-        finally:
-            self._quiet = False
         self._update_enabled()
 
+    def load_config(self, config):
+        """Check, then apply, a :attr:`config`-like dict."""
+        self.apply_config(self.check_config(config))
 
-def apply_sample_config(widget, config):
-    """Apply the ``sample`` part of a widget config; returns a note for the status line ("" if none).
 
-    A path is read again (unless it is the sample the widget already has). A table, DataFrame or
-    upload cannot be restored from a config: the widget keeps the sample it was given, and the note says
-    so when there is none, or when its fingerprint differs from the one saved.
+def _check_sample_config(widget, config):
+    """The ``sample`` part of a widget config, checked: ``(stars, source) or None`` to take, and a note.
 
-    ``widget`` needs ``_stars``, ``_source`` and ``distance_controls`` (the two sample widgets do).
+    A path is read here, before anything is applied (unless it is the sample the widget already has). A
+    table, DataFrame or upload cannot be restored from a config: the widget keeps the sample it was
+    given, and the note says so when there is none, or when its fingerprint differs from the one saved.
     """
     source = SampleSource.from_config(config)
     if source.kind == "path":
         path = str(_config_sample_path(source.path))
-        if widget._source.kind != "path" or widget._source.path != path:
-            if not os.path.isfile(path):
-                raise ConfigError(f"config['sample']['path']: there is no file {path}")
-            try:
-                stars, new_source = load_sample(path)
-            except Exception as exc:  # noqa: BLE001 - reworded: never echo the file's content
-                raise ConfigError(
-                    f"config['sample']['path']: {path} could not be read as a star table "
-                    f"({type(exc).__name__}); read it with mwkin.read_catalog({path!r}) to see why") from None
-            widget._stars, widget._source = stars, new_source
-            widget.distance_controls.set_sample(stars)
-        return ""
+        if widget._source.kind == "path" and widget._source.path == path:
+            return None, ""
+        if not os.path.isfile(path):
+            raise ConfigError(f"config['sample']['path']: there is no file {path}")
+        try:
+            return load_sample(path), ""
+        except Exception as exc:  # noqa: BLE001 - reworded: never echo the file's content
+            raise ConfigError(
+                f"config['sample']['path']: {path} could not be read as a star table "
+                f"({type(exc).__name__}); read it with mwkin.read_catalog({path!r}) to see why") from None
     if source.kind == "none":
-        return ""
+        return None, ""
     if widget._stars is None:
-        return f"the saved sample ({source.describe()}) is not in the config: {source.to_config()['note']}"
+        return None, f"the saved sample ({source.describe()}) is not in the config: {source.to_config()['note']}"
     if source.fingerprint and widget._source.fingerprint != source.fingerprint:
-        return (f"note: the config was saved with a different sample ({source.describe()}, fingerprint "
-                f"{source.fingerprint}); using the current one ({widget._source.describe()})")
-    return ""
+        return None, (f"note: the config was saved with a different sample ({source.describe()}, fingerprint "
+                      f"{source.fingerprint}); using the current one ({widget._source.describe()})")
+    return None, ""
+
+
+def _apply_sample_config(widget, checked):
+    loaded, note = checked
+    if loaded is not None:
+        widget._take_sample(*loaded)
+    widget._note = note
+
+
+def _restore_sample(widget, saved):
+    stars, source, note = saved
+    if stars is not widget._stars:
+        widget._take_sample(stars, source)
+    widget._source, widget._note = source, note
+
+
+#: The ``sample`` entry of a sample widget's config (a path is read again; a table in memory is kept).
+SAMPLE_SETTING = Setting(lambda w: w._source.to_config(), _apply_sample_config, check=_check_sample_config,
+                         save=lambda w: (w._stars, w._source, w._note), restore=_restore_sample)
+
+#: The ``distance`` entry: the :class:`DistanceControls` settings.
+DISTANCE_SETTING = Setting(lambda w: w.distance_controls.config,
+                           lambda w, config: w.distance_controls.apply_config(config),
+                           check=lambda w, config: w.distance_controls.check_config(config))
 
 
 class SampleInput:
     """Mixin for widgets that take a star sample: the ``sample`` property and its source.
 
-    The widget implements ``_set_sample(stars, source)`` and sets ``_quiet`` while several of its
-    controls change at once, so that loading a config recomputes once, at the end.
+    The widget implements ``_set_sample(stars, source)`` (a new sample from the user: take it and
+    recompute); :meth:`_take_sample` only takes it (configs, undo), and widgets that derive something
+    from the sample extend it.
     """
 
-    def refresh(self):
-        if self._quiet:
-            return
-        super().refresh()
-
-    def load_config(self, config):
-        """Apply a dict produced by :attr:`config`; recomputes once at the end."""
-        self._quiet = True
-        try:
-            super().load_config(config)
-        finally:
-            self._quiet = False
-        self.refresh()
+    def _take_sample(self, stars, source):
+        """Hold ``stars`` (from ``source``) and offer the distance choices it supports; no recomputation."""
+        self._stars, self._source = stars, source
+        self.distance_controls.set_sample(stars)
 
     @property
     def sample(self):

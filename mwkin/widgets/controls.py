@@ -11,15 +11,15 @@ from __future__ import annotations
 import html
 import json
 import math
-import threading
-import time
+import warnings
 
 import ipywidgets as widgets
 import numpy as np
+from astropy.table import QTable
 
 from ..columns import column_values
 from ..frames import SCHOENRICH2010_SOLAR_MOTION, SGR_A_STAR_PROPER_MOTION, SolarFrame, reflex_comparison
-from ._base import StatusLine, error_text
+from ._base import Quiet, StatusLine, error_text
 from ._live import LiveRunner
 from .state import DEFAULT_FRAME_PRESET, FrameState, PotentialState, lsr_circular_velocity, potential_from_config
 
@@ -54,7 +54,7 @@ class NumberField(widgets.HBox):
     """
 
     def __init__(self, label, value, css, on_value, slider=None, tooltip=""):
-        self._quiet = False
+        self._quiet = Quiet()
         self._on_value = on_value
         self.text = widgets.FloatText(value=value, description=label, style=_LABEL_STYLE,
                                       continuous_update=False, tooltip=tooltip or label,
@@ -80,8 +80,7 @@ class NumberField(widgets.HBox):
 
     def show(self, value):
         """Display ``value`` (a valid value from the state) without calling back; clears the mark."""
-        self._quiet = True
-        try:
+        with self._quiet:
             self.text.value = value
             if self.slider is not None:
                 if value > self.slider.max:
@@ -89,8 +88,6 @@ class NumberField(widgets.HBox):
                 if value < self.slider.min:
                     self.slider.min = value
                 self.slider.value = value
-        finally:
-            self._quiet = False
         self.mark_invalid(False)
 
     def mark_invalid(self, invalid):
@@ -107,27 +104,28 @@ class NumberField(widgets.HBox):
         if self._quiet:
             return
         if self.slider is not None:
-            self._quiet = True
-            try:
+            with self._quiet:
                 self.slider.value = min(max(change["new"], self.slider.min), self.slider.max)
-            finally:
-                self._quiet = False
         self._on_value(change["new"])
 
     def _slider_moved(self, change):
-        if self._quiet:
+        if self._quiet or self._is_echo(change["new"]):
             return
-        # A slider shown in the browser snaps the value it was given to its step grid and sends it
-        # back (12.9 -> 12.899999999999999). That echo is not an edit: ignore anything closer than
-        # half a step to the value in the text box. A real move (one key press) is a whole step.
-        if abs(change["new"] - self.text.value) < 0.5 * self.slider.step:
-            return
-        self._quiet = True
-        try:
+        with self._quiet:
             self.text.value = change["new"]
-        finally:
-            self._quiet = False
         self._on_value(change["new"])
+
+    def _is_echo(self, slider_value):
+        """True if the slider only repeats the text box's value at its step (the one slider-echo rule).
+
+        A slider shown in the browser snaps a value set from Python to its step grid (12.9 ->
+        12.899999999999999; vz = -10.83 with step 0.5 -> -11.0) and, with ``continuous_update``, sends
+        the snapped value back as if the user had moved it; taking it would replace a shown value
+        (a preset, a converted or restored star) by a rounded one and edit the shared state. A value
+        within half a step of the text box's is that echo; a real move (one key press) lands a whole
+        step away.
+        """
+        return abs(slider_value - self.text.value) <= 0.5 * self.slider.step * (1 + 1e-9)
 
 
 class FrameControls(widgets.VBox):
@@ -153,7 +151,7 @@ class FrameControls(widgets.VBox):
         if not isinstance(self.state, FrameState):
             raise TypeError("frame_state must be a FrameState")
         self._solar_V = float(solar_V)
-        self._quiet = False
+        self._quiet = Quiet()
         presets = SolarFrame.presets()
         self._last_preset = self.state.preset if self.state.preset in presets else DEFAULT_FRAME_PRESET
 
@@ -309,13 +307,9 @@ class FrameControls(widgets.VBox):
         presets = SolarFrame.presets()
         name = self.state.preset if self.state.preset in presets else _CUSTOM
         options = list(presets) + ([_CUSTOM] if name == _CUSTOM else [])
-        self._quiet = True
-        try:
-            with self.preset_dropdown.hold_sync():
-                self.preset_dropdown.options = options
-                self.preset_dropdown.value = name
-        finally:
-            self._quiet = False
+        with self._quiet, self.preset_dropdown.hold_sync():
+            self.preset_dropdown.options = options
+            self.preset_dropdown.value = name
         if name == _CUSTOM:
             base = presets[self._last_preset]
             self.citation.value = (f"<small>edited; reset returns to <i>{html.escape(base.name)}</i> "
@@ -383,6 +377,18 @@ class PotentialControls(widgets.VBox):
     R_max : float, optional
         Outer radius of the rotation curve, kpc.
 
+    Attributes
+    ----------
+    result : astropy.table.QTable or None
+        The rotation curve drawn: :meth:`mwkin.Potential.rotation_curve` of the model (columns ``R``,
+        ``vc`` and ``vc_<component>``), whose ``meta`` also holds ``oort`` (the
+        :class:`~mwkin.potentials.OortConstants` at the Sun's in-plane radius, or at 8 kpc without a
+        frame: ``meta["oort"].vc`` is the model's circular velocity there), ``potential_model`` (the
+        :class:`~mwkin.Potential`, matched to the frame if asked) and, with a frame, ``frame``,
+        ``solar_V_kms`` and ``vc_frame_kms`` (the circular velocity the frame implies, v_sun,y - V).
+        None before the first curve and while the current state gives an error. The keys of the
+        dictionary it used to be (``result["vc_pot"]``...) still work, with a DeprecationWarning.
+
     Notes
     -----
     The rotation curve is recomputed on every change through a :class:`LiveRunner` (newest request
@@ -395,7 +401,7 @@ class PotentialControls(widgets.VBox):
         self.state = potential_state if potential_state is not None else PotentialState()
         self.frame_state = frame_state
         self.result = None
-        self._quiet = False
+        self._quiet = Quiet()
         self._radii = np.linspace(0.05, float(R_max), int(n_radii))
         self._built = set()
         self._presets = Potential.presets()
@@ -427,9 +433,7 @@ class PotentialControls(widgets.VBox):
         self.readout = widgets.HTML()
         self.readout.add_class("mwkin-vc-readout")
         self.status_line = StatusLine()
-        self._draw_lock = threading.RLock()
         self._curve_cache = None
-        self._generation = 0
         self._seconds = {}
         self._runner = LiveRunner(self._compute, self._deliver, self._fail, self._busy, threaded=threaded)
 
@@ -452,28 +456,17 @@ class PotentialControls(widgets.VBox):
     def refresh(self):
         """Recompute the rotation curve from the current state (newest request wins).
 
-        A model whose last rotation curve took less than :data:`INLINE_LIMIT_S` is recomputed in place;
-        anything slower, or never computed yet (McMillan17's first build takes seconds), goes to the
-        worker thread with a busy status. Each request is numbered and only the newest one is drawn,
-        whichever path it took.
+        A model whose last rotation curve took less than :data:`INLINE_LIMIT_S` is recomputed in place
+        when nothing else is running; anything slower, or never computed yet (McMillan17's first build
+        takes seconds), goes to the worker thread with a busy status. Either way it goes through the
+        live runner, which draws only the newest request.
         """
         frame = self.frame_state.frame if self.frame_state is not None else None
         config = self.state.config
-        with self._draw_lock:
-            self._generation += 1
-            request = {"potential": config, "frame": frame, "generation": self._generation}
-        fast = self._seconds.get(_model_key(config), math.inf) < INLINE_LIMIT_S
-        if fast and self._runner.idle:
-            start = time.perf_counter()
-            try:
-                result = self._compute(request)
-            except Exception as exc:  # noqa: BLE001 - shown in the status line
-                self._fail(exc, request)
-                return
-            self._deliver(result, request, time.perf_counter() - start)
-        else:
+        inline = self._seconds.get(_model_key(config), math.inf) < INLINE_LIMIT_S
+        if not (inline and self._runner.idle):
             self._busy(True)            # at once, on the main thread: the worker may start later
-            self._runner.submit(request)
+        self._runner.submit({"potential": config, "frame": frame}, inline=inline)
 
     def wait(self, timeout=120.0):
         """Block until the rotation curve is up to date (scripts and tests); returns self."""
@@ -508,9 +501,8 @@ class PotentialControls(widgets.VBox):
 
     # ------------------------------------------------------------------ user -> state
     def _preset_chosen(self, change):
-        if self._quiet:
-            return
-        self.state.preset = change["new"]
+        if not self._quiet:
+            self.state.preset = change["new"]
 
     def _parameter_setter(self, component, name, factor):
         def set_value(value):
@@ -540,11 +532,8 @@ class PotentialControls(widgets.VBox):
 
     # ------------------------------------------------------------------ state -> display
     def _state_changed(self, change):
-        self._quiet = True
-        try:
+        with self._quiet:
             self.match_checkbox.value = self.state.match_frame_vc
-        finally:
-            self._quiet = False
         if change["name"] == "solar_V":
             self.solar_V_field.show(self.state.solar_V)
         if change["name"] == "parameters" and self._numeric_keys() != self._slider_keys:
@@ -559,11 +548,8 @@ class PotentialControls(widgets.VBox):
         self.refresh()
 
     def _show_preset(self):
-        self._quiet = True
-        try:
+        with self._quiet:
             self.preset_dropdown.value = self.state.preset
-        finally:
-            self._quiet = False
         name = self.state.preset
         if name == _THREE_COMPONENT:
             self.citation.value = ("<small>bulge + disc + halo with the parameters below "
@@ -612,31 +598,27 @@ class PotentialControls(widgets.VBox):
         key = json.dumps(pot.to_dict(), sort_keys=True)
         cached = self._curve_cache
         if cached is not None and cached[0] == key:
-            curves = cached[1]
+            curve = cached[1]
         else:
-            curves = _rotation_curves(pot, self._radii)
-            self._curve_cache = (key, curves)
-        out = {"potential": pot, "R": self._radii, "curves": curves, "frame": frame}
+            curve = pot.rotation_curve(self._radii)
+            self._curve_cache = (key, curve)
+        result = _RotationCurve(curve, copy=False)
+        result.meta = {**curve.meta, "potential_model": pot}
         if frame is not None:
-            R_sun = frame.inplane_radius
-            out["R_sun"] = R_sun
-            out["vc_pot"] = float(pot.vcirc(R_sun).to_value("km/s"))
-            out["vc_frame"] = lsr_circular_velocity(frame, request["potential"]["solar_V"])
-        return out
+            solar_V = request["potential"]["solar_V"]
+            result.meta.update({"frame": frame, "solar_V_kms": solar_V,
+                                "vc_frame_kms": lsr_circular_velocity(frame, solar_V)})
+        result.meta["oort"] = pot.oort_constants(frame.inplane_radius if frame is not None else _REFERENCE_R_KPC)
+        return result
 
     def _deliver(self, result, request, seconds):
-        with self._draw_lock:
-            self._seconds[_model_key(request["potential"])] = seconds
-            if request["generation"] != self._generation:
-                return                      # a newer request exists: never draw a stale curve
-            self._draw(result, request, seconds)
-
-    def _draw(self, result, request, seconds):
+        self._seconds[_model_key(request["potential"])] = seconds
         if request["potential"]["preset"]:
             self._built.add(request["potential"]["preset"])
-        names = list(result["curves"])
+        pot = result.meta["potential_model"]
+        names = _curve_labels(pot, result)
         colours = [_COMPONENT_COLOURS.get(n, _EXTRA_COLOURS[i % len(_EXTRA_COLOURS)]) for i, n in enumerate(names)]
-        y = np.vstack([result["curves"][n] for n in names])
+        y = np.vstack([column_values(result, column, "km/s") for column in result.colnames[1:]])
         with self.curve_mark.hold_sync():
             self.curve_mark.y = y
             self.curve_mark.labels = names
@@ -644,27 +626,68 @@ class PotentialControls(widgets.VBox):
             self.curve_mark.line_style = "solid"
             self.curve_mark.stroke_width = 2.0
         top = float(np.nanmax(y)) if np.isfinite(y).any() else 300.0
-        if "vc_frame" in result:
-            top = max(top, result["vc_frame"])
+        oort = result.meta["oort"]
+        R_ref, vc_pot = float(oort.R.to_value("kpc")), float(oort.vc.to_value("km/s"))
+        if "vc_frame_kms" in result.meta:
+            vc_frame = result.meta["vc_frame_kms"]
+            top = max(top, vc_frame)
             with self.frame_mark.hold_sync():
-                self.frame_mark.x = np.array([result["R_sun"]])
-                self.frame_mark.y = np.array([result["vc_frame"]])
+                self.frame_mark.x = np.array([R_ref])
+                self.frame_mark.y = np.array([vc_frame])
             self.readout.value = (
-                f"v_c(R0 = {result['R_sun']:.3f} kpc) = <b>{result['vc_pot']:.1f} km/s</b> in this potential; "
-                f"the frame implies {result['vc_frame']:.1f} km/s (v_sun,y - V); "
-                f"difference {result['vc_pot'] - result['vc_frame']:+.1f} km/s")
+                f"v_c(R0 = {R_ref:.3f} kpc) = <b>{vc_pot:.1f} km/s</b> in this potential; "
+                f"the frame implies {vc_frame:.1f} km/s (v_sun,y - V); "
+                f"difference {vc_pot - vc_frame:+.1f} km/s")
         else:
-            R8 = 8.0
-            result["vc_8"] = float(result["potential"].vcirc(R8).to_value("km/s"))
-            self.readout.value = f"v_c(8 kpc) = <b>{result['vc_8']:.1f} km/s</b> in this potential"
+            self.readout.value = f"v_c({R_ref:g} kpc) = <b>{vc_pot:.1f} km/s</b> in this potential"
         self._y_scale.max = 1.1 * top
+        self.figure.layout.visibility = "visible"
         self.result = result
         self.status_line.show_ready(f"ready ({seconds * 1000:.0f} ms)")
 
     def _fail(self, exc, request):
-        with self._draw_lock:
-            if request["generation"] == self._generation:
-                self.status_line.show_error(error_text(exc))
+        # The current state has no curve: the one drawn was for another model, so it is hidden and
+        # .result no longer offers it.
+        self.result = None
+        self.figure.layout.visibility = "hidden"
+        self.readout.value = ""
+        self.status_line.show_error(error_text(exc))
+
+
+#: Radius at which the rotation curve is read out when no frame is given, kpc (a round number near the Sun).
+_REFERENCE_R_KPC = 8.0
+
+#: What ``PotentialControls.result`` held as a dictionary: key -> how to read it from the table.
+_LEGACY_RESULT_KEYS = {
+    "potential": lambda t: t.meta["potential_model"],
+    "frame": lambda t: t.meta.get("frame"),
+    "curves": lambda t: dict(zip(_curve_labels(t.meta["potential_model"], t),
+                                 (column_values(t, c, "km/s") for c in t.colnames[1:]))),
+    "R_sun": lambda t: float(t.meta["oort"].R.to_value("kpc")) if "frame" in t.meta else None,
+    "vc_pot": lambda t: float(t.meta["oort"].vc.to_value("km/s")) if "frame" in t.meta else None,
+    "vc_frame": lambda t: t.meta.get("vc_frame_kms"),
+    "vc_8": lambda t: float(t.meta["oort"].vc.to_value("km/s")) if "frame" not in t.meta else None,
+}
+
+
+class _RotationCurve(QTable):
+    """The QTable of :meth:`Potential.rotation_curve` that also answers the old dictionary keys.
+
+    ``result["vc_pot"]`` and the other keys of the dictionary :attr:`PotentialControls.result` used to
+    be still work, with a DeprecationWarning naming what to use instead; columns are columns as ever.
+    """
+
+    def __getitem__(self, item):
+        if isinstance(item, str) and item not in self.colnames and item in _LEGACY_RESULT_KEYS:
+            warnings.warn(f"PotentialControls.result is now the rotation-curve QTable; result[{item!r}] is "
+                          "deprecated: use its columns (R, vc, vc_<component>) and meta (oort: the "
+                          "OortConstants at the Sun, vc_frame_kms, frame, potential_model)",
+                          DeprecationWarning, stacklevel=2)
+            value = _LEGACY_RESULT_KEYS[item](self)
+            if value is None:
+                raise KeyError(item)
+            return value
+        return super().__getitem__(item)
 
 
 def _model_key(config):
@@ -672,11 +695,10 @@ def _model_key(config):
     return config["preset"] or "three-component"
 
 
-def _rotation_curves(pot, R):
-    """Total and per-component circular velocity (km/s) at radii ``R`` (kpc) as a dict label -> array."""
-    table = pot.rotation_curve(R)
-    curves = {"total": column_values(table, "vc", "km/s")}
+def _curve_labels(pot, table):
+    """Legend labels of a rotation-curve table's vc columns: "total", then the components' names."""
     # Potential.rotation_curve: columns R, vc, then one vc_<component> per component, in order.
+    labels = ["total"]
     for label, column in zip(pot.component_names, table.colnames[2:]):
-        curves[label if label not in curves else column] = column_values(table, column, "km/s")
-    return curves
+        labels.append(label if label not in labels else column)
+    return labels

@@ -14,17 +14,16 @@ import warnings
 
 import ipywidgets as widgets
 import numpy as np
-import traitlets
 
 from ..columns import column_values
 from ..oort.model import predicted_observables
 from ..oort.sample import sky_motions
-from ._base import AnalysisWidget, Panel, error_text
+from ._base import AnalysisWidget, Panel, Setting, control_setting, error_text, one_of, snippet_preamble, within_control
 from ._live import LiveRunner
 from ._plots import (COLOURS, SampleView, band_mark, binned_quantiles, error_bar_mark, legend_html, line_mark,
                      points_mark, set_error_bars, small_figure)
-from ._sample import DistanceControls, SampleInput, SampleLoader, SampleSource, apply_sample_config, inverse_parallax_caveat
-from .state import ConfigError
+from ._sample import (DISTANCE_SETTING, SAMPLE_SETTING, DistanceControls, SampleInput, SampleLoader, SampleSource,
+                      inverse_parallax_caveat)
 
 __all__ = ["OortFitter", "parameter_table_html", "parse_bins", "DEFAULT_BINS_KPC", "L_BIN_DEG"]
 
@@ -51,8 +50,37 @@ BINS_NOTE = ("The first-order (linear) velocity field holds only near the Sun: w
 #: Largest bootstrap the live widget runs (the core has no limit; past this a live fit takes seconds).
 MAX_LIVE_BOOTSTRAP = 5000
 
-_SETTINGS = ("distance_range", "max_pm_error", "max_abs_b", "use", "robust", "bootstrap", "seed", "bins",
-             "residual", "residual_against")
+
+
+def _check_bootstrap(widget, n_boot):
+    if not 0 <= n_boot <= MAX_LIVE_BOOTSTRAP:
+        raise ValueError(f"bootstrap N = {n_boot}: give 0 (no bootstrap) to {MAX_LIVE_BOOTSTRAP} resamples "
+                         "in the widget (use mwkin.fit_oort directly for more)")
+    return n_boot
+
+
+def _check_max_pm_error(widget, max_pm_error):
+    if not (math.isfinite(max_pm_error) and max_pm_error >= 0):
+        raise ValueError(f"max pm error = {max_pm_error} mas/yr: give 0 (no cut) or a positive error in mas/yr")
+    return float(max_pm_error)
+
+
+def _check_distance_range(widget, value):
+    if (len(value) != 2 or any(isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v)
+                               for v in value) or not 0 <= value[0] < value[1]):
+        raise ValueError("must be [min, max] in kpc with 0 <= min < max")
+    return float(value[0]), float(value[1])
+
+
+def _set_distance_range(widget, value):
+    lo, hi = (float(v) for v in value)
+    widget.distance_range.max = max(widget.distance_range.max, hi)
+    widget.distance_range.value = (lo, hi)
+
+
+def _check_bins(widget, text):
+    parse_bins(text)
+    return text
 
 
 def parse_bins(text):
@@ -188,13 +216,41 @@ class OortFitter(SampleInput, AnalysisWidget):
         self._stars = None
         self._source = SampleSource()
         self._geometry = None
-        self._quiet = True
         self._note = ""
         self._bins_cache = {}
         self._bins_error = ""
         self._bins_runner = LiveRunner(self._compute_bins, self._deliver_bins, self._fail_bins,
                                        threaded=threaded)
 
+        with self._quiet:   # building: one computation once the sample is in
+            self._build(distance_range, use, bins, use_canvas)
+        if sample is not None:
+            self.sample = sample
+        else:
+            self.status_line.show_ready("no sample yet: pass sample=... or load a file")
+
+    #: The config's settings (besides the shared frame and potential), in the order they are applied.
+    SETTINGS = {
+        "sample": SAMPLE_SETTING,
+        "distance": DISTANCE_SETTING,
+        # The front end snaps the range to the slider's step and echoes values like 0.49999999999999994;
+        # rounding far below the step keeps the settings (and the config) at what the user chose.
+        "distance_range": Setting(lambda w: [round(float(v), 9) for v in w.distance_range.value],
+                                  _set_distance_range, types=(list, tuple), check=_check_distance_range),
+        "max_pm_error": control_setting("max_pm_error", types=(int, float), convert=float, check=_check_max_pm_error),
+        "max_abs_b": control_setting("max_abs_b", types=(int, float), convert=float,
+                                     check=within_control("max_abs_b", " deg")),
+        "use": control_setting("use", types=(str,), check=one_of(set(_USES.values()), "use")),
+        "robust": control_setting("robust", types=(bool,), convert=bool),
+        "bootstrap": control_setting("bootstrap", types=(int,), convert=int, check=_check_bootstrap),
+        "seed": Setting(lambda w: w.seed, lambda w, value: setattr(w, "seed", value), types=(int, type(None))),
+        "bins": control_setting("bins_text", types=(str,), check=_check_bins),
+        "residual": control_setting("residual", types=(str,), check=one_of(set(_RESIDUALS), "residual")),
+        "residual_against": control_setting("residual_against", types=(str,),
+                                            check=one_of(set(_AGAINST), "residual_against")),
+    }
+
+    def _build(self, distance_range, use, bins, use_canvas):
         self.loader = SampleLoader(self._set_sample, self._upload_failed)
         self.distance_controls = DistanceControls(self.refresh)
         self.distance_range = widgets.FloatRangeSlider(value=tuple(distance_range), min=0.0,
@@ -265,11 +321,6 @@ class OortFitter(SampleInput, AnalysisWidget):
         self.frame_state.observe(lambda _: self.refresh(), names=["R0", "z_sun", "v_sun"])
         self.potential_state.observe(lambda _: self.refresh(),
                                      names=["preset", "parameters", "match_frame_vc", "solar_V"])
-        self._quiet = False
-        if sample is not None:
-            self.sample = sample
-        else:
-            self.status_line.show_ready("no sample yet: pass sample=... or load a file")
 
     # ------------------------------------------------------------------ plots
     def _build_plots(self, use_canvas):
@@ -315,12 +366,14 @@ class OortFitter(SampleInput, AnalysisWidget):
 
     # ------------------------------------------------------------------ sample
     def _set_sample(self, stars, source):
-        self._stars, self._source = stars, source
-        self._geometry = _SampleGeometry(stars) if stars is not None else None
+        self._take_sample(stars, source)
         self._bins_cache = {}
         self._note = ""
-        self.distance_controls.set_sample(stars)
         self.refresh()
+
+    def _take_sample(self, stars, source):
+        super()._take_sample(stars, source)
+        self._geometry = _SampleGeometry(stars) if stars is not None else None
 
     def _result_views(self):
         return [self.table_html, self._mu_box, self.vr_box, self._residual_box, self.counts_label,
@@ -338,20 +391,11 @@ class OortFitter(SampleInput, AnalysisWidget):
         return self
 
     def _settings(self):
-        n_boot = self.bootstrap.value
-        if not 0 <= n_boot <= MAX_LIVE_BOOTSTRAP:
-            raise ValueError(f"bootstrap N = {n_boot}: give 0 (no bootstrap) to {MAX_LIVE_BOOTSTRAP} resamples "
-                             "in the widget (use mwkin.fit_oort directly for more)")
-        max_pm_error = self.max_pm_error.value
-        if not (math.isfinite(max_pm_error) and max_pm_error >= 0):
-            raise ValueError(f"max pm error = {max_pm_error} mas/yr: give 0 (no cut) or a positive error in mas/yr")
-        # The front end snaps the range to the slider's step and echoes values like 0.49999999999999994;
-        # rounding far below the step keeps the settings (and the config) at what the user chose.
-        return {"distance_range": [round(float(v), 9) for v in self.distance_range.value],
-                "max_pm_error": float(self.max_pm_error.value), "max_abs_b": float(self.max_abs_b.value),
-                "use": self.use.value, "robust": bool(self.robust.value), "bootstrap": int(self.bootstrap.value),
-                "seed": self.seed, "bins": self.bins_text.value, "residual": self.residual.value,
-                "residual_against": self.residual_against.value}
+        """The fit's settings as typed, with the range checks a config gets too (ValueError naming them)."""
+        settings = {key: setting.get(self) for key, setting in self.SETTINGS.items() if key not in ("sample", "distance")}
+        _check_bootstrap(self, settings["bootstrap"])
+        _check_max_pm_error(self, settings["max_pm_error"])
+        return settings
 
     def _request(self):
         if self._stars is None:
@@ -362,7 +406,7 @@ class OortFitter(SampleInput, AnalysisWidget):
         controls = self.distance_controls
         return {
             "stars": self._stars, "source": self._source, "geometry": self._geometry, "frame": frame,
-            "potential": self.potential_state.potential_for(frame),
+            "potential": self.potential_state.potential_for(frame), "potential_config": self.potential_state.config,
             "distance": controls.choice(), "distance_code": controls.code(), "settings": settings,
             "bins": parse_bins(settings["bins"]),
             "quality": self._geometry.quality(settings["max_pm_error"], settings["max_abs_b"]),
@@ -554,54 +598,9 @@ class OortFitter(SampleInput, AnalysisWidget):
                                extra=extra)
 
     # ------------------------------------------------------------------ sharing
-    def _config(self):
-        return {"sample": self._source.to_config(), "distance": self.distance_controls.config, **self._settings()}
-
-    def _load_config(self, config):
-        config = dict(config)
-        unknown = set(config) - set(_SETTINGS) - {"sample", "distance"}
-        if unknown:
-            raise ConfigError(f"unknown settings {sorted(unknown)} for OortFitter; expected {sorted(_SETTINGS)}")
-        _check_setting_types(config)
-        if "use" in config and config["use"] not in _USES.values():
-            raise ValueError(f"use must be one of {sorted(_USES.values())}, got {config['use']!r}")
-        if "bins" in config:
-            parse_bins(config["bins"])
-        if "sample" in config:
-            self._note = apply_sample_config(self, config["sample"])
-            self._geometry = _SampleGeometry(self._stars) if self._stars is not None else None
-        if "distance" in config:
-            self.distance_controls.load_config(config["distance"])
-        simple = {"max_pm_error": self.max_pm_error, "max_abs_b": self.max_abs_b, "use": self.use,
-                  "robust": self.robust, "bootstrap": self.bootstrap, "bins": self.bins_text,
-                  "residual": self.residual, "residual_against": self.residual_against}
-        if "distance_range" in config:
-            lo, hi = (float(v) for v in config["distance_range"])
-            self.distance_range.max = max(self.distance_range.max, hi)
-            self.distance_range.value = (lo, hi)
-        for key, control in simple.items():
-            if key in config:
-                try:
-                    control.value = config[key]
-                except traitlets.TraitError as exc:
-                    raise ConfigError(f"OortFitter config[{key!r}] = {config[key]!r:.80}: {exc}") from None
-        if "seed" in config:
-            self.seed = config["seed"]
-        try:
-            self._settings()   # range checks (bootstrap, pm error) of the values just applied
-        except ValueError as exc:
-            raise ConfigError(f"OortFitter config: {exc}") from None
-
     def _code(self, request):
         s = request["settings"]
-        lines = [
-            "import numpy as np",
-            "import mwkin as mk",
-            "",
-            f"frame = mk.SolarFrame.from_dict({request['frame'].to_dict()!r})",
-            f"potential = {_potential_code(request)}",
-            f"stars = {request['source'].read_expression()}",
-        ]
+        lines = snippet_preamble(request, imports=("import numpy as np",), potential="potential", sample=True)
         quality = "None"
         cuts = []
         if s["max_abs_b"] < 90.0:
@@ -669,29 +668,6 @@ class OortFitter(SampleInput, AnalysisWidget):
         return panels
 
 
-#: Types of the OortFitter config values (bool is not taken for a number).
-_SETTING_TYPES = {"max_pm_error": (int, float), "max_abs_b": (int, float), "use": (str,), "robust": (bool,),
-                  "bootstrap": (int,), "seed": (int, type(None)), "bins": (str,), "residual": (str,),
-                  "residual_against": (str,)}
-
-
-def _check_setting_types(config):
-    for key, types in _SETTING_TYPES.items():
-        if key not in config:
-            continue
-        value = config[key]
-        if (isinstance(value, bool) and bool not in types) or not isinstance(value, types):
-            names = " or ".join("None" if t is type(None) else t.__name__ for t in types)
-            raise ConfigError(f"OortFitter config[{key!r}] must be {names}, got {type(value).__name__} {value!r:.80}")
-    if "distance_range" in config:
-        value = config["distance_range"]
-        if (not isinstance(value, (list, tuple)) or len(value) != 2
-                or any(isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) for v in value)
-                or not 0 <= value[0] < value[1]):
-            raise ConfigError(f"OortFitter config['distance_range'] must be [min, max] in kpc with "
-                              f"0 <= min < max, got {value!r:.80}")
-
-
 def _binned_legend(median_distance):
     return legend_html([
         (COLOURS["median"], "point", f"median in {L_BIN_DEG:g}-deg bins, with its error"),
@@ -705,13 +681,6 @@ def _pm(value, error):
     if not np.isfinite(value):
         return "not constrained"
     return f"{value:.2f} ± {error:.2f}" if np.isfinite(error) else f"{value:.2f}"
-
-
-def _potential_code(request):
-    potential = request["potential"]
-    if getattr(potential, "is_serialisable", False):
-        return f"mk.Potential.from_dict({potential.to_dict()!r})"
-    return f"None  # the widget's potential ({potential.describe()}) has no JSON form: build it in code"
 
 
 _ROW_UNITS = {"A": "km/s/kpc", "B": "km/s/kpc", "C": "km/s/kpc", "K": "km/s/kpc", "U": "km/s", "V": "km/s",

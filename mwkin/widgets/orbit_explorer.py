@@ -17,17 +17,17 @@ from __future__ import annotations
 
 import html
 import math
-import threading
 import warnings
 from dataclasses import dataclass, field
 
 import ipywidgets as widgets
 import numpy as np
+import traitlets
 
 from ..columns import OUTPUT_COLUMNS, PHASE_SPACE_COLUMNS, column_values
 from ..orbits import ADVISORY_FLAGS
 from ..orbits.parameters import draw_phase_space_samples, span_parameters
-from ._base import AnalysisWidget, Panel
+from ._base import AnalysisWidget, Panel, Setting, control_setting, snippet_preamble, within_control
 from ._sample import LOW_SNR, parallax_snr
 from .controls import NumberField
 from .state import ConfigError, potential_from_config, require_mapping
@@ -87,6 +87,16 @@ _MER_W, _MER_H = _FACE_PX, 240   # meridional figure, under the face-on view
 _MARGIN = 45
 
 
+def _is_number(value):
+    return not isinstance(value, bool) and isinstance(value, (int, float)) and math.isfinite(value)
+
+
+def _finite_gyr(widget, value):
+    if not _is_number(value):
+        raise ValueError("must be a finite number of Gyr")
+    return float(value)
+
+
 @dataclass
 class OrbitView:
     """Everything one OrbitExplorer computation produced.
@@ -114,21 +124,6 @@ class OrbitView:
     frame: object
     start: np.ndarray = field(default_factory=lambda: np.full(6, np.nan))
     note: str = ""
-
-
-class _Field(NumberField):
-    """A :class:`NumberField` that ignores its slider repeating a shown value at the slider's step.
-
-    The browser's slider snaps a value set from Python (e.g. vz = -10.83 with step 0.5) to its grid and,
-    with ``continuous_update``, sends the snapped value back as if the user had moved it; that would
-    silently replace a converted or restored value by a rounded one. A value within half a step of the
-    text box's is the slider showing that value, not a move (a real move lands on another grid point).
-    """
-
-    def _slider_moved(self, change):
-        if self.slider is not None and abs(change["new"] - self.text.value) <= 0.5 * self.slider.step * (1 + 1e-9):
-            return
-        super()._slider_moved(change)
 
 
 class OrbitExplorer(AnalysisWidget):
@@ -171,16 +166,39 @@ class OrbitExplorer(AnalysisWidget):
     ``config["star"]["original"]``; :meth:`restore_star` (the "back to ..." button) brings it back.
     """
 
+    #: The star as given, once a drag of the velocity arrow has turned it into phase space (None before);
+    #: the note and the "back to ..." button under the source follow it.
+    _original = traitlets.Dict(default_value=None, allow_none=True)
+
+    #: The config's settings (besides the shared frame and potential), in the order they are applied.
+    SETTINGS = {
+        "star": Setting(lambda w: w._star_setting(), lambda w, star: w._apply_star_setting(star),
+                        check=lambda w, star: _checked_star(w, star)),
+        "t_forward_gyr": Setting(lambda w: float(w.time_fields["t_forward"].value),
+                                 lambda w, value: w.time_fields["t_forward"].show(float(value)), check=_finite_gyr),
+        "t_backward_gyr": Setting(lambda w: float(w.time_fields["t_backward"].value),
+                                  lambda w, value: w.time_fields["t_backward"].show(float(value)), check=_finite_gyr),
+        "n_points": control_setting("n_points", types=(int,), convert=int),
+        "cloud": control_setting("cloud_toggle", types=(bool,), convert=bool),
+        "n_cloud": control_setting("n_cloud", types=(int,), convert=int, check=within_control("n_cloud")),
+        "seed": Setting(lambda w: w._seed, lambda w, value: setattr(w, "_seed", int(value)), types=(int,)),
+    }
+
     def __init__(self, frame=None, potential=None, star=None, *, stars=None, row=0, t_forward=1.0,
                  t_backward=0.0, n_points=2001, n_cloud=30, seed=1, threaded=True, **kwargs):
         super().__init__(frame, potential, threaded=threaded, **kwargs)
-        self._loading = False
+        with self._quiet:   # building: one computation at the end
+            table_refused = self._build(star, stars, row, t_forward, t_backward, n_points, n_cloud, seed)
+        self.frame_state.observe(self._inputs_changed, ["R0", "z_sun", "v_sun"])
+        self.potential_state.observe(self._inputs_changed, ["preset", "parameters", "match_frame_vc", "solar_V"])
+        if not table_refused:   # else the status line keeps saying why the table was not used
+            self.refresh()
+
+    def _build(self, star, stars, row, t_forward, t_backward, n_points, n_cloud, seed):
+        """Make the inputs, views and layout; returns True if a table was given and refused."""
         self._stars = None
         self._seed = int(seed)
-        self._original = None        # the star as given, once a drag has turned it into phase space
-        self._keep_view = False      # the next request comes from a drag: keep the face-on view's range
-        self._syncing = threading.local()   # set while _show writes the view's velocity (not a drag)
-        self._drawn = None
+        self._drawn = None        # what the views show: tracks, cloud, Sun, start, bounds (for export)
         star = dict(star or {})
         if star and set(star) & set(_PHASE_SPACE) and not set(star) & {"ra", "dec"}:
             source, obs, phase = "phase_space", dict(DEFAULT_STAR), {**DEFAULT_PHASE_SPACE, **star}
@@ -222,11 +240,7 @@ class OrbitExplorer(AnalysisWidget):
         self.children = [widgets.HBox([left, plots]), self.status_line,
                          widgets.HBox([self.code_button]), self.code_area, self.provenance_label]
         self.add_class("mwkin-orbit-explorer")
-
-        self.frame_state.observe(self._inputs_changed, ["R0", "z_sun", "v_sun"])
-        self.potential_state.observe(self._inputs_changed, ["preset", "parameters", "match_frame_vc", "solar_V"])
-        if not table_refused:   # else the status line keeps saying why the table was not used
-            self.refresh()
+        return table_refused
 
     # ================================================================== inputs
     def _build_inputs(self, obs, phase, distance_input, t_forward, t_backward, n_points, n_cloud):
@@ -246,7 +260,7 @@ class OrbitExplorer(AnalysisWidget):
 
         def field(key, label, value, rng):
             css = "mwkin-" + key.replace("_", "-")
-            return _Field(label, float(value), css, lambda v: changed(None), rng, label)
+            return NumberField(label, float(value), css, lambda v: changed(None), rng, label)
 
         self.observable_fields = {k: field(k, lab, obs[k], rng) for k, (lab, rng) in _OBSERVABLES.items()}
         self.error_fields = {k: field(k, lab, obs.get(k, 0.0), None) for k, lab in _OBS_ERRORS.items()}
@@ -314,15 +328,11 @@ class OrbitExplorer(AnalysisWidget):
             return False
         self._stars = table
         n = len(self._stars)
-        with self.hold_sync():
+        with self.hold_sync(), self._quiet:
             self.source.options = [(_SOURCES[k], k) for k in ("table", "observables", "phase_space")]
             self.row_selector.max = n - 1
-            self._loading = True
-            try:
-                self.row_selector.value = int(row)
-                self.source.value = "table"
-            finally:
-                self._loading = False
+            self.row_selector.value = int(row)
+            self.source.value = "table"
         self._show_row_label()
         if refresh:
             self.refresh()
@@ -359,9 +369,9 @@ class OrbitExplorer(AnalysisWidget):
 
     def _source_changed(self, change):
         source = self.source.value
-        if source != "phase_space" and self._original is not None and not self._loading:
+        if source != "phase_space" and not self._quiet:
             # the user chose another input: the dragged star is left behind, nothing to restore
-            self._forget_original()
+            self._original = None
         self.table_box.layout.display = None if source == "table" else "none"
         self.observables_box.layout.display = None if source == "observables" else "none"
         self.phase_box.layout.display = None if source == "phase_space" else "none"
@@ -377,23 +387,14 @@ class OrbitExplorer(AnalysisWidget):
             self._inputs_changed(change)
 
     def _inputs_changed(self, change):
-        if self._loading or not hasattr(self, "galaxy_view"):
-            return
         if change is not None and getattr(change, "get", None) and change.get("owner") is self.row_selector:
             self._show_row_label()
         self.refresh()
 
-    def refresh(self):
-        """Recompute from the current inputs (coalesced, off the main thread)."""
-        try:
-            super().refresh()
-        finally:
-            self._keep_view = False
-
     # ================================================================== dragging the velocity
     def _velocity_dragged(self, vx, vy):
         """``galaxy_view.velocity_xy`` changed: a drag in the browser, or a value set from Python."""
-        if getattr(self._syncing, "active", False) or self._loading:
+        if self._quiet:
             return   # the view being told the current star's velocity, not an edit
         vx, vy = float(vx), float(vy)
         fields = self.phase_fields
@@ -407,8 +408,7 @@ class OrbitExplorer(AnalysisWidget):
                 return
         fields["vx"].show(vx)
         fields["vy"].show(vy)
-        self._keep_view = True      # the view must not move under the pointer
-        self.refresh()
+        self._refresh(keep_view=True)      # the view must not move under the pointer
 
     def _convert_to_phase_space(self):
         """Turn the star (observables or table row) into typed phase space with the current frame.
@@ -420,15 +420,11 @@ class OrbitExplorer(AnalysisWidget):
         phase, _ = _phase_space(self._star_request(), frame)
         values = dict(zip(PHASE_SPACE_COLUMNS, _phase_space_row(phase)))
         original = {**self._star_config(), "converted_with_frame": frame.to_dict()}
-        self._loading = True
-        try:
+        with self._quiet:
             for key, value in values.items():
                 self.phase_fields[key].show(value)
             self.source.value = "phase_space"
-        finally:
-            self._loading = False
         self._original = original
-        self._show_original()
 
     def restore_star(self):
         """Use the star as it was given before the first drag of the velocity arrow, and recompute.
@@ -441,19 +437,13 @@ class OrbitExplorer(AnalysisWidget):
         if self._original is None:
             raise ValueError("nothing to restore: the star was not converted by dragging its velocity arrow")
         original = self._original
-        self._loading = True
-        try:
+        with self._quiet:
             self._apply_star_config(original)
-        finally:
-            self._loading = False
-        self._forget_original()
+        self._original = None
         self.refresh()
 
-    def _forget_original(self):
-        self._original = None
-        self._show_original()
-
-    def _show_original(self):
+    @traitlets.observe("_original")
+    def _show_original(self, change=None):
         original = self._original
         if original is None:
             self.drag_note.value = ""
@@ -550,7 +540,7 @@ class OrbitExplorer(AnalysisWidget):
                 "t_forward": t_forward, "t_backward": t_backward, "n_points": n_points,
                 "cloud": cloud, "n_cloud": int(self.n_cloud.value), "seed": self._seed,
                 "dragged_from": None if dragged is None else _given_text(dragged),
-                "keep_view": self._keep_view, "dragging": bool(self.galaxy_view.dragging)}
+                "keep_view": False, "dragging": bool(self.galaxy_view.dragging)}
 
     def _compute(self, request):
         frame = request["frame"]
@@ -625,7 +615,6 @@ class OrbitExplorer(AnalysisWidget):
                                extra=f"star from {_SOURCES[request['source']]}")
 
     def _show(self, view, request):
-        self._last_star = request["star"]
         tracks = {"forward": None, "backward": None}
         main_key = "forward" if request["t_forward"] > 0 else "backward"
         tracks[main_key] = _track_arrays(view.orbits, 0)
@@ -635,9 +624,9 @@ class OrbitExplorer(AnalysisWidget):
         sun = view.frame.sun_position
         self._draw_face_on(tracks, cloud, sun, view, request)
         self._draw_meridional(tracks, cloud, sun, view.frame.inplane_radius)
-        self._show_readout(view)
+        self._show_readout(view, request["star"])
 
-    def _show_readout(self, view):
+    def _show_readout(self, view, star):
         p = self.orbital_parameters()
         rows = [("r_peri", f"{p['rperi']:.3f}", "kpc", "rperi"), ("r_apo", f"{p['rapo']:.3f}", "kpc", "rapo"),
                 ("z_max", f"{p['zmax']:.3f}", "kpc", "zmax"), ("e", f"{p['eccentricity']:.3f}", "", "eccentricity"),
@@ -655,7 +644,7 @@ class OrbitExplorer(AnalysisWidget):
                        + (f"<td>{spread.get(k, '')}</td>" if spread else "") + "</tr>" for n, v, u, k in rows)
         note = ("<small>r_peri, r_apo, z_max and e over the integrated span; E in the potential's zero point "
                 "(see OrbitSet.energy); L_z = R v_phi, positive for prograde orbits</small>")
-        caveat = _parallax_caveat(self._last_star)
+        caveat = _parallax_caveat(star)
         if caveat:
             note += f"<br><small class='mwkin-caveat'>{html.escape(caveat)}</small>"
         self.readout.value = f"<table class='mwkin-orbit-table'>{head}{body}</table>{note}"
@@ -727,13 +716,10 @@ class OrbitExplorer(AnalysisWidget):
             g.sun_velocity_xy = [float(v) for v in view.frame.v_sun[:2]]
             g.star_xy = [float(start[0]), float(start[1])]
             if self._is_current(request):
-                # A result for an older input must not move the arrow back: the observer would take
-                # that for a drag. The flag is per thread, so a drag arriving meanwhile still counts.
-                self._syncing.active = True
-                try:
+                # A result for an older input must not move the arrow back. Showing the velocity is no
+                # drag; the guard is per thread, so a drag arriving meanwhile still counts.
+                with self._quiet:
                     g.velocity_xy = [float(start[3]), float(start[4])]
-                finally:
-                    self._syncing.active = False
             if not request["keep_view"]:
                 self._fit_view(bounds, extent)
             elif not request["dragging"]:
@@ -860,16 +846,19 @@ class OrbitExplorer(AnalysisWidget):
     def _result_views(self):
         return [self._plots_box]
 
-    def _config(self):
+    def _star_setting(self):
+        """The ``star`` part of the config: the inputs, and the star as given once dragged."""
         star = self._star_config()
         if self._original is not None:
             star["original"] = self._original
             star["note"] = ("vx, vy set by dragging the velocity arrow; 'original' is the star as given, "
                             "'phase_space' its conversion with the frame of that moment")
-        return {"star": star, "t_forward_gyr": float(self.time_fields["t_forward"].value),
-                "t_backward_gyr": float(self.time_fields["t_backward"].value),
-                "n_points": int(self.n_points.value), "cloud": bool(self.cloud_toggle.value),
-                "n_cloud": int(self.n_cloud.value), "seed": self._seed}
+        return star
+
+    def _apply_star_setting(self, star):
+        self._apply_star_config(star)
+        original = star.get("original")
+        self._original = dict(original) if original and self.source.value == "phase_space" else None
 
     def _star_config(self):
         star = {"source": self.source.value,
@@ -882,40 +871,6 @@ class OrbitExplorer(AnalysisWidget):
             star["row_values"] = {k: v for k, v in self._row_values().items() if k != "source_id"}
             star["note"] = "the table itself is not saved; pass stars= again to use it"
         return star
-
-    def load_config(self, config):
-        """Apply a dict produced by :attr:`config` (one recomputation at the end)."""
-        self._loading = True
-        try:
-            super().load_config(config)
-        finally:
-            self._loading = False
-
-    def _load_config(self, config):
-        config = dict(config)
-        known = {"star", "t_forward_gyr", "t_backward_gyr", "n_points", "cloud", "n_cloud", "seed"}
-        unknown = set(config) - known
-        if unknown:
-            raise ConfigError(f"unknown OrbitExplorer settings {sorted(unknown)}; expected {sorted(known)}")
-        _check_config_types(config)
-        self._loading = True
-        star = config.get("star", {})
-        self._apply_star_config(star)
-        original = star.get("original")
-        self._original = dict(original) if original and self.source.value == "phase_space" else None
-        self._show_original()
-        if "t_forward_gyr" in config:
-            self.time_fields["t_forward"].show(float(config["t_forward_gyr"]))
-        if "t_backward_gyr" in config:
-            self.time_fields["t_backward"].show(float(config["t_backward_gyr"]))
-        if "n_points" in config:
-            self.n_points.value = int(config["n_points"])
-        if "cloud" in config:
-            self.cloud_toggle.value = bool(config["cloud"])
-        if "n_cloud" in config:
-            self.n_cloud.value = int(config["n_cloud"])
-        if "seed" in config:
-            self._seed = int(config["seed"])
 
     def _apply_star_config(self, star):
         """Show the star of a config's ``"star"`` dict in the inputs (no recomputation)."""
@@ -944,17 +899,8 @@ class OrbitExplorer(AnalysisWidget):
         self.source.value = source
 
     def _code(self, request):
-        frame = request["frame"]
-        pot_cfg = request["potential_config"]
-        lines = ["import numpy as np", "from astropy.table import QTable", "import mwkin as mk", "",
-                 f"frame = mk.SolarFrame(R0={frame.R0!r}, z_sun={frame.z_sun!r}, v_sun={tuple(frame.v_sun)!r})"]
-        if pot_cfg["preset"]:
-            lines.append(f"pot = mk.Potential.preset({pot_cfg['preset']!r})")
-        else:
-            lines.append(f"pot = mk.Potential.three_component(**{pot_cfg['parameters']!r})")
-        if pot_cfg["match_frame_vc"]:
-            lines.append(f"pot = pot.scaled_to(frame.v_sun[1] - {pot_cfg['solar_V']!r}, "
-                         "frame.inplane_radius)  # match the frame's vc")
+        lines = snippet_preamble(request, imports=("import numpy as np", "from astropy.table import QTable"),
+                                 potential="pot")
         star = request["star"]
         cloud = request["cloud"]
         values = {**star["values"], **(star["errors"] if cloud else {})}
@@ -988,45 +934,38 @@ _UNITS_CODE = {"observables": "ra, dec in deg, parallax in mas (distance in kpc)
 
 
 # ====================================================================== helpers (no widget access)
-def _is_number(value):
-    return not isinstance(value, bool) and isinstance(value, (int, float)) and math.isfinite(value)
-
-
-def _check_config_types(config):
-    """Name the key of any value in an OrbitExplorer config that has the wrong type (nothing applied yet)."""
-    for key in ("t_forward_gyr", "t_backward_gyr"):
-        if key in config and not _is_number(config[key]):
-            raise ConfigError(f"OrbitExplorer config[{key!r}] must be a finite number of Gyr, got {config[key]!r:.80}")
-    for key in ("n_points", "n_cloud", "seed"):
-        if key in config and (isinstance(config[key], bool) or not isinstance(config[key], int)):
-            raise ConfigError(f"OrbitExplorer config[{key!r}] must be a whole number, got {config[key]!r:.80}")
-    if "cloud" in config and not isinstance(config["cloud"], bool):
-        raise ConfigError(f"OrbitExplorer config['cloud'] must be true or false, got {config['cloud']!r:.80}")
-    star = require_mapping(config.get("star", {}), "OrbitExplorer config['star']")
-    known = {"source", "observables", "errors", "distance_input", "phase_space", "row", "row_values", "note",
-             "original"}
+def _checked_star(widget, star, where="OrbitExplorer config['star']", original_allowed=True):
+    """The ``star`` part of a config, every key and value checked (nothing applied yet)."""
+    star = require_mapping(star, where)
+    known = {"source", "observables", "errors", "distance_input", "phase_space", "row", "row_values", "note"}
+    known |= {"original"} if original_allowed else {"converted_with_frame"}
     unknown = set(star) - known
     if unknown:
-        raise ConfigError(f"OrbitExplorer config['star'] has unknown keys {sorted(unknown)}; expected {sorted(known)}")
+        raise ConfigError(f"{where} has unknown keys {sorted(unknown)}; expected {sorted(known)}")
     fields_by_part = {"observables": DEFAULT_STAR, "errors": None, "phase_space": DEFAULT_PHASE_SPACE,
                       "row_values": None}
     for part, names in fields_by_part.items():
-        values = require_mapping(star.get(part, {}), f"OrbitExplorer config['star'][{part!r}]")
+        values = require_mapping(star.get(part, {}), f"{where}[{part!r}]")
         for name, value in values.items():
             if part != "row_values" and names is not None and name not in names:
-                raise ConfigError(f"OrbitExplorer config['star'][{part!r}] has an unknown field {name!r}; "
+                raise ConfigError(f"{where}[{part!r}] has an unknown field {name!r}; "
                                   f"expected {sorted(names)}")
             if not (isinstance(value, (int, float)) and not isinstance(value, bool)):
-                raise ConfigError(f"OrbitExplorer config['star'][{part!r}][{name!r}] must be a number, "
+                raise ConfigError(f"{where}[{part!r}][{name!r}] must be a number, "
                                   f"got {value!r:.80}")
     if "source" in star and star["source"] not in _SOURCES:
-        raise ConfigError(f"OrbitExplorer config['star']['source'] must be one of {sorted(_SOURCES)}, "
+        raise ConfigError(f"{where}['source'] must be one of {sorted(_SOURCES)}, "
                           f"got {star['source']!r:.80}")
     if "distance_input" in star and star["distance_input"] not in ("parallax", "distance"):
-        raise ConfigError("OrbitExplorer config['star']['distance_input'] must be 'parallax' or 'distance', "
+        raise ConfigError(f"{where}['distance_input'] must be 'parallax' or 'distance', "
                           f"got {star['distance_input']!r:.80}")
     if "row" in star and (isinstance(star["row"], bool) or not isinstance(star["row"], int) or star["row"] < 0):
-        raise ConfigError(f"OrbitExplorer config['star']['row'] must be a whole number >= 0, got {star['row']!r:.80}")
+        raise ConfigError(f"{where}['row'] must be a whole number >= 0, got {star['row']!r:.80}")
+    if "converted_with_frame" in star:
+        require_mapping(star["converted_with_frame"], f"{where}['converted_with_frame']")
+    if star.get("original"):
+        _checked_star(widget, star["original"], f"{where}['original']", original_allowed=False)
+    return star
 
 
 def _set_xy(mark, x, y):

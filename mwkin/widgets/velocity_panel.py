@@ -16,10 +16,11 @@ import numpy as np
 import traitlets
 
 from ..columns import column_values
-from ._base import AnalysisWidget, Panel
-from .state import ConfigError, lsr_circular_velocity
+from ._base import AnalysisWidget, Panel, control_setting, one_of, snippet_preamble
+from .state import lsr_circular_velocity
 from ._plots import COLOURS, SampleView
-from ._sample import (DistanceControls, SampleInput, SampleLoader, SampleSource, apply_sample_config, inverse_parallax_caveat)
+from ._sample import (DISTANCE_SETTING, SAMPLE_SETTING, DistanceControls, SampleInput, SampleLoader, SampleSource,
+                      inverse_parallax_caveat)
 
 __all__ = ["VelocityPanel"]
 
@@ -90,6 +91,14 @@ class VelocityPanel(SampleInput, AnalysisWidget):
 
     n_selected = traitlets.Int(0, help="number of stars in the current selection")
 
+    #: The config's settings (besides the shared frame), in the order they are applied.
+    SETTINGS = {
+        "sample": SAMPLE_SETTING,
+        "distance": DISTANCE_SETTING,
+        "errors": control_setting("errors_control", types=(str,), check=one_of(set(_ERROR_METHODS), "errors")),
+        "colour_by": control_setting("colour_control", types=(str,), check=one_of(set(COLOUR_COLUMNS), "colour_by")),
+    }
+
     def __init__(self, sample=None, frame=None, potential=None, *, errors="none", colour_by="none",
                  threaded=True, use_canvas=None, **kwargs):
         super().__init__(frame, potential, threaded=threaded, **kwargs)
@@ -97,10 +106,15 @@ class VelocityPanel(SampleInput, AnalysisWidget):
         self._stars = None
         self._source = SampleSource()
         self._selected_rows = np.zeros(0, dtype=np.int64)
-        self._linking = False
-        self._quiet = True
         self._note = ""
+        with self._quiet:   # building: one computation once the sample is in
+            self._build(errors, colour_by, use_canvas)
+        if sample is not None:
+            self.sample = sample
+        else:
+            self.status_line.show_ready("no sample yet: pass sample=... or load a file")
 
+    def _build(self, errors, colour_by, use_canvas):
         self.loader = SampleLoader(self._uploaded, self._upload_failed)
         self.distance_controls = DistanceControls(self.refresh)
         if errors not in _ERROR_METHODS:
@@ -142,20 +156,14 @@ class VelocityPanel(SampleInput, AnalysisWidget):
 
         self.frame_state.observe(lambda _: self.refresh(), names=["R0", "z_sun", "v_sun"])
         self.potential_state.observe(lambda _: self._show_lsr(), names=["solar_V"])
-        self._quiet = False
-        if sample is not None:
-            self.sample = sample
-        else:
-            self.status_line.show_ready("no sample yet: pass sample=... or load a file")
 
     # ------------------------------------------------------------------ sample
     def _set_sample(self, stars, source):
-        self._stars, self._source = stars, source
+        self._take_sample(stars, source)
         self._note = ""
         self._selected_rows = np.zeros(0, dtype=np.int64)
         self.n_selected = 0
         self.selection_label.value = ""
-        self.distance_controls.set_sample(stars)
         self.refresh()
 
     def _uploaded(self, stars, source):
@@ -199,20 +207,17 @@ class VelocityPanel(SampleInput, AnalysisWidget):
         return np.asarray(self._result["has_velocity"], dtype=bool)
 
     def _selected_in(self, view, indices):
-        if self._linking:  # our own update of the other views
+        if self._quiet:  # our own update of the other views
             return
         self._set_selected_rows(np.asarray(indices, dtype=np.int64), origin=view)
 
     def _set_selected_rows(self, rows, origin):
         rows = np.asarray(rows, dtype=np.int64)
         self._selected_rows = rows[self._has_velocity()[rows]] if len(rows) else rows
-        self._linking = True
-        try:
+        with self._quiet:
             for view in self._views:
                 if view is not origin and view.n_points == self._n_rows():
                     view.selected_indices = self._selected_rows
-        finally:
-            self._linking = False
         self.n_selected = len(self._selected_rows)
         self.selection_label.value = (f"<small>{self.n_selected} stars selected (available as "
                                       f"panel.selection)</small>" if self.n_selected else "")
@@ -261,16 +266,13 @@ class VelocityPanel(SampleInput, AnalysisWidget):
         colour = self._colour_values(result)
         c_label, c_unit = _split_label(self.colour_control.value) if colour is not None else ("", "")
         common = {"c_label": c_label, "c_unit": c_unit, "keep_selection": keep_selection}
-        self._linking = True
-        try:
+        with self._quiet:
             self.toomre.set_data(a["v_phi"], a["v_perp"], colour, x_label="v_phi",
                                  x_unit="km/s", y_label="sqrt(v_R² + v_z²)", y_unit="km/s", **common)
             self.uv_plane.set_data(a["U"], a["V"], colour, x_label="U, toward the centre", x_unit="km/s",
                                    y_label="V, along rotation", y_unit="km/s", **common)
             self.rotation.set_data(a["R"], a["v_phi"], colour, x_label="R", x_unit="kpc", y_label="v_phi",
                                    y_unit="km/s", **common)
-        finally:
-            self._linking = False
 
     def _colour_values(self, result):
         name = COLOUR_COLUMNS[self.colour_control.value]
@@ -313,39 +315,8 @@ class VelocityPanel(SampleInput, AnalysisWidget):
         return provenance_line(frame=request["frame"], distance=request["distance"],
                                extra=f"errors: {request['errors']}; sample: {request['source'].describe()}")
 
-    def _config(self):
-        return {"sample": self._source.to_config(), "distance": self.distance_controls.config,
-                "errors": self.errors_control.value, "colour_by": self.colour_control.value}
-
-    def _load_config(self, config):
-        config = dict(config)
-        sample = config.pop("sample", None)
-        distance = config.pop("distance", None)
-        errors = config.pop("errors", None)
-        colour = config.pop("colour_by", None)
-        if config:
-            raise ConfigError(f"unknown settings {sorted(config)} for VelocityPanel; expected "
-                              "['colour_by', 'distance', 'errors', 'sample']")
-        if errors is not None and (not isinstance(errors, str) or errors not in _ERROR_METHODS):
-            raise ConfigError(f"VelocityPanel config['errors'] must be one of {_ERROR_METHODS}, got {errors!r:.80}")
-        if colour is not None and (not isinstance(colour, str) or colour not in COLOUR_COLUMNS):
-            raise ConfigError(f"VelocityPanel config['colour_by'] must be one of {list(COLOUR_COLUMNS)}, "
-                              f"got {colour!r:.80}")
-        if sample is not None:
-            self._note = apply_sample_config(self, sample)
-        if distance is not None:
-            self.distance_controls.load_config(distance)
-        if errors is not None:
-            self.errors_control.value = errors
-        if colour is not None:
-            self.colour_control.value = colour
-
     def _code(self, request):
-        return "\n".join([
-            "import mwkin as mk",
-            "",
-            f"frame = mk.SolarFrame.from_dict({request['frame'].to_dict()!r})",
-            f"stars = {request['source'].read_expression()}",
+        return "\n".join(snippet_preamble(request, sample=True) + [
             f"out = mk.to_galactocentric(stars, frame, errors={request['errors']!r},",
             f"                           distance={request['distance_code']})",
         ])

@@ -157,7 +157,14 @@ def test_reflex_line_follows_the_frame():
 
 
 # --------------------------------------------------------------------------- PotentialControls
+from astropy.table import QTable  # noqa: E402
+
 from mwkin.widgets import PotentialControls, PotentialState  # noqa: E402
+
+
+def vc_at_sun(controls):
+    """The model's circular velocity at the frame's in-plane R0 (km/s), from the result's OortConstants."""
+    return controls.result.meta["oort"].vc.to_value("km/s")
 
 
 def controls_at_8kpc():
@@ -172,10 +179,58 @@ def controls_at_8kpc():
 def test_mwpotential2014_shows_220_kms_at_8_kpc():
     controls, pot, frame = controls_at_8kpc()
     # MWPotential2014: vc(8 kpc) = 220 km/s (Bovy 2015, ApJS 216, 29)
-    assert controls.result["vc_pot"] == pytest.approx(220.0, abs=0.05)
+    assert vc_at_sun(controls) == pytest.approx(220.0, abs=0.05)
     assert "220.0 km/s" in controls.readout.value
     assert "Bovy 2015" in controls.citation.value
     assert controls.status.startswith("ready")
+
+
+def test_the_result_is_the_cores_rotation_curve_with_the_frame_comparison():
+    controls, pot, frame = controls_at_8kpc()
+    result = controls.result
+    model = mk.Potential.preset("MWPotential2014")
+    expected = model.rotation_curve(np.asarray(controls.curve_mark.x, dtype=float))
+    assert isinstance(result, QTable) and result.colnames == expected.colnames
+    for name in expected.colnames:
+        np.testing.assert_allclose(result[name].value, expected[name].value, rtol=1e-12)
+    oort = result.meta["oort"]                       # mwkin's OortConstants at the in-plane R0
+    assert oort.R.to_value("kpc") == pytest.approx(frame.frame.inplane_radius)
+    assert oort.A.to_value("km/(s kpc)") == pytest.approx(model.oort_constants(8.0).A.value, rel=1e-12)
+    assert result.meta["vc_frame_kms"] == pytest.approx(245.6 - 12.24)
+    assert result.meta["frame"] == frame.frame and result.meta["potential_model"].name == "MWPotential2014"
+    # the keys of the dictionary .result used to be still answer, with a DeprecationWarning
+    with pytest.warns(DeprecationWarning, match="result\\['vc_pot'\\] is deprecated"):
+        assert result["vc_pot"] == vc_at_sun(controls)
+    with pytest.warns(DeprecationWarning):
+        assert result["vc_frame"] == result.meta["vc_frame_kms"]
+    with pytest.warns(DeprecationWarning):
+        assert result["R_sun"] == pytest.approx(8.0)
+    with pytest.warns(DeprecationWarning):
+        curves = result["curves"]
+    assert list(curves) == ["total", "bulge", "disc", "halo"]
+    np.testing.assert_array_equal(curves["total"], result["vc"].value)
+    with pytest.warns(DeprecationWarning), pytest.raises(KeyError):
+        result["vc_8"]                               # there is a frame: the value is vc_pot
+    alone = PotentialControls(PotentialState(), threaded=False)
+    with pytest.warns(DeprecationWarning):
+        assert alone.result["vc_8"] == pytest.approx(220.0, abs=0.05)    # Bovy 2015: 220 km/s at 8 kpc
+    assert "v_c(8 kpc) = <b>220.0 km/s</b>" in alone.readout.value
+
+
+def test_an_invalid_model_in_the_state_hides_the_curve_and_the_result():
+    controls, pot, _ = controls_at_8kpc()
+    bad = {c: dict(p) for c, p in pot.parameters.items()}
+    bad["bulge"]["mass"] = -1e10
+    with pot.hold_trait_notifications():
+        pot.parameters = bad
+        pot.preset = ""
+    controls.wait()
+    assert controls.status.startswith("error") and "bulge.mass" in controls.status
+    assert controls.result is None and controls.figure.layout.visibility == "hidden"
+    pot.preset = "MWPotential2014"
+    controls.wait()
+    assert controls.status.startswith("ready") and vc_at_sun(controls) == pytest.approx(220.0, abs=0.05)
+    assert controls.figure.layout.visibility == "visible"
 
 
 def test_rotation_curve_has_total_and_components_that_add_in_quadrature():
@@ -221,7 +276,7 @@ def test_a_slider_switches_to_the_three_component_model_and_redraws():
     assert controls.preset_dropdown.value == ""
     after = np.asarray(controls.curve_mark.y, dtype=float)
     assert not np.allclose(before, after)
-    assert controls.result["vc_pot"] > 225.0                  # a heavier disc, a faster rotation
+    assert vc_at_sun(controls) > 225.0                  # a heavier disc, a faster rotation
     assert controls.parameter_box.layout.display != "none"
 
 
@@ -242,12 +297,12 @@ def test_matching_the_frame_rescales_vc_at_the_sun():
     controls.match_checkbox.value = True
     controls.wait()
     assert pot.match_frame_vc
-    assert controls.result["vc_pot"] == pytest.approx(245.6 - 12.24, rel=1e-9)
+    assert vc_at_sun(controls) == pytest.approx(245.6 - 12.24, rel=1e-9)
     assert "+0.0 km/s" in controls.readout.value
     curve = np.asarray(controls.curve_mark.y, dtype=float).copy()
     frame.R0 = 8.3
     controls.wait()
-    assert controls.result["vc_pot"] == pytest.approx(245.6 - 12.24, rel=1e-9)
+    assert vc_at_sun(controls) == pytest.approx(245.6 - 12.24, rel=1e-9)
     assert not np.allclose(np.asarray(controls.curve_mark.y, dtype=float), curve)   # rescaled model
 
 
@@ -272,5 +327,5 @@ def test_the_newest_potential_request_wins():
     controls.wait()
     from mwkin.potentials import Potential
     expected = float(Potential.three_component(**pot.parameters).vcirc(8.0).value)
-    assert controls.result["vc_pot"] == pytest.approx(expected, rel=1e-12)
+    assert vc_at_sun(controls) == pytest.approx(expected, rel=1e-12)
     assert pot.parameters["disc"]["mass"] == pytest.approx(9.0e10)

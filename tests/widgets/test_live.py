@@ -68,3 +68,41 @@ def test_a_stalled_computation_does_not_block_newer_requests():
 def test_synchronous_mode_runs_in_submit():
     runner, results, _ = collecting_runner(lambda q: q * 2, threaded=False)
     assert runner.submit(3) == 1 and results == [6] and runner.idle
+
+
+def test_inline_requests_run_in_place_when_idle_and_queue_behind_a_running_one():
+    gate = threading.Event()
+    threads = []
+
+    def compute(request):
+        threads.append(threading.current_thread())
+        if request == "slow":
+            gate.wait(10)
+        return request
+
+    busy = []
+    runner, results, _ = collecting_runner(compute, on_busy=busy.append)
+    runner.submit("quick", inline=True)          # idle: computed here, at once, no busy flicker
+    assert results == ["quick"] and threads[-1] is threading.current_thread() and busy == [] and runner.idle
+    runner.submit("slow")
+    while len(threads) < 2:
+        time.sleep(0.001)
+    runner.submit("quick again", inline=True)    # something is running: queued, the newest wins
+    assert results == ["quick"]
+    gate.set()
+    assert runner.wait(10)
+    assert results == ["quick", "quick again"] and threads[-1] is not threading.current_thread()
+
+
+def test_the_quiet_guard_is_per_thread_and_nests():
+    from mwkin.widgets._base import Quiet
+
+    quiet, seen = Quiet(), []
+    with quiet:
+        with quiet:
+            assert quiet
+        assert quiet
+        other = threading.Thread(target=lambda: seen.append(bool(quiet)))
+        other.start()
+        other.join()
+    assert not quiet and seen == [False]

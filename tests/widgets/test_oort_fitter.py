@@ -268,7 +268,7 @@ def test_config_round_trip(sample):
     assert other.config == config
     assert other.result.A == w.result.A and other.result.n_used == w.result.n_used
     assert other.result.robust and other.result.frame.R0 == 8.25
-    with pytest.raises(ValueError, match="unknown settings"):
+    with pytest.raises(ValueError, match="unknown OortFitter settings \\['colour'\\]"):
         other.load_config({**config, "colour": "red"})
 
 

@@ -537,3 +537,17 @@ def test_export_after_a_drag_draws_the_velocity(tmp_path):
     sx, sy = ex.galaxy_view.star_xy
     assert arrow["x"] == pytest.approx([sx, sx]) and arrow["y"] == pytest.approx([sy, sy + 260.0 / scale])
     assert ex.export_figure(tmp_path / "dragged.png").stat().st_size > 1000
+
+
+def test_a_slider_snapping_echo_does_not_edit_the_star():
+    # The one slider-echo rule of NumberField: the browser snaps a shown value to the slider's step and
+    # sends it back; that is not an edit (here vz = -10.83 snapped to the 0.5 grid).
+    ex = explorer(star={"x": -8.0, "y": 0.5, "z": 0.1, "vx": 10.0, "vy": 230.0, "vz": -10.83})
+    field, before = ex.phase_fields["vz"], ex.result
+    field.slider.value = -11.0
+    ex.wait()
+    assert field.value == -10.83 and ex.config["star"]["phase_space"]["vz"] == -10.83
+    assert ex.result is before                                     # nothing was recomputed
+    field.slider.value = -11.5                                     # a real move: a whole step further
+    ex.wait()
+    assert field.value == -11.5 and ex.result.track(0)[0]["vz"].value == pytest.approx(-11.5)
