@@ -239,7 +239,7 @@ OUTPUT_COLUMNS = {
 }
 
 
-def column_values(table, name, unit=None, *, error=ValueError):
+def column_values(table, name, unit=None, *, error=ValueError, label=None):
     """A table column as a float64 array in ``unit``; masked entries become NaN.
 
     The one way mwkin turns a column into numbers. Plain columns (no unit) are taken to be in ``unit``;
@@ -255,6 +255,8 @@ def column_values(table, name, unit=None, *, error=ValueError):
         to be in the standard unit already, as :func:`~mwkin.read_catalog` returns them).
     error : type of Exception
         Raised, naming the column and the unit, when the column is not numeric.
+    label : str, optional
+        How messages name the column (default: the name itself).
 
     Returns
     -------
@@ -287,7 +289,7 @@ def column_values(table, name, unit=None, *, error=ValueError):
         if not isinstance(col, u.Quantity) and getattr(col, "unit", None) is not None:
             col = u.Quantity(np.ma.getdata(col), col.unit, copy=False)
         try:
-            values = to_value(col if isinstance(col, u.Quantity) else np.ma.getdata(col), unit, name)
+            values = to_value(col if isinstance(col, u.Quantity) else np.ma.getdata(col), unit, label or name)
         except UnitMismatchError:
             raise
         except (TypeError, ValueError):

@@ -4,10 +4,10 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-import astropy.units as u
 import numpy as np
 from astropy.table import QTable, Table
 
+from ..columns import column_values
 from ..frames import SolarFrame, frame_or_default
 from ..potentials import Potential
 from ..units import to_value
@@ -99,13 +99,13 @@ def _as_float_rows(stars):
 
 
 def _phase_space(stars, frame, need_cov=False, distance=None):
-    """Turn the accepted inputs into Cartesian and cylindrical phase space with per-star flags."""
-    if isinstance(stars, (np.ndarray, list, tuple)) and not need_cov:
-        arr = _as_float_rows(stars)
-        if arr.ndim in (1, 2) and arr.shape[-1] == 6 and arr.size:  # fast path: plain x..vz numbers
-            xyz = np.atleast_2d(arr)
-            flags = [[] if ok else ["nonfinite_input"] for ok in np.all(np.isfinite(xyz), axis=1)]
-            return _PhaseSpace(xyz, _cylindrical(xyz), flags, _frame_or_default(frame), None, None, "phase space")
+    """Turn every accepted input into Cartesian and cylindrical phase space with per-star flags.
+
+    One path for every kind of input: arrays, dicts and DataFrames become a table first
+    (:func:`_as_table`), observables go through :func:`~mwkin.kinematics.to_galactocentric` (and so
+    through :func:`~mwkin.read_catalog`'s checks), and every phase-space column through the same
+    numeric and unit checks.
+    """
     table = _as_table(stars)
     frame = _frame_or_default(frame, table)
     names = set(table.colnames)
@@ -134,23 +134,11 @@ def _phase_space(stars, frame, need_cov=False, distance=None):
         raise OrbitError("stars: the table has no rows")
     xyz = np.empty((n, 6))
     for i, (name, unit) in enumerate(zip(_CARTESIAN, _CART_UNITS)):
-        col = table[name]
         try:
-            value = (
-                col
-                if isinstance(col, u.Quantity)
-                else (
-                    np.asarray(col, dtype=float) * u.Unit(col.unit)
-                    if getattr(col, "unit", None)
-                    else np.asarray(col, dtype=float)
-                )
-            )
-        except (TypeError, ValueError):
-            raise _non_numeric(col, f"column {name!r}", unit) from None
-        if hasattr(value, "mask"):
-            value = np.ma.filled(value, np.nan)
-        xyz[:, i] = to_value(value, unit, f"column {name!r}")
-    flags = [[] for _ in range(n)]
+            xyz[:, i] = column_values(table, name, unit, error=OrbitError, label=f"column {name!r}")
+        except OrbitError:
+            raise _non_numeric(table[name], f"column {name!r}", unit) from None
+    flags: list[list[str]] = [[] for _ in range(n)]
     bad = ~np.all(np.isfinite(xyz), axis=1)
     if "has_velocity" in names:
         no_vel = ~np.asarray(table["has_velocity"], dtype=bool)
