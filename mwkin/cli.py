@@ -30,6 +30,9 @@ import sys
 import tempfile
 import warnings
 
+from .distances import DEFAULT_MIN_SNR
+from .frames import DEFAULT_PRESET
+
 __all__ = ["main", "build_parser", "CLIError"]
 
 
@@ -91,7 +94,7 @@ def _number(unit, low=None, low_open=False):
 
 def _add_frame_options(parser):
     group = parser.add_argument_group("solar frame (a preset, optionally with values changed)")
-    group.add_argument("--frame", default="astropy v4.0", help="frame preset name (see `mwkin presets`)")
+    group.add_argument("--frame", default=DEFAULT_PRESET, help="frame preset name (see `mwkin presets`)")
     group.add_argument("--R0", type=_number("kpc", 0.0, low_open=True), help="Sun-centre distance, kpc")
     group.add_argument("--z-sun", type=_number("pc"), help="height of the Sun above the mid-plane, pc")
     group.add_argument(
@@ -109,8 +112,8 @@ def _add_distance_options(parser):
     group.add_argument(
         "--min-parallax-snr",
         type=_number("", 0.0),
-        default=5.0,
-        help="inverse parallax only above this parallax/error (default 5)",
+        default=DEFAULT_MIN_SNR,
+        help=f"inverse parallax only above this parallax/error (default {DEFAULT_MIN_SNR:g})",
     )
     group.add_argument(
         "--parallax-zero-point",

@@ -33,6 +33,7 @@ from ._validate import real_number, require_mapping, text
 from .columns import column_values
 
 __all__ = [
+    "DEFAULT_MIN_SNR",
     "DistanceError",
     "DistanceUnitWarning",
     "SUSPICIOUS_MEDIAN_KPC",
@@ -56,6 +57,12 @@ _BIAS_CAVEAT = (
     "1/parallax is biased at low parallax signal-to-noise (Bailer-Jones 2015, PASP 127, 994); "
     "keep the cut at ~5 or more"
 )
+
+
+#: Default parallax signal-to-noise cut of :class:`InverseParallax`: below it 1/parallax is too biased
+#: to use (Bailer-Jones 2015, PASP 127, 994). The one home of this number (command line and widgets
+#: take it from here).
+DEFAULT_MIN_SNR = 5.0
 
 
 class DistanceError(ValueError):
@@ -238,7 +245,7 @@ class InverseParallax:
     {'method': 'inverse_parallax', 'min_snr': 10.0, 'zero_point_mas': -0.017}
     """
 
-    min_snr: float = 5.0
+    min_snr: float = DEFAULT_MIN_SNR
     zero_point_mas: float = 0.0
 
     method = "inverse_parallax"
