@@ -243,6 +243,11 @@ class InverseParallax:
     --------
     >>> InverseParallax(min_snr=10, zero_point_mas=-0.017).to_dict()
     {'method': 'inverse_parallax', 'min_snr': 10.0, 'zero_point_mas': -0.017}
+
+    The defaults: a signal-to-noise cut of 5 and no zero point.
+
+    >>> InverseParallax()
+    InverseParallax(min_snr=5.0, zero_point_mas=0.0)
     """
 
     min_snr: float = DEFAULT_MIN_SNR

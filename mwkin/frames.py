@@ -224,6 +224,14 @@ class SolarFrame:
     >>> frame = SolarFrame(R0=8.122, z_sun=20.8, v_sun=(12.9, 245.6, 7.78))
     >>> frame.replace(R0=8.2).R0
     8.2
+
+    The default frame is the "astropy v4.0" preset:
+
+    >>> default = SolarFrame()
+    >>> default.R0, default.z_sun, default.v_sun
+    (8.122, 20.8, (12.9, 245.6, 7.78))
+    >>> default == SolarFrame.preset(DEFAULT_PRESET), DEFAULT_PRESET
+    (True, 'astropy v4.0')
     """
 
     R0: float = DEFAULT_FRAME_PARAMETERS["R0"]

@@ -200,6 +200,15 @@ def to_galactocentric(
     Johnson, D. R. H. & Soderblom, D. R. 1987, AJ 93, 864 (space velocities and their uncertainties).
     ESA 1997, The Hipparcos and Tycho Catalogues, ESA SP-1200, Vol. 1, Sect. 1.5.3 (Galactic axes).
     Bailer-Jones, C. A. L. 2015, PASP 127, 994 (why 1/parallax needs a signal-to-noise cut).
+
+    Examples
+    --------
+    By default no uncertainties are propagated (``errors="none"``) and the frame is the default one:
+
+    >>> from mwkin.demo import survey
+    >>> out = to_galactocentric(survey(n=10, seed=1))
+    >>> out.meta["frame"]["label"], [name for name in out.colnames if name.startswith("sigma_")]
+    ('astropy v4.0', [])
     """
     _check_options(errors, n_samples, percentiles, return_covariance, distance, seed)
     frame = _frame_or_default(frame)

@@ -221,6 +221,13 @@ def fit_oort(
     >>> from mwkin.distances import DistanceColumn
     >>> fit = fit_oort(stars, use="proper_motions", distance=DistanceColumn())   # doctest: +SKIP
     >>> print(fit.summary())                                                     # doctest: +SKIP
+
+    The defaults: proper motions and radial velocities, stars within 0.5 kpc.
+
+    >>> from mwkin.demo import survey
+    >>> fit = fit_oort(survey(n=3000, seed=1))
+    >>> fit.use, fit.distance_range
+    ('both', (0.0, 0.5))
     """
     frame = _as_frame(frame)
     if dispersion not in DISPERSIONS:

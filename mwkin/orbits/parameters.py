@@ -334,6 +334,15 @@ def orbit_parameters(
     ----------
     Binney 2012, MNRAS 426, 1324 (Staeckel fudge); Sanders 2012, MNRAS 426, 128 (delta estimate);
     Mackereth & Bovy 2018, PASP 130, 114094 (orbital parameters from the Staeckel approximation).
+
+    Examples
+    --------
+    The default method is the Staeckel approximation:
+
+    >>> from mwkin import Potential
+    >>> table = orbit_parameters([[-8.1, 0.0, 0.02, 11.0, 245.0, 7.0]], Potential.preset("MWPotential2014"))
+    >>> table.meta["method"], bool(0 < table["eccentricity"][0] < 0.2)
+    ('staeckel', True)
     """
     pot = _check_potential(pot)
     if method not in ("staeckel", "integrate"):
