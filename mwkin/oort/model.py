@@ -44,7 +44,7 @@ __all__ = [
 PARAMETERS = ("A", "B", "C", "K", "U", "V", "W")
 N_PARAMETERS = len(PARAMETERS)
 
-KMS_KPC = u.km / u.s / u.kpc
+KMS_KPC = KMS / u.kpc
 #: Unit of each parameter.
 UNITS = {"A": KMS_KPC, "B": KMS_KPC, "C": KMS_KPC, "K": KMS_KPC, "U": KMS, "V": KMS, "W": KMS}
 

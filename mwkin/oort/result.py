@@ -9,12 +9,11 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 
-import astropy.units as u
 import numpy as np
 from astropy.table import QTable, Table
 
 from ..frames import SolarFrame
-from ..units import KMS
+from ..units import KMS, MASYR
 from .model import DERIVED, PARAMETERS, UNITS, unit_text
 from .sample import STATUS
 
@@ -181,8 +180,8 @@ class OortFit:
         out["status"] = names[per["status"]]
         out["used"] = per["status"] == 0
         out["n_data"] = per["n_data"]
-        out["delta_mu_l_star"] = per["delta"][0] * u.mas / u.yr
-        out["delta_mu_b"] = per["delta"][1] * u.mas / u.yr
+        out["delta_mu_l_star"] = per["delta"][0] * MASYR
+        out["delta_mu_b"] = per["delta"][1] * MASYR
         out["delta_v_r"] = per["delta"][2] * KMS
         out["z_mu_l_star"] = per["z"][0]
         out["z_mu_b"] = per["z"][1]

@@ -17,7 +17,7 @@ import numpy as np
 
 from ..columns import column_values
 from ..coords import K_KMS_PER_MASYR_KPC, galactic_geometry, rotate_proper_motions
-from ..units import to_value
+from ..units import KMS, MASYR, to_value
 from .solver import CHUNK, Block
 
 __all__ = [
@@ -59,9 +59,6 @@ USES = {
     "radial_velocities": "v_r",
     "both": "mu_l*, mu_b and v_r (stars without a radial velocity contribute their proper motions)",
 }
-
-_MASYR = u.mas / u.yr
-_KMS = u.km / u.s
 
 
 @dataclass
@@ -147,7 +144,7 @@ def sky_motions(stars):
         if name not in stars.colnames:
             raise OortInputError(f"sky_motions: the star table has no {name!r} column")
     sl, cl, sb, cb, c1, c2 = galactic_geometry(_column(stars, "ra", u.deg), _column(stars, "dec", u.deg))
-    mu_l, mu_b = rotate_proper_motions(c1, c2, _column(stars, "pmra", _MASYR), _column(stars, "pmdec", _MASYR))
+    mu_l, mu_b = rotate_proper_motions(c1, c2, _column(stars, "pmra", MASYR), _column(stars, "pmdec", MASYR))
     l_deg = np.degrees(np.mod(np.arctan2(sl, cl), 2.0 * np.pi))
     b_deg = np.degrees(np.arctan2(sb, cb))
     return l_deg, b_deg, mu_l, mu_b
@@ -240,15 +237,15 @@ def prepare_sample(table, *, use, distance, distance_range, quality=None, propag
     with np.errstate(invalid="ignore"):
         drop(~((d_all >= lo) & (d_all < hi)), "distance_range")
 
-    pmra, _ = _optional(table, "pmra", _MASYR, n, np.nan)
-    pmdec, _ = _optional(table, "pmdec", _MASYR, n, np.nan)
-    rv, has_rv_col = _optional(table, "radial_velocity", _KMS, n, np.nan)
+    pmra, _ = _optional(table, "pmra", MASYR, n, np.nan)
+    pmdec, _ = _optional(table, "pmdec", MASYR, n, np.nan)
+    rv, has_rv_col = _optional(table, "radial_velocity", KMS, n, np.nan)
     has_pm = np.isfinite(pmra) & np.isfinite(pmdec)
     has_rv = np.isfinite(rv)
-    pm_err_a, has_pm_err = _optional(table, "pmra_error", _MASYR, n, 0.0)
-    pm_err_d, has_pm_err_d = _optional(table, "pmdec_error", _MASYR, n, 0.0)
+    pm_err_a, has_pm_err = _optional(table, "pmra_error", MASYR, n, 0.0)
+    pm_err_d, has_pm_err_d = _optional(table, "pmdec_error", MASYR, n, 0.0)
     has_pm_err = has_pm_err and has_pm_err_d
-    rv_err, has_rv_err = _optional(table, "radial_velocity_error", _KMS, n, 0.0)
+    rv_err, has_rv_err = _optional(table, "radial_velocity_error", KMS, n, 0.0)
     pm_err_ok = np.isfinite(pm_err_a) & np.isfinite(pm_err_d)
     rv_err_ok = np.isfinite(rv_err)
 
