@@ -14,6 +14,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from .catalog import CatalogError, read_catalog
+from .columns import OUTPUT_COLUMNS as _OUTPUT_COLUMNS
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -29,29 +30,9 @@ __all__ = [
     "local_client",
 ]
 
-#: Columns written for every star by :func:`to_galactocentric_dask`.
-OUTPUT_COLUMNS = (
-    "x",
-    "y",
-    "z",
-    "vx",
-    "vy",
-    "vz",
-    "R",
-    "phi",
-    "v_R",
-    "v_phi",
-    "v_z",
-    "X",
-    "Y",
-    "Z",
-    "U",
-    "V",
-    "W",
-    "l",
-    "b",
-    "distance",
-)
+#: Columns written for every star by :func:`to_galactocentric_dask`: the in-memory output columns
+#: (:data:`mwkin.columns.OUTPUT_COLUMNS`), in the same order.
+OUTPUT_COLUMNS = tuple(_OUTPUT_COLUMNS)
 
 
 #: Input columns copied into the result when the input has them (identify the stars across partitions).
