@@ -26,18 +26,9 @@ import time
 
 import numpy as np
 
-CORRELATIONS = (
-    "ra_dec_corr",
-    "ra_parallax_corr",
-    "ra_pmra_corr",
-    "ra_pmdec_corr",
-    "dec_parallax_corr",
-    "dec_pmra_corr",
-    "dec_pmdec_corr",
-    "parallax_pmra_corr",
-    "parallax_pmdec_corr",
-    "pmra_pmdec_corr",
-)
+from mwkin.columns import CORRELATION_COLUMNS
+
+CORRELATIONS = CORRELATION_COLUMNS
 
 
 def make_stars(n, seed=1, errors=False):

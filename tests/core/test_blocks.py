@@ -18,23 +18,13 @@ from astropy.table import QTable, Table
 from mwkin import kinematics
 from mwkin._blocks import run_blocks, thread_count
 from mwkin.catalog import _read_catalog, read_catalog
+from mwkin.columns import CORRELATION_COLUMNS
 from mwkin.distances import InverseParallax
 from mwkin.frames import SolarFrame
 
 MASYR = u.mas / u.yr
 FRAME = SolarFrame(R0=8.1, z_sun=21.0, v_sun=(12.0, 245.0, 7.5))
-CORRELATIONS = (
-    "ra_dec_corr",
-    "ra_parallax_corr",
-    "ra_pmra_corr",
-    "ra_pmdec_corr",
-    "dec_parallax_corr",
-    "dec_pmra_corr",
-    "dec_pmdec_corr",
-    "parallax_pmra_corr",
-    "parallax_pmdec_corr",
-    "pmra_pmdec_corr",
-)
+CORRELATIONS = CORRELATION_COLUMNS
 
 
 def _stars(n, seed=3):
