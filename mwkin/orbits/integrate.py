@@ -93,7 +93,7 @@ def integrate_orbits(
     Notes
     -----
     galpy's ``dop853_c`` integrator (adaptive 8th-order Dormand-Prince in C) at its default tolerances;
-    see :mod:`mwkin._galpy` for the choice. Stars with non-finite input get NaN tracks and a flag.
+    see :mod:`mwkin.potentials._galpy` for the choice. Stars with non-finite input get NaN tracks and a flag.
 
     *Stars the integrator cannot follow.* A star on the z axis (R <= 1e-9 r or 1e-9 kpc) or in the mid-plane with
     no vertical and azimuthal motion (falling straight through the centre) makes galpy's C integrator
