@@ -12,19 +12,10 @@
 import { linearScale, equalAspect, zoomDomain, formatValue } from "./lib/scale.js";
 import { asFloat32 } from "./lib/binary.js";
 import { sizeCanvas, drawAxes, axisTitle, INK } from "./lib/axes.js";
-import { vectorTip, velocityFromTip, rotationArc } from "./lib/galaxy_geometry.js";
+import { vectorTip, velocityFromTip } from "./lib/galaxy_geometry.js";
 
 const MARGIN = { left: 64, top: 10, right: 14, bottom: 46 };
 const TIP_HIT_PX = 10;
-const COLORS = {
-  track: "rgb(33,84,142)",
-  cloud: "rgba(22,125,146,0.25)",
-  star: "rgb(214,39,90)",
-  arrow: "rgb(214,39,90)",
-  sun: "rgb(230,160,20)",
-  centre: "#222",
-  rotation: "#888",
-};
 
 function polyline(ctx, xs, ys, sx, sy) {
   // NaN separates tracks: lift the pen there
@@ -135,32 +126,29 @@ function render({ model, el }) {
     ctx.beginPath();
     ctx.rect(rect.left, rect.top, rect.width, rect.height);
     ctx.clip();
+    // every colour, and the arc of the sense of rotation, come from Python (one palette, one drawing
+    // shared with the exported figure)
+    const COLORS = model.get("colors");
     ctx.lineWidth = 1;
     ctx.strokeStyle = COLORS.cloud;
+    ctx.globalAlpha = model.get("cloud_opacity");
     polyline(ctx, cloud.x, cloud.y, sx, sy);
+    ctx.globalAlpha = 1;
     ctx.lineWidth = 1.5;
     ctx.strokeStyle = COLORS.track;
     polyline(ctx, track.x, track.y, sx, sy);
     const sun = model.get("sun_xy");
-    const sunV = model.get("sun_velocity_xy");
-    // sense of rotation from the Sun's own motion about the centre
-    const arc = rotationArc(sun, sunV, 0.55, 70, 24);
-    if (arc) {
+    const arcX = asFloat32(model.get("rotation_x"));
+    const arcY = asFloat32(model.get("rotation_y"));
+    const m = Math.min(arcX.length, arcY.length);
+    if (m >= 2) {
       ctx.strokeStyle = COLORS.rotation;
       ctx.fillStyle = COLORS.rotation;
       ctx.lineWidth = 2;
-      ctx.beginPath();
-      for (let i = 0; i < arc.length; i += 2) {
-        const ax = sx.map(arc[i]);
-        const ay = sy.map(arc[i + 1]);
-        if (i === 0) ctx.moveTo(ax, ay);
-        else ctx.lineTo(ax, ay);
-      }
-      ctx.stroke();
-      const m = arc.length;
-      arrow(ctx, sx.map(arc[m - 4]), sy.map(arc[m - 3]), sx.map(arc[m - 2]), sy.map(arc[m - 1]), 10);
+      polyline(ctx, arcX, arcY, sx, sy);
+      arrow(ctx, sx.map(arcX[m - 2]), sy.map(arcY[m - 2]), sx.map(arcX[m - 1]), sy.map(arcY[m - 1]), 10);
       // label just beyond the arrow head, pushed away from the centre
-      label(ctx, "Galactic rotation", sx.map(arc[m - 2] * 1.12), sy.map(arc[m - 1] * 1.12), "center", "middle", COLORS.rotation);
+      label(ctx, "Galactic rotation", sx.map(arcX[m - 1] * 1.12), sy.map(arcY[m - 1] * 1.12), "center", "middle", COLORS.rotation);
     }
     // Galactic centre
     const gx = sx.map(0);
@@ -331,7 +319,8 @@ function render({ model, el }) {
     readView();
     scheduleDraw();
   });
-  for (const name of ["star_xy", "velocity_xy", "sun_xy", "sun_velocity_xy", "arrow_scale", "width", "height", "editable"]) {
+  for (const name of ["star_xy", "velocity_xy", "sun_xy", "sun_velocity_xy", "arrow_scale", "width", "height", "editable",
+                      "colors", "cloud_opacity", "rotation_x", "rotation_y"]) {
     model.on(`change:${name}`, scheduleDraw);
   }
 

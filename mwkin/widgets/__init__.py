@@ -13,10 +13,10 @@ except ImportError as _missing:
     raise ImportError(f"mwkin.widgets needs the 'widgets' extra ({_missing.name} is not installed): "
                       "pip install 'mwkin[widgets]'") from None
 
+from ._sample import SampleWarning, allow_sample_folder, allowed_sample_folders
 from .controls import FrameControls, PotentialControls
 from .oort_fitter import OortFitter
 from .orbit_explorer import OrbitExplorer
-from ._sample import SampleWarning, allow_sample_folder, allowed_sample_folders
 from .state import ConfigError, FrameState, PotentialState
 from .velocity_panel import VelocityPanel
 

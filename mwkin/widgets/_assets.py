@@ -209,7 +209,7 @@ def bundle(entry: str, root: Path | None = None) -> str:
     return _bundle_cached(root.resolve(), entry)
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def _bundle_cached(root: Path, entry: str) -> str:
     path = (root / entry).resolve()
     if not path.is_file():

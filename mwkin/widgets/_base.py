@@ -30,7 +30,14 @@ import ipywidgets as widgets
 import traitlets
 
 from ._live import LiveRunner
-from .state import ConfigError, FrameState, PotentialState, frame_from_config, require_mapping, validated_potential_config
+from .state import (
+    ConfigError,
+    FrameState,
+    PotentialState,
+    frame_from_config,
+    require_mapping,
+    validated_potential_config,
+)
 
 __all__ = ["AnalysisWidget", "StatusLine", "Panel", "Quiet", "Setting", "control_setting", "within_control", "one_of",
            "snippet_preamble"]
@@ -223,23 +230,38 @@ class StatusLine(widgets.HTML):
 class Panel:
     """Description of one plot panel for the static (matplotlib) export.
 
+    Built from what a live view shows (:func:`~mwkin.widgets._plots.panel_from_figure`,
+    :func:`~mwkin.widgets._plots.layers_from_view`, :meth:`GalaxyView.export_panel`), so the export
+    has the live view's data, colours, labels and region.
+
     Parameters
     ----------
     title, x_label, y_label : str
     layers : list of dict
-        Each with ``kind`` ("scatter" or "line"), ``x``, ``y`` (numpy arrays), optional ``label``,
-        ``color``, ``size``, ``c`` (colour values), ``c_label``.
+        Each with ``kind`` and ``x``, ``y`` (numpy arrays; NaN breaks a line), optional ``label``,
+        ``color``, ``opacity``, ``width`` and:
+
+        - "line": ``dashed``;
+        - "scatter": ``size``, ``marker`` (matplotlib), ``c`` (colour values), ``c_label``, ``edgecolor``;
+        - "band": ``y_low``, ``y_high`` instead of ``y``;
+        - "arrow": from (x[0], y[0]) to (x[1], y[1]);
+        - "text": ``text`` at (x[0], y[0]).
     equal_aspect : bool
     notes : list of str
         Caveats printed under the panel.
     legend_outside : bool
         Put the legend beside the axes instead of inside (for plots whose lines fill the whole box).
+    x_range, y_range : (float, float), optional
+        The region shown, as in the live view (None: the data's).
     """
 
-    def __init__(self, title, x_label, y_label, layers, equal_aspect=False, notes=(), legend_outside=False):
+    def __init__(self, title, x_label, y_label, layers, equal_aspect=False, notes=(), legend_outside=False,
+                 x_range=None, y_range=None):
         self.title, self.x_label, self.y_label = title, x_label, y_label
         self.layers, self.equal_aspect, self.notes = list(layers), equal_aspect, list(notes)
         self.legend_outside = legend_outside
+        self.x_range = None if x_range is None else (float(x_range[0]), float(x_range[1]))
+        self.y_range = None if y_range is None else (float(y_range[0]), float(y_range[1]))
 
 
 def error_text(exc):

@@ -31,7 +31,15 @@ __all__ = [
     "error_bar_mark",
     "points_mark",
     "legend_html",
+    "layers_from_marks",
+    "layers_from_view",
+    "panel_from_figure",
+    "panel_from_view",
+    "view_axis_titles",
+    "view_ranges",
     "COLOURS",
+    "ORBIT_COLOURS",
+    "CLOUD_OPACITY",
     "MAX_DRAWN_POINTS",
 ]
 
@@ -50,6 +58,22 @@ COLOURS = {
     "B": "#c04a1d",
     "guide": "#9a9a9a",
 }
+
+#: Colours of the orbit views -- the face-on canvas (``GalaxyView.colors``), the meridional figure, their
+#: key and the exported figure all take them from here (our own choice).
+ORBIT_COLOURS = {
+    "track": "#1f5fa8",       # the orbit (forward in time in the meridional view)
+    "backward": "#d0661f",    # the orbit backward in time (meridional view)
+    "cloud": "#9fb6d3",       # orbits drawn from the uncertainties
+    "sun": "#e0a800",
+    "centre": "#222222",
+    "rotation": "#6a6a6a",    # the sense of Galactic rotation
+    "star": "#1f5fa8",        # the star now
+    "arrow": "#d6275a",       # the star's initial velocity in the plane
+}
+
+#: Opacity of the faint orbits drawn from the uncertainties, in every view and in the export.
+CLOUD_OPACITY = 0.35
 
 
 @functools.lru_cache(maxsize=16)
@@ -187,6 +211,132 @@ def legend_html(items, width="420px"):
     parts = [f'<span style="color:{colour};font-weight:bold">{_SYMBOLS[kind]}</span>&nbsp;{_html.escape(text)}'
              for colour, kind, text in items]
     return f'<div style="font-size:11px;max-width:{width};line-height:1.5">' + " &nbsp; ".join(parts) + "</div>"
+
+
+# ---------------------------------------------------------------------- one description: live -> export
+#: bqplot marker names -> matplotlib's.
+_MARKERS = {"circle": "o", "square": "s", "cross": "P", "diamond": "D", "triangle-up": "^", "triangle-down": "v",
+            "cross-filled": "P", "plus": "+"}
+
+
+def _joined(x, y):
+    """Rows of 2-d x, y (one line each) as one NaN-separated polyline (1-d arrays pass through)."""
+    x, y = np.asarray(x, dtype=float), np.asarray(y, dtype=float)
+    if x.ndim < 2 and y.ndim < 2:
+        return x, y
+    x, y = np.broadcast_to(np.atleast_2d(x), np.shape(np.atleast_2d(y))), np.atleast_2d(y)
+    gap = np.full((x.shape[0], 1), np.nan)
+    return np.hstack([x, gap]).ravel(), np.hstack([y, gap]).ravel()
+
+
+def layers_from_marks(marks):
+    """Export layers (see :class:`~mwkin.widgets._base.Panel`) that redraw bqplot marks as they are shown.
+
+    The data, colours, line widths and styles, marker sizes and labels are read from the marks
+    themselves, so the static export is a copy of the live figure, never a second description of it.
+    Lines with several rows (one per orbit, one per error bar) become one NaN-separated line; a band
+    (``fill="between"``) becomes a filled band; empty marks are left out.
+    """
+    layers = []
+    for mark in marks:
+        if not getattr(mark, "visible", True) or mark.x is None or np.size(mark.x) == 0:
+            continue
+        colours = list(mark.colors or ["#000000"])
+        label = (mark.labels or [""])[0] if getattr(mark, "labels", None) else ""
+        if isinstance(mark, bq.Lines):
+            opacity = (mark.opacities or [None])[0]
+            if mark.fill == "between":
+                y = np.asarray(mark.y, dtype=float)
+                if y.ndim == 2 and y.shape[0] == 2 and y.shape[1]:
+                    layers.append({"kind": "band", "x": np.asarray(mark.x, dtype=float), "y_low": y[0], "y_high": y[1],
+                                   "color": (mark.fill_colors or colours)[0],
+                                   "opacity": (mark.fill_opacities or [0.25])[0], "label": label})
+                continue
+            x, y = _joined(mark.x, mark.y)
+            if not np.isfinite(y).any():
+                continue
+            layers.append({"kind": "line", "x": x, "y": y, "color": colours[0], "width": float(mark.stroke_width),
+                           "dashed": mark.line_style == "dashed", "opacity": opacity, "label": label})
+        elif isinstance(mark, bq.Scatter):
+            x, y = np.asarray(mark.x, dtype=float), np.asarray(mark.y, dtype=float)
+            if not (np.isfinite(x) & np.isfinite(y)).any():
+                continue
+            layers.append({"kind": "scatter", "x": x, "y": y, "color": colours[0], "label": label,
+                           "size": 0.66 * float(mark.default_size), "marker": _MARKERS.get(mark.marker, "o"),
+                           "edgecolor": mark.stroke or None})
+        elif isinstance(mark, bq.Label):
+            for xi, yi, text in zip(np.atleast_1d(mark.x), np.atleast_1d(mark.y), np.atleast_1d(mark.text)):
+                if np.isfinite(xi) and np.isfinite(yi):
+                    layers.append({"kind": "text", "x": [float(xi)], "y": [float(yi)], "text": str(text),
+                                   "color": colours[0], "align": "center" if mark.align == "middle" else "left"})
+    return layers
+
+
+def layers_from_view(view, *, size=1.0):
+    """Export layers of a whole-sample view (:class:`SampleView`, canvas or bqplot) as it is shown.
+
+    The points it holds -- coloured by their colour values with the view's colour label when it has
+    them, else in the points' colour -- and its selection on top, in the selection colour.
+    """
+    data = view.data()
+    x, y, c = (None if v is None else np.asarray(v, dtype=float) for v in (data["x"], data["y"], data["c"]))
+    inner = getattr(view, "view", view)
+    if c is not None:
+        label, unit = (inner.c_label, inner.c_unit) if hasattr(inner, "c_label") else inner.labels["c"]
+        layers = [{"kind": "scatter", "x": x, "y": y, "c": c, "c_label": _axis_title(label, unit), "size": size}]
+    else:
+        layers = [{"kind": "scatter", "x": x, "y": y, "color": COLOURS["points"], "size": size}]
+    selected = np.asarray(view.selected_indices, dtype=np.int64)
+    if selected.size:
+        layers.append({"kind": "scatter", "x": x[selected], "y": y[selected], "color": COLOURS["selected"],
+                       "size": 2 * size, "label": f"selected ({selected.size})"})
+    return layers
+
+
+def view_axis_titles(view):
+    """('x [unit]', 'y [unit]') of a whole-sample view, as its axes show them."""
+    inner = getattr(view, "view", view)
+    if hasattr(inner, "x_label"):
+        return _axis_title(inner.x_label, inner.x_unit), _axis_title(inner.y_label, inner.y_unit)
+    return _axis_title(*inner.labels["x"]), _axis_title(*inner.labels["y"])
+
+
+def view_ranges(view):
+    """The region a whole-sample view shows, ((x0, x1), (y0, y1)), or (None, None) when it follows the data."""
+    inner = getattr(view, "view", view)
+    shown = list(getattr(inner, "view_range", []) or [])
+    if len(shown) == 4:
+        return (shown[0], shown[1]), (shown[2], shown[3])
+    return None, None
+
+
+def panel_from_view(view, *, last=(), notes=()):
+    """A :class:`~mwkin.widgets._base.Panel` copying a whole-sample :class:`SampleView` as it is shown:
+    its title, points, colours, selection, axis titles, region and aspect; ``last`` adds layers on top."""
+    from ._base import Panel
+
+    x_range, y_range = view_ranges(view)
+    return Panel(view.title_text, *view_axis_titles(view), [*layers_from_view(view), *last],
+                 equal_aspect=view.equal_aspect, notes=notes, x_range=x_range, y_range=y_range)
+
+
+def panel_from_figure(figure, title=None, *, first=(), last=(), notes=(), equal_aspect=False, legend_outside=False):
+    """A :class:`~mwkin.widgets._base.Panel` copying a bqplot figure: its marks, axis labels and ranges.
+
+    ``first`` / ``last`` are extra layers drawn under / over the marks (e.g. the whole-sample points
+    shown beside the figure, :func:`layers_from_view`).
+    """
+    from ._base import Panel
+
+    x_axis, y_axis = figure.axes[0], figure.axes[1]
+
+    def scale_range(scale):
+        lo, hi = getattr(scale, "min", None), getattr(scale, "max", None)
+        return None if lo is None or hi is None else (lo, hi)
+
+    return Panel(title if title is not None else figure.title, x_axis.label, y_axis.label,
+                 [*first, *layers_from_marks(figure.marks), *last], equal_aspect=equal_aspect, notes=notes,
+                 legend_outside=legend_outside, x_range=scale_range(x_axis.scale), y_range=scale_range(y_axis.scale))
 
 
 # ---------------------------------------------------------------------- the whole-sample view
@@ -411,9 +561,18 @@ class SampleView(widgets.VBox):
         else:
             self.view = PointCloud(equal_aspect=equal_aspect, width=width, height=height)
         self.is_canvas = bool(use_canvas)
-        self.title = widgets.HTML(f"<b>{title}</b>")
+        self.equal_aspect = bool(equal_aspect)
+        self.title = widgets.HTML()
+        self.set_title(title)
         super().__init__([self.title, self.view])
         self.add_class("mwkin-sample-view")
+
+    def set_title(self, text):
+        """Show ``text`` (plain text) as the title; :attr:`title_text` keeps it for the export."""
+        import html as _html
+
+        self.title_text = str(text)
+        self.title.value = f"<b>{_html.escape(self.title_text)}</b>"
 
     def set_data(self, x, y, c=None, **kwargs):
         """See ``SampleScatter.set_data``."""

@@ -18,12 +18,31 @@ import numpy as np
 from ..columns import column_values
 from ..oort.model import predicted_observables
 from ..oort.sample import sky_motions
-from ._base import AnalysisWidget, Panel, Setting, control_setting, error_text, one_of, snippet_preamble, within_control
+from ._base import AnalysisWidget, Setting, control_setting, error_text, one_of, snippet_preamble, within_control
 from ._live import LiveRunner
-from ._plots import (COLOURS, SampleView, band_mark, binned_quantiles, error_bar_mark, legend_html, line_mark,
-                     points_mark, set_error_bars, small_figure)
-from ._sample import (DISTANCE_SETTING, SAMPLE_SETTING, DistanceControls, SampleInput, SampleLoader, SampleSource,
-                      inverse_parallax_caveat)
+from ._plots import (
+    COLOURS,
+    SampleView,
+    band_mark,
+    binned_quantiles,
+    error_bar_mark,
+    legend_html,
+    line_mark,
+    panel_from_figure,
+    panel_from_view,
+    points_mark,
+    set_error_bars,
+    small_figure,
+)
+from ._sample import (
+    DISTANCE_SETTING,
+    SAMPLE_SETTING,
+    DistanceControls,
+    SampleInput,
+    SampleLoader,
+    SampleSource,
+    inverse_parallax_caveat,
+)
 
 __all__ = ["OortFitter", "parameter_table_html", "parse_bins", "DEFAULT_BINS_KPC", "L_BIN_DEG"]
 
@@ -515,7 +534,7 @@ class OortFitter(SampleInput, AnalysisWidget):
         x = a["l"] if against == "l" else a["distance"]
         self.residual_view.set_data(x, a[f"z_{name}"], x_label=against, x_unit="deg" if against == "l" else "kpc",
                                     y_label=f"(data - model) / sigma of {name}", y_unit="")
-        self.residual_view.title.value = f"<b>normalised residuals of {html.escape(name)} against {against}</b>"
+        self.residual_view.set_title(f"normalised residuals of {name} against {against}")
 
     # ------------------------------------------------------------------ distance bins (second worker)
     def _compute_bins(self, job):
@@ -623,48 +642,17 @@ class OortFitter(SampleInput, AnalysisWidget):
         return "\n".join(lines)
 
     def _figure_panels(self):
+        """The plots as they are shown, for the static export (one description: the live views)."""
         fit = self._result
-        a = getattr(self, "_fit_arrays", None)
-        if fit is None or a is None:
+        if fit is None or getattr(self, "_fit_arrays", None) is None:
             return []
-        edges = np.arange(0.0, 360.0 + L_BIN_DEG / 2, L_BIN_DEG)
-        l_curve, mu_curve, vr_curve = _model_curves(fit, a["median_distance"])
-        d_label = f"model, b = 0, d = {a['median_distance']:.2f} kpc"
-
-        def binned_layers(y):
-            centres, q, counts = binned_quantiles(a["l"], y, edges)
-            return [{"kind": "line", "x": centres, "y": q[1], "color": COLOURS["median"], "label": "binned median"}]
-
-        panels = [Panel("mu_l* against l", "l [deg]", "mu_l* [mas/yr]",
-                        [{"kind": "scatter", "x": a["l"], "y": a["mu_l_star"], "color": COLOURS["points"], "size": 1}]
-                        + binned_layers(a["mu_l_star"])
-                        + [{"kind": "line", "x": l_curve, "y": mu_curve, "color": COLOURS["model"], "label": d_label}])]
-        if np.isfinite(a["v_r"]).any():
-            panels.append(Panel("v_r against l", "l [deg]", "v_r [km/s]",
-                                [{"kind": "scatter", "x": a["l"], "y": a["v_r"], "color": COLOURS["points"], "size": 1}]
-                                + binned_layers(a["v_r"])
-                                + [{"kind": "line", "x": l_curve, "y": vr_curve, "color": COLOURS["model"],
-                                    "label": d_label}]))
-        name, against = self.residual.value, self.residual_against.value
-        x = a["l"] if against == "l" else a["distance"]
-        panels.append(Panel(f"normalised residuals of {name}", f"{against} [{'deg' if against == 'l' else 'kpc'}]",
-                            "(data - model) / sigma",
-                            [{"kind": "scatter", "x": x, "y": a[f"z_{name}"], "color": COLOURS["points"], "size": 1}]))
+        panels = [panel_from_view(self.mu_view), panel_from_figure(self.mu_fig)]
+        if self.vr_box.layout.display != "none":
+            panels += [panel_from_view(self.vr_view), panel_from_figure(self.vr_fig)]
+        panels.append(panel_from_view(self.residual_view))
         if fit.bins is not None:
-            bins = fit.bins
-            d = np.asarray(bins["d_median"], dtype=float)
-            layers = []
-            for pname in ("A", "B"):
-                layers.append({"kind": "scatter", "x": d, "y": np.asarray(bins[pname], dtype=float),
-                               "color": COLOURS[pname], "size": 25, "label": pname})
-            pot = fit.potential_oort or {}
-            span = np.array([float(bins["d_min"][0]), float(bins["d_max"][-1])])
-            for pname in ("A", "B"):
-                if pname in pot:
-                    layers.append({"kind": "line", "x": span, "y": np.full(2, pot[pname]), "color": COLOURS[pname],
-                                   "label": f"{pname} of the potential", "width": 1.0})
-            panels.append(Panel("A and B in distance bins", "distance [kpc]", "[km/s/kpc]", layers,
-                                notes=["where A and B drift with distance, the first-order model stops holding"]))
+            panels.append(panel_from_figure(
+                self.bins_fig, notes=["where A and B drift with distance, the first-order model stops holding"]))
         return panels
 
 

@@ -27,7 +27,8 @@ import traitlets
 from ..columns import OUTPUT_COLUMNS, PHASE_SPACE_COLUMNS, column_values
 from ..orbits import ADVISORY_FLAGS
 from ..orbits.parameters import draw_phase_space_samples, span_parameters
-from ._base import AnalysisWidget, Panel, Setting, control_setting, snippet_preamble, within_control
+from ._base import AnalysisWidget, Setting, control_setting, snippet_preamble, within_control
+from ._plots import CLOUD_OPACITY, ORBIT_COLOURS, panel_from_figure
 from ._sample import LOW_SNR, parallax_snr
 from .controls import NumberField
 from .state import ConfigError, potential_from_config, require_mapping
@@ -59,8 +60,8 @@ _PHASE_SPACE = {"x": ("x [kpc]", None), "y": ("y [kpc]", None), "z": ("z [kpc]",
 DEFAULT_PHASE_SPACE = {"x": -8.0, "y": 0.5, "z": 0.1, "vx": 10.0, "vy": 230.0, "vz": 5.0}
 
 _SOURCES = {"table": "table row", "observables": "observables", "phase_space": "phase space"}
-_COLOURS = {"forward": "#1f5fa8", "backward": "#d0661f", "cloud": "#9fb6d3", "sun": "#e0a800",
-            "centre": "#222222", "rotation": "#6a6a6a", "star": "#1f5fa8", "velocity": "#d6275a"}
+#: The orbit views' palette (one for the face-on canvas, the meridional figure, the key and the export).
+_COLOURS = {**ORBIT_COLOURS, "forward": ORBIT_COLOURS["track"]}
 
 #: Output points of each cloud orbit (at most; fewer if the main orbit has fewer).
 CLOUD_POINTS = 501
@@ -198,7 +199,7 @@ class OrbitExplorer(AnalysisWidget):
         """Make the inputs, views and layout; returns True if a table was given and refused."""
         self._stars = None
         self._seed = int(seed)
-        self._drawn = None        # what the views show: tracks, cloud, Sun, start, bounds (for export)
+        self._drawn = None        # the extent of what the face-on view shows (to widen it after a drag)
         star = dict(star or {})
         if star and set(star) & set(_PHASE_SPACE) and not set(star) & {"ra", "dec"}:
             source, obs, phase = "phase_space", dict(DEFAULT_STAR), {**DEFAULT_PHASE_SPACE, **star}
@@ -668,14 +669,16 @@ class OrbitExplorer(AnalysisWidget):
             sc = {"x": xs, "y": ys}
             empty = np.array([np.nan])
             m = {
-                "cloud": bq.Lines(x=empty, y=empty, scales=sc, colors=[_COLOURS["cloud"]], opacities=[0.35],
+                "cloud": bq.Lines(x=empty, y=empty, scales=sc, colors=[_COLOURS["cloud"]], opacities=[CLOUD_OPACITY],
+                                  labels=["from the uncertainties"],
                                   stroke_width=1.0),
                 "backward": bq.Lines(x=empty, y=empty, scales=sc, colors=[_COLOURS["backward"]],
                                      line_style="dashed", labels=["backward"], display_legend=labelled),
                 "forward": bq.Lines(x=empty, y=empty, scales=sc, colors=[_COLOURS["forward"]],
                                     labels=["forward"], display_legend=labelled),
                 "rotation": bq.Lines(x=empty, y=empty, scales=sc, colors=[_COLOURS["rotation"]]),
-                "star": bq.Scatter(x=empty, y=empty, scales=sc, colors=[_COLOURS["star"]], default_size=40),
+                "star": bq.Scatter(x=empty, y=empty, scales=sc, colors=[_COLOURS["star"]], default_size=40,
+                                   labels=["star (t = 0)"]),
                 "sun": bq.Scatter(x=empty, y=empty, scales=sc, colors=[_COLOURS["sun"]], default_size=90,
                                   stroke="black", labels=["Sun"], display_legend=labelled),
                 "centre": bq.Scatter(x=np.array([0.0]), y=np.array([0.0]), scales=sc, marker="cross",
@@ -707,8 +710,7 @@ class OrbitExplorer(AnalysisWidget):
         xs, ys = np.concatenate(xs), np.concatenate(ys)
         bounds = (float(np.nanmin(xs)), float(np.nanmax(xs)), float(np.nanmin(ys)), float(np.nanmax(ys)))
         extent = max(map(abs, bounds)) * 1.1
-        self._drawn = {"tracks": tracks, "cloud": cloud, "sun": sun, "start": start, "bounds": bounds,
-                       "extent": extent}
+        self._drawn = {"bounds": bounds, "extent": extent}
         with g.hold_sync():
             g.set_track(x, y)
             g.set_cloud([] if cloud is None else list(zip(cloud["x"], cloud["y"])))
@@ -789,58 +791,16 @@ class OrbitExplorer(AnalysisWidget):
             _set_xy(m["cloud"], cloud[kx], cloud[ky])
 
     def _figure_panels(self):
+        """The two views as they are shown, for the static export (one description: the live views)."""
         if self._result is None or self._drawn is None:
             raise RuntimeError("nothing to export yet: the orbit has not been computed")
-        return [self._face_on_panel(), self._meridional_panel()]
-
-    def _face_on_panel(self):
-        drawn = self._drawn
-        layers = []
-        cloud = drawn["cloud"]
-        for i in range(0 if cloud is None else cloud["x"].shape[0]):
-            layers.append({"kind": "line", "x": cloud["x"][i], "y": cloud["y"][i], "color": _COLOURS["cloud"],
-                           "width": 0.6})
-        for key in ("backward", "forward"):
-            track = drawn["tracks"][key]
-            if track is not None:
-                layers.append({"kind": "line", "x": track["x"], "y": track["y"], "color": _COLOURS[key]})
-        sun, start = drawn["sun"], drawn["start"]
-        arc = _rotation_arc(0.35 * abs(sun[0]))
         scale = float(self.galaxy_view.arrow_scale)
-        layers += [
-            {"kind": "line", "x": arc["x"], "y": arc["y"], "color": _COLOURS["rotation"], "width": 1.5},
-            {"kind": "line", "x": [start[0], start[0] + start[3] / scale], "y": [start[1], start[1] + start[4] / scale],
-             "color": _COLOURS["velocity"], "width": 1.5},
-            {"kind": "scatter", "x": [sun[0]], "y": [sun[1]], "color": _COLOURS["sun"], "size": 60},
-            {"kind": "scatter", "x": [0.0], "y": [0.0], "color": _COLOURS["centre"], "size": 60, "marker": "P"},
-            {"kind": "scatter", "x": [start[0]], "y": [start[1]], "color": _COLOURS["star"], "size": 20},
-        ]
-        notes = ["grey arrow: sense of Galactic rotation (clockwise seen from the north pole)",
-                 f"red line: the star's initial velocity in the plane ({scale:.3g} km/s per kpc)"]
-        return Panel("Face-on", "x [kpc]", "y [kpc]", layers, equal_aspect=True, notes=notes)
-
-    def _meridional_panel(self):
-        marks = self.meridional_marks
-        layers = []
-        cloud_x, cloud_y = np.atleast_2d(marks["cloud"].x), np.atleast_2d(marks["cloud"].y)
-        for i in range(cloud_x.shape[0] if np.isfinite(cloud_x).any() else 0):
-            layers.append({"kind": "line", "x": cloud_x[i], "y": cloud_y[i], "color": _COLOURS["cloud"],
-                           "width": 0.6, "label": "from the uncertainties" if i == 0 else None})
-        for key in ("backward", "forward"):
-            if np.isfinite(marks[key].x).any():
-                layers.append({"kind": "line", "x": marks[key].x, "y": marks[key].y,
-                               "color": _COLOURS[key], "label": key})
-        layers += [
-            {"kind": "scatter", "x": marks["sun"].x, "y": marks["sun"].y, "color": _COLOURS["sun"],
-             "size": 60, "label": "Sun"},
-            {"kind": "scatter", "x": [0.0], "y": [0.0], "color": _COLOURS["centre"], "size": 60,
-             "marker": "P", "label": "Galactic centre"},
-            {"kind": "scatter", "x": marks["star"].x, "y": marks["star"].y, "color": _COLOURS["star"],
-             "size": 20, "label": "star (t = 0)"},
-        ]
-        notes = ["rotation is toward the viewer (perpendicular to this plane)"]
-        return Panel("Meridional", "R [kpc]", "z [kpc]", layers, equal_aspect=True, notes=notes,
-                     legend_outside=True)
+        face_on = self.galaxy_view.export_panel(
+            "Face-on", notes=["grey arrow: sense of Galactic rotation (clockwise seen from the north pole)",
+                              f"red arrow: the star's initial velocity in the plane ({scale:.3g} km/s per kpc)"])
+        meridional = panel_from_figure(self.meridional_figure, "Meridional", equal_aspect=True, legend_outside=True,
+                                       notes=["rotation is toward the viewer (perpendicular to this plane)"])
+        return [face_on, meridional]
 
     # ================================================================== sharing
     def _result_views(self):
@@ -972,26 +932,6 @@ def _set_xy(mark, x, y):
     with mark.hold_sync():
         mark.x = np.asarray(x, dtype=float)
         mark.y = np.asarray(y, dtype=float)
-
-
-def _rotation_arc(radius, half_angle=0.7, n=40):
-    """A clockwise arc around the centre (the sense of rotation seen from the north Galactic pole,
-    x right, y up) with an arrow head, as one polyline broken by NaN, and where to put its label."""
-    # The Sun (azimuth pi in the x-y plane) moves toward +y, i.e. toward decreasing polar angle.
-    a = np.linspace(math.pi + half_angle, math.pi - half_angle, n)
-    x, y = radius * np.cos(a), radius * np.sin(a)
-    tip = np.array([x[-1], y[-1]])
-    direction = np.array([math.sin(a[-1]), -math.cos(a[-1])])   # d(position)/d(-a)
-    head = 0.12 * radius
-    wings = []
-    for turn in (+0.45, -0.45):
-        c, s = math.cos(math.pi + turn), math.sin(math.pi + turn)
-        back = np.array([c * direction[0] - s * direction[1], s * direction[0] + c * direction[1]])
-        wings.append(tip + head * back)
-    xs = np.concatenate([x, [np.nan, wings[0][0], tip[0], wings[1][0]]])
-    ys = np.concatenate([y, [np.nan, wings[0][1], tip[1], wings[1][1]]])
-    return {"x": xs, "y": ys, "label_x": -0.72 * radius, "label_y": 0.0,
-            "tip": tip, "direction": direction}
 
 
 def _given_text(star_config):

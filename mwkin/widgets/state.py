@@ -15,8 +15,14 @@ import astropy.units as u
 import traitlets
 
 from .._validate import require_mapping as _require_mapping
-from ..frames import (DEFAULT_FRAME_PARAMETERS, DEFAULT_PRESET, SCHOENRICH2010_SOLAR_MOTION, FrameError, SolarFrame,
-                      warn_if_implausible)
+from ..frames import (
+    DEFAULT_FRAME_PARAMETERS,
+    DEFAULT_PRESET,
+    SCHOENRICH2010_SOLAR_MOTION,
+    FrameError,
+    SolarFrame,
+    warn_if_implausible,
+)
 
 __all__ = ["FrameState", "PotentialState", "DEFAULT_FRAME_PRESET", "DEFAULT_POTENTIAL_PRESET",
            "potential_from_config", "default_three_component_parameters", "ConfigError", "require_mapping",

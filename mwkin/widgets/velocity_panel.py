@@ -16,11 +16,18 @@ import numpy as np
 import traitlets
 
 from ..columns import column_values
-from ._base import AnalysisWidget, Panel, control_setting, one_of, snippet_preamble
+from ._base import AnalysisWidget, control_setting, one_of, snippet_preamble
+from ._plots import COLOURS, SampleView, panel_from_view
+from ._sample import (
+    DISTANCE_SETTING,
+    SAMPLE_SETTING,
+    DistanceControls,
+    SampleInput,
+    SampleLoader,
+    SampleSource,
+    inverse_parallax_caveat,
+)
 from .state import lsr_circular_velocity
-from ._plots import COLOURS, SampleView
-from ._sample import (DISTANCE_SETTING, SAMPLE_SETTING, DistanceControls, SampleInput, SampleLoader, SampleSource,
-                      inverse_parallax_caveat)
 
 __all__ = ["VelocityPanel"]
 
@@ -322,29 +329,18 @@ class VelocityPanel(SampleInput, AnalysisWidget):
         ])
 
     def _figure_panels(self):
+        """The three views as they are shown (points, colours, selection, region), for the static export.
+
+        The Toomre diagram's guide circles are drawn here only: the canvas view has no curve layer (the
+        LSR's v_phi is printed under the views instead).
+        """
         if self._result is None:
             return []
-        a = self._arrays
         t = np.linspace(0.0, np.pi, 91)
         centre = self._lsr_vphi()
         guides = [{"kind": "line", "x": centre + s * np.cos(t), "y": s * np.sin(t), "color": COLOURS["guide"],
                    "label": f"{s:g} km/s from the LSR", "width": 0.8} for s in GUIDE_SPEEDS_KMS]
-        sel = self.selection
-
-        def layers(x, y):
-            out = [{"kind": "scatter", "x": x, "y": y, "color": COLOURS["points"], "size": 1}]
-            if sel.any():
-                out.append({"kind": "scatter", "x": x[sel], "y": y[sel], "color": COLOURS["selected"], "size": 2,
-                            "label": f"selected ({int(sel.sum())})"})
-            return out
-
-        return [
-            Panel("Toomre diagram", "v_phi [km/s]", "sqrt(v_R² + v_z²) [km/s]",
-                  layers(a["v_phi"], a["v_perp"]) + guides),
-            Panel("U-V plane (relative to the Sun)", "U, toward the centre [km/s]", "V, along rotation [km/s]",
-                  layers(a["U"], a["V"]), equal_aspect=True),
-            Panel("v_phi against R", "R [kpc]", "v_phi [km/s]", layers(a["R"], a["v_phi"])),
-        ]
+        return [panel_from_view(view, last=guides if view is self.toomre else ()) for view in self._views]
 
 
 def _split_label(text):

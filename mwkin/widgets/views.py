@@ -22,8 +22,9 @@ from ipywidgets.widgets.trait_types import bytes_serialization
 from ..frames import DEFAULT_FRAME_PARAMETERS
 from ..units import to_value
 from ._assets import bundle
+from ._plots import CLOUD_OPACITY, ORBIT_COLOURS
 
-__all__ = ["ViewDataError", "SampleScatter", "GalaxyView"]
+__all__ = ["ViewDataError", "SampleScatter", "GalaxyView", "rotation_arc"]
 
 # The view's defaults show the default frame (mwkin.frames.DEFAULT_FRAME_PARAMETERS): the Sun at
 # x = -R0 (in-plane, the z_sun tilt ignored) moving with v_sun; the star starts on the Sun.
@@ -295,6 +296,35 @@ class SampleScatter(anywidget.AnyWidget):
             self.view_range = list(self.home_range)
 
 
+def rotation_arc(position, velocity, fraction=0.55, span_deg=70.0, n_seg=24):
+    """An arc about the centre showing the sense in which a body at ``position`` moving with ``velocity`` turns.
+
+    The arc has ``fraction`` times the body's distance as radius, starts at its azimuth and sweeps
+    ``span_deg`` degrees in the direction it moves (the sign of x vy - y vx). The one drawing of the
+    sense of rotation: the face-on view shows it and the exported figure draws the same points.
+
+    Parameters
+    ----------
+    position, velocity : sequence of 2 float
+        In-plane position (kpc) and velocity (any unit).
+    fraction, span_deg : float
+    n_seg : int
+        Segments of the polyline.
+
+    Returns
+    -------
+    (x, y) : tuple of numpy.ndarray, or None
+        ``n_seg + 1`` points each (kpc); None when the sense is undefined (at the centre, radial motion).
+    """
+    px, py = (float(v) for v in position)
+    vx, vy = (float(v) for v in velocity)
+    r, lz = math.hypot(px, py), px * vy - py * vx
+    if not (r > 0 and abs(lz) > 0):
+        return None
+    theta = math.atan2(py, px) + math.copysign(math.radians(span_deg), lz) * np.arange(n_seg + 1) / n_seg
+    return fraction * r * np.cos(theta), fraction * r * np.sin(theta)
+
+
 class GalaxyView(anywidget.AnyWidget):
     """Face-on view of the Galactocentric x-y plane with one star's orbit and a draggable velocity arrow.
 
@@ -329,6 +359,14 @@ class GalaxyView(anywidget.AnyWidget):
     sun_velocity_xy = traitlets.List(traitlets.Float(), default_value=list(_SUN_VXY), minlen=2, maxlen=2,
                                      help="the Sun's in-plane velocity [vx, vy] in km/s; sets the sense of "
                                           "the rotation arrow").tag(sync=True)
+    colors = traitlets.Dict(default_value=dict(ORBIT_COLOURS),
+                            help="CSS colours of track, cloud, star, arrow, sun, centre and rotation (the "
+                                 "orbit views' palette, mwkin.widgets._plots.ORBIT_COLOURS)").tag(sync=True)
+    cloud_opacity = traitlets.Float(CLOUD_OPACITY, min=0.0, max=1.0,
+                                    help="opacity of the faint cloud tracks").tag(sync=True)
+    rotation_x = _binary_trait("x (kpc) of the arc showing the sense of rotation, float32; follows sun_xy and "
+                               "sun_velocity_xy (rotation_arc)")
+    rotation_y = _binary_trait("y (kpc) of the arc showing the sense of rotation, float32")
     arrow_scale = traitlets.Float(50.0, min=1e-3,
                                   help="velocity arrow scale, km/s per kpc of arrow length").tag(sync=True)
     view_range = traitlets.List(traitlets.Float(), default_value=[-13.0, 13.0, -13.0, 13.0], minlen=4,
@@ -347,6 +385,53 @@ class GalaxyView(anywidget.AnyWidget):
         self._velocity_callbacks = []
         self._last_final = {}
         self.observe(self._notify_velocity, names=["velocity_xy", "dragging"])
+        self.observe(self._update_rotation, names=["sun_xy", "sun_velocity_xy"])
+        self._update_rotation()
+
+    def _update_rotation(self, change=None):
+        arc = rotation_arc(self.sun_xy, self.sun_velocity_xy)
+        x, y = arc if arc is not None else ([], [])
+        with self.hold_sync():
+            self.rotation_x = np.asarray(x, dtype=_F32).tobytes()
+            self.rotation_y = np.asarray(y, dtype=_F32).tobytes()
+
+    def export_panel(self, title="Face-on", notes=()):
+        """What the view draws, as a :class:`~mwkin.widgets._base.Panel` for the static export.
+
+        The same data, colours, arc and shown region as the canvas: cloud, track, the sense of rotation,
+        the Galactic centre, the Sun, and the star with its velocity arrow.
+        """
+        from ._base import Panel
+
+        c = self.colors
+        cloud_x, cloud_y = (np.frombuffer(b, _F32).astype(float) for b in (self.cloud_x, self.cloud_y))
+        track_x, track_y = (v.astype(float) for v in self.track())
+        layers = []
+        if cloud_x.size:
+            layers.append({"kind": "line", "x": cloud_x, "y": cloud_y, "color": c["cloud"], "width": 1.0,
+                           "opacity": self.cloud_opacity})
+        layers.append({"kind": "line", "x": track_x, "y": track_y, "color": c["track"], "width": 1.5})
+        arc_x, arc_y = (np.frombuffer(b, _F32).astype(float) for b in (self.rotation_x, self.rotation_y))
+        if arc_x.size >= 2:
+            layers += [{"kind": "line", "x": arc_x, "y": arc_y, "color": c["rotation"], "width": 2.0},
+                       {"kind": "arrow", "x": arc_x[-2:], "y": arc_y[-2:], "color": c["rotation"], "width": 2.0},
+                       {"kind": "text", "x": [1.12 * arc_x[-1]], "y": [1.12 * arc_y[-1]], "text": "Galactic rotation",
+                        "color": c["rotation"]}]
+        (sx, sy), (vx, vy), scale = self.star_xy, self.velocity_xy, self.arrow_scale
+        layers += [
+            {"kind": "scatter", "x": [0.0], "y": [0.0], "color": c["centre"], "size": 80, "marker": "+"},
+            {"kind": "text", "x": [0.0], "y": [0.0], "text": "  Galactic centre", "color": c["centre"]},
+            {"kind": "scatter", "x": [self.sun_xy[0]], "y": [self.sun_xy[1]], "color": c["sun"], "size": 60,
+             "marker": "o"},
+            {"kind": "text", "x": [self.sun_xy[0]], "y": [self.sun_xy[1]], "text": "Sun  ", "color": c["centre"],
+             "align": "right"},
+            {"kind": "arrow", "x": [sx, sx + vx / scale], "y": [sy, sy + vy / scale], "color": c["arrow"],
+             "width": 2.0},
+            {"kind": "scatter", "x": [sx], "y": [sy], "color": c["star"], "size": 20},
+        ]
+        x0, x1, y0, y1 = self.view_range
+        return Panel(title, "x [kpc]", "y [kpc]", layers, equal_aspect=True, notes=notes,
+                     x_range=(x0, x1), y_range=(y0, y1))
 
     def set_track(self, x, y):
         """Send the orbit track (kpc; Quantity or plain numbers) in one message.
@@ -378,7 +463,9 @@ class GalaxyView(anywidget.AnyWidget):
                 raise ViewDataError(f"cloud track {i}: x and y differ in length: {tx.size} and {ty.size}")
             xs += [tx, np.full(1, np.nan, _F32)]
             ys += [ty, np.full(1, np.nan, _F32)]
-        cat = (lambda parts: np.concatenate(parts).astype(_F32).tobytes() if parts else b"")
+        def cat(parts):
+            return np.concatenate(parts).astype(_F32).tobytes() if parts else b""
+
         with self.hold_sync():
             self.cloud_x, self.cloud_y = cat(xs), cat(ys)
 

@@ -55,7 +55,7 @@ def test_a_slider_snapping_echo_from_the_browser_is_not_an_edit():
     assert state.z_sun == 20.8
     pot_state = PotentialState()
     pot_controls = PotentialControls(pot_state)
-    for (component, name), (pfield, factor) in pot_controls.sliders.items():
+    for pfield, _factor in pot_controls.sliders.values():
         pfield.slider.value = round(pfield.text.value, 2)
     assert pot_state.preset == "MWPotential2014"
     field.slider.value = field.text.value + field.slider.step

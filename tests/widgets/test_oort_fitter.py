@@ -8,8 +8,8 @@ import json
 
 import numpy as np
 import pytest
-
 from disc_mock import flat_disc_sample
+
 from mwkin.oort import OortFit, predicted_observables
 from mwkin.widgets import FrameState, OortFitter, PotentialState
 from mwkin.widgets.oort_fitter import parse_bins
@@ -336,3 +336,21 @@ def test_demo_survey_truth_is_recovered():
     # about 30 % of the survey has radial velocities: the v_r panel is shown and fed
     assert w.vr_box.layout.display != "none"
     assert np.isfinite(y_of(w.vr_view)).sum() > 0.2 * fit.n_used
+
+
+def test_the_export_is_drawn_from_the_live_views(sample):
+    # One description: each exported panel copies a live view (its title, data, colours and labels).
+    w = fitter(sample)
+    panels = {panel.title: panel for panel in w._figure_panels()}
+    assert list(panels) == ["mu_l* against l: fitted stars", "mu_l*: binned medians and the model",
+                            "v_r against l: fitted stars", "v_r: binned medians and the model",
+                            "normalised residuals of mu_l* against l", "A and B in distance bins"]
+    stars = panels["mu_l* against l: fitted stars"].layers[0]
+    np.testing.assert_array_equal(stars["y"], w.mu_view.data()["y"])
+    assert stars["c_label"] == "distance [kpc]"
+    model = next(layer for layer in panels["mu_l*: binned medians and the model"].layers
+                 if layer.get("label", "").startswith("model, b = 0"))
+    np.testing.assert_array_equal(model["y"], w.mu_model.y)
+    assert model["color"] == w.mu_model.colors[0]
+    band = next(layer for layer in panels["mu_l*: binned medians and the model"].layers if layer["kind"] == "band")
+    np.testing.assert_array_equal(band["y_low"], np.asarray(w.mu_band.y)[0])

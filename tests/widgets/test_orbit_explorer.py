@@ -551,3 +551,24 @@ def test_a_slider_snapping_echo_does_not_edit_the_star():
     field.slider.value = -11.5                                     # a real move: a whole step further
     ex.wait()
     assert field.value == -11.5 and ex.result.track(0)[0]["vz"].value == pytest.approx(-11.5)
+
+
+def test_the_export_is_drawn_from_the_live_views():
+    # One description: the exported panels copy the face-on view (its palette, arc and region) and the
+    # meridional figure's marks (data, colours, dashes), never a second drawing of their own.
+    from mwkin.widgets.views import rotation_arc
+
+    ex = explorer(t_backward=0.3)
+    face_on, meridional = ex._figure_panels()
+    g = ex.galaxy_view
+    arc = next(layer for layer in face_on.layers if layer["kind"] == "line" and layer["color"] == g.colors["rotation"])
+    np.testing.assert_allclose(arc["x"], rotation_arc(g.sun_xy, g.sun_velocity_xy)[0], rtol=1e-6)
+    assert (face_on.x_range, face_on.y_range) == (tuple(g.view_range[:2]), tuple(g.view_range[2:]))
+    marks = ex.meridional_marks
+    lines = {layer["label"]: layer for layer in meridional.layers if layer["kind"] == "line"}
+    assert lines["backward"]["color"] == marks["backward"].colors[0] and lines["backward"]["dashed"]
+    np.testing.assert_array_equal(lines["forward"]["x"], marks["forward"].x)
+    assert meridional.x_range == (ex._mx.min, ex._mx.max) and meridional.y_range == (ex._my.min, ex._my.max)
+    # the face-on canvas, the meridional figure and the key under them share one palette
+    assert g.colors["track"] == marks["forward"].colors[0] and g.colors["sun"] == marks["sun"].colors[0]
+    assert g.colors["track"] in ex.key.value and g.colors["rotation"] in ex.key.value

@@ -6,14 +6,14 @@ import datetime
 import html
 import json
 
+import astropy.units as u
 import numpy as np
 import pytest
-import astropy.units as u
 from astropy.coordinates import SkyCoord
 from astropy.table import Table
+from disc_mock import flat_disc_sample
 
 import mwkin as mk
-from disc_mock import flat_disc_sample
 from mwkin.widgets import FrameState, PotentialState, VelocityPanel
 from mwkin.widgets._plots import PointCloud
 

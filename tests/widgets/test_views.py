@@ -313,3 +313,50 @@ def test_dragging_reports_every_frame_or_only_the_release():
     assert final[-1] == (1.0, 2.0) and every[-1] == (1.0, 2.0)
     with pytest.raises(traitlets.TraitError):
         g.velocity_xy = [1.0]
+
+
+def test_rotation_arc_shows_the_sun_turning_clockwise_seen_from_the_north_pole():
+    # astropy Galactocentric defaults (v4.0): Sun at x = -8.122 kpc moving with v_y = +245.6 km/s
+    # (Gravity Collaboration 2018; Drimmel & Poggio 2018), so x vy - y vx < 0: clockwise.
+    from mwkin.widgets.views import rotation_arc
+
+    x, y = rotation_arc([-8.122, 0.0], [12.9, 245.6], fraction=0.5, span_deg=90.0, n_seg=10)
+    assert len(x) == len(y) == 11
+    # starts at the Sun's azimuth at half its distance and sweeps toward +y: 9 o'clock to 12 o'clock
+    assert (x[0], y[0]) == pytest.approx((-4.061, 0.0), abs=1e-9)
+    assert (x[-1], y[-1]) == pytest.approx((0.0, 4.061), abs=1e-9)
+    assert np.sum(x[:-1] * y[1:] - x[1:] * y[:-1]) < 0          # negative signed area: clockwise
+
+
+def test_rotation_arc_follows_the_sense_and_is_undefined_for_radial_motion():
+    from mwkin.widgets.views import rotation_arc
+
+    x, y = rotation_arc([5.0, 0.0], [0.0, 100.0], fraction=1.0, span_deg=90.0, n_seg=4)
+    assert (x[-1], y[-1]) == pytest.approx((0.0, 5.0), abs=1e-9)          # counter-clockwise
+    assert rotation_arc([5.0, 0.0], [100.0, 0.0]) is None
+    assert rotation_arc([0.0, 0.0], [0.0, 100.0]) is None
+
+
+def test_galaxy_view_sends_its_arc_and_palette_and_exports_what_it_draws():
+    from mwkin.widgets._plots import ORBIT_COLOURS
+    from mwkin.widgets.views import rotation_arc
+
+    g = GalaxyView()
+    g.sun_xy, g.sun_velocity_xy = [-8.3, 0.5], [11.0, 232.0]
+    ax, ay = rotation_arc(g.sun_xy, g.sun_velocity_xy)
+    np.testing.assert_allclose(np.frombuffer(g.rotation_x, np.float32), ax, rtol=1e-6)
+    np.testing.assert_allclose(np.frombuffer(g.rotation_y, np.float32), ay, rtol=1e-6, atol=1e-6)
+    assert g.colors == ORBIT_COLOURS
+    g.set_track([-8.0, -7.0, -6.0], [0.0, 1.0, 1.5])
+    panel = g.export_panel()
+    by_colour = {}
+    for layer in panel.layers:
+        by_colour.setdefault(layer["color"], []).append(layer)
+    # the same arc, colours and region as the canvas
+    arc = next(layer for layer in by_colour[ORBIT_COLOURS["rotation"]] if layer["kind"] == "line")
+    np.testing.assert_allclose(arc["x"], ax, rtol=1e-6)
+    track = by_colour[ORBIT_COLOURS["track"]][0]
+    np.testing.assert_allclose(track["y"], [0.0, 1.0, 1.5])
+    assert (panel.x_range, panel.y_range) == (tuple(g.view_range[:2]), tuple(g.view_range[2:]))
+    velocity = by_colour[ORBIT_COLOURS["arrow"]][0]
+    assert velocity["kind"] == "arrow" and velocity["x"][1] == pytest.approx(g.star_xy[0] + g.velocity_xy[0] / g.arrow_scale)
