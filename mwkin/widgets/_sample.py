@@ -21,7 +21,7 @@ import numpy as np
 
 from ..catalog import CatalogError, read_catalog
 from ..columns import column_values
-from ..distances import InverseParallax
+from ..distances import DEFAULT_MIN_SNR, InverseParallax
 from ._base import Quiet, Setting
 from .state import ConfigError, require_mapping
 
@@ -89,9 +89,9 @@ def _config_sample_path(path):
 #: File suffixes the upload button accepts (read_catalog tells the format from them).
 UPLOAD_SUFFIXES = (".csv", ".ecsv", ".fits", ".fit", ".fts", ".vot", ".votable", ".xml", ".parquet", ".pq")
 
-#: Parallax signal-to-noise below which 1/parallax is a biased, noisy distance (common practice: the
-#: bias of 1/parallax grows quickly below ~5; Bailer-Jones 2015, PASP 127, 994, Sect. 3).
-LOW_SNR = 5.0
+#: Parallax signal-to-noise below which 1/parallax is a biased, noisy distance: the core's default cut,
+#: :data:`mwkin.distances.DEFAULT_MIN_SNR` (Bailer-Jones 2015, PASP 127, 994), the caveats' threshold.
+LOW_SNR = DEFAULT_MIN_SNR
 
 #: Fraction of stars below :data:`LOW_SNR` from which the caveat is shown (our choice).
 LOW_SNR_FRACTION = 0.10
@@ -335,10 +335,9 @@ class DistanceControls(widgets.VBox):
     METHODS = ("inverse parallax", "distance column")
 
     def __init__(self, on_change, *, min_snr=None, zero_point_mas=None):
-        # The defaults are the core's (mwkin.distances.InverseParallax()).
-        default = InverseParallax()
-        min_snr = default.min_snr if min_snr is None else min_snr
-        zero_point_mas = default.zero_point_mas if zero_point_mas is None else zero_point_mas
+        # The defaults are the core's (mwkin.distances.DEFAULT_MIN_SNR and InverseParallax()'s zero point).
+        min_snr = DEFAULT_MIN_SNR if min_snr is None else min_snr
+        zero_point_mas = InverseParallax().zero_point_mas if zero_point_mas is None else zero_point_mas
         self._on_change = on_change
         self._quiet = Quiet()
         self.method = widgets.ToggleButtons(options=[self.METHODS[0]], value=self.METHODS[0],
