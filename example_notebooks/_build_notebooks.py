@@ -543,7 +543,7 @@ VELOCITY = [
     local standard of rest by more than 60 km/s, a crude way to pick out hot or thick-disc-like orbits.
     """),
     code("""
-    v_lsr = frame_state.v_sun[1] - 12.24       # the local standard of rest (Sun 12.24 km/s ahead of it)
+    v_lsr = frame_state.frame.lsr_circular_velocity()   # the local standard of rest (Sun 12.24 km/s ahead of it)
     v_phi = panel.result["v_phi"].to_value("km/s")
     panel.selection = np.nan_to_num(v_phi, nan=np.inf) < v_lsr - 60.0
     selected = sample[panel.selection]

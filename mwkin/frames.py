@@ -463,6 +463,29 @@ class SolarFrame:
         """The Sun's Galactocentric Cartesian position (x, y, z), kpc."""
         return tuple(self.galactocentric_transform()[1])
 
+    def lsr_circular_velocity(self, solar_V=SCHOENRICH2010_SOLAR_MOTION[1]):
+        """The circular velocity of the local standard of rest this frame implies, km/s: v_sun[1] - V.
+
+        The inverse, for vc, of :meth:`from_lsr` (``v_sun = (U, vc + V, W)``), given the Sun's motion V
+        relative to the LSR in the direction of rotation.
+
+        Parameters
+        ----------
+        solar_V : float, default 12.24
+            The Sun's motion relative to the LSR along rotation, km/s (default: Schoenrich, Binney &
+            Dehnen 2010, :data:`SCHOENRICH2010_SOLAR_MOTION`).
+
+        Returns
+        -------
+        float
+
+        Examples
+        --------
+        >>> round(SolarFrame().lsr_circular_velocity(), 2)
+        233.36
+        """
+        return float(self.v_sun[1]) - float(real_number(solar_V, "solar_V", "km/s", FrameError))
+
     @property
     def inplane_radius(self):
         """The Sun's cylindrical Galactocentric radius, kpc: sqrt(R0^2 - z_sun^2).

@@ -10,8 +10,9 @@ try:  # the widget libraries come with the 'widgets' extra; the core works witho
     import ipywidgets as _ipywidgets  # noqa: F401
     import traitlets as _traitlets  # noqa: F401
 except ImportError as _missing:
-    raise ImportError(f"mwkin.widgets needs the 'widgets' extra ({_missing.name} is not installed): "
-                      "pip install 'mwkin[widgets]'") from None
+    raise ImportError(
+        f"mwkin.widgets needs the 'widgets' extra ({_missing.name} is not installed): pip install 'mwkin[widgets]'"
+    ) from None
 
 from ._sample import SampleWarning, allow_sample_folder, allowed_sample_folders
 from .controls import FrameControls, PotentialControls
@@ -20,6 +21,16 @@ from .orbit_explorer import OrbitExplorer
 from .state import ConfigError, FrameState, PotentialState
 from .velocity_panel import VelocityPanel
 
-__all__ = ["FrameState", "PotentialState", "FrameControls", "PotentialControls", "OrbitExplorer",
-           "VelocityPanel", "OortFitter", "ConfigError", "SampleWarning", "allow_sample_folder",
-           "allowed_sample_folders"]
+__all__ = [
+    "FrameState",
+    "PotentialState",
+    "FrameControls",
+    "PotentialControls",
+    "OrbitExplorer",
+    "VelocityPanel",
+    "OortFitter",
+    "ConfigError",
+    "SampleWarning",
+    "allow_sample_folder",
+    "allowed_sample_folders",
+]

@@ -132,9 +132,7 @@ class _Bundler:
 
         body = _IMPORT_RE.sub(replace, source)
         if _ANY_IMPORT_RE.search(body) or _DYNAMIC_IMPORT_RE.search(body):
-            raise BundleError(
-                f"{path}: unsupported import form; use `import {{ name }} from \"./file.js\";` only"
-            )
+            raise BundleError(f'{path}: unsupported import form; use `import {{ name }} from "./file.js";` only')
         return body
 
     def _module(self, path: Path) -> tuple[str, set[str]]:
@@ -152,14 +150,11 @@ class _Bundler:
         exports = [m["name"] for m in _EXPORT_DECL_RE.finditer(body)]
         body = _EXPORT_DECL_RE.sub(lambda m: f"{m['indent']}{m['kind']} {m['name']}", body)
         if _ANY_EXPORT_RE.search(body):
-            raise BundleError(
-                f"{path}: unsupported export form; use `export function|const|let|class name`"
-            )
+            raise BundleError(f"{path}: unsupported export form; use `export function|const|let|class name`")
         scope = _scope_name(path, self.root)
         rel = path.relative_to(self.root).as_posix()
         self.chunks.append(
-            f"// ---- {rel} ----\nconst {scope} = (() => {{\n{body}\n"
-            f"return {{ {', '.join(exports)} }};\n}})();\n"
+            f"// ---- {rel} ----\nconst {scope} = (() => {{\n{body}\nreturn {{ {', '.join(exports)} }};\n}})();\n"
         )
         self.active.pop()
         self.done[path] = (scope, set(exports))

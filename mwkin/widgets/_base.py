@@ -39,8 +39,17 @@ from .state import (
     validated_potential_config,
 )
 
-__all__ = ["AnalysisWidget", "StatusLine", "Panel", "Quiet", "Setting", "control_setting", "within_control", "one_of",
-           "snippet_preamble"]
+__all__ = [
+    "AnalysisWidget",
+    "StatusLine",
+    "Panel",
+    "Quiet",
+    "Setting",
+    "control_setting",
+    "within_control",
+    "one_of",
+    "snippet_preamble",
+]
 
 
 class Quiet:
@@ -103,8 +112,9 @@ class Setting:
     def prepare(self, widget, key, value):
         """The value to apply, or a :class:`ConfigError` naming the widget, the key and the problem."""
         name = type(widget).__name__
-        if self.types is not None and ((isinstance(value, bool) and bool not in self.types)
-                                       or not isinstance(value, self.types)):
+        if self.types is not None and (
+            (isinstance(value, bool) and bool not in self.types) or not isinstance(value, self.types)
+        ):
             names = " or ".join("None" if t is type(None) else t.__name__ for t in self.types)
             raise ConfigError(f"{name} config[{key!r}] must be {names}, got {type(value).__name__} {value!r:.80}")
         if self._check is None:
@@ -126,39 +136,54 @@ def control_setting(control, *, types, convert=None, check=None):
     ``convert`` turns the control's value into the config's (e.g. ``float``); ``check`` as for Setting.
     """
     convert = convert or (lambda value: value)
-    return Setting(lambda w: convert(getattr(w, control).value),
-                   lambda w, value: setattr(getattr(w, control), "value", value), types=types, check=check)
+    return Setting(
+        lambda w: convert(getattr(w, control).value),
+        lambda w, value: setattr(getattr(w, control), "value", value),
+        types=types,
+        check=check,
+    )
 
 
 def number_in(low, high, what, unit=""):
     """A Setting check: a finite number with low <= value <= high (either bound may be None)."""
+
     def check(widget, value):
         value = float(value)
         if not math.isfinite(value) or (low is not None and value < low) or (high is not None and value > high):
-            bounds = (f"between {low:g} and {high:g}" if low is not None and high is not None
-                      else f">= {low:g}" if low is not None else f"<= {high:g}")
+            bounds = (
+                f"between {low:g} and {high:g}"
+                if low is not None and high is not None
+                else f">= {low:g}"
+                if low is not None
+                else f"<= {high:g}"
+            )
             raise ValueError(f"{what} must be a finite number {bounds}{unit}")
         return value
+
     return check
 
 
 def within_control(control, unit=""):
     """A Setting check: a number within the bounds of the control ``widget.<control>`` (never clamped)."""
+
     def check(widget, value):
         box = getattr(widget, control)
         if not (math.isfinite(value) and box.min <= value <= box.max):
             raise ValueError(f"must lie in [{box.min:g}, {box.max:g}]{unit}")
         return value
+
     return check
 
 
 def one_of(options, what):
     """A Setting check: one of ``options`` (a collection, or a callable(widget) giving one)."""
+
     def check(widget, value):
         allowed = options(widget) if callable(options) else options
         if value not in allowed:
             raise ValueError(f"{what} must be one of {sorted(allowed)}")
         return value
+
     return check
 
 
@@ -174,8 +199,10 @@ def potential_code(config, name="pot", frame="frame"):
     else:
         lines = [f"{name} = mk.Potential.three_component(**{config['parameters']!r})"]
     if config["match_frame_vc"]:
-        lines.append(f"{name} = {name}.scaled_to({frame}.v_sun[1] - {config['solar_V']!r}, "
-                     f"{frame}.inplane_radius)  # match the frame's vc")
+        lines.append(
+            f"{name} = {name}.scaled_to({frame}.v_sun[1] - {config['solar_V']!r}, "
+            f"{frame}.inplane_radius)  # match the frame's vc"
+        )
     return lines
 
 
@@ -214,8 +241,7 @@ class StatusLine(widgets.HTML):
     def _set(self, text, colour, state):
         self.text = text
         self.state = state
-        self.value = (f'<span class="mwkin-status-{state}" style="color:{colour}">'
-                      f"{html.escape(text)}</span>")
+        self.value = f'<span class="mwkin-status-{state}" style="color:{colour}">{html.escape(text)}</span>'
 
     def show_ready(self, text):
         self._set(text, "#1d5e2e", "ready")
@@ -255,8 +281,18 @@ class Panel:
         The region shown, as in the live view (None: the data's).
     """
 
-    def __init__(self, title, x_label, y_label, layers, equal_aspect=False, notes=(), legend_outside=False,
-                 x_range=None, y_range=None):
+    def __init__(
+        self,
+        title,
+        x_label,
+        y_label,
+        layers,
+        equal_aspect=False,
+        notes=(),
+        legend_outside=False,
+        x_range=None,
+        y_range=None,
+    ):
         self.title, self.x_label, self.y_label = title, x_label, y_label
         self.layers, self.equal_aspect, self.notes = list(layers), equal_aspect, list(notes)
         self.legend_outside = legend_outside
@@ -282,7 +318,7 @@ class AnalysisWidget(widgets.VBox):
 
     def __init__(self, frame=None, potential=None, *, threaded=True, **kwargs):
         super().__init__(**kwargs)
-        self._quiet = Quiet()   # on while the program changes controls: refresh() waits for the end
+        self._quiet = Quiet()  # on while the program changes controls: refresh() waits for the end
         self.frame_state = frame if frame is not None else FrameState()
         self.potential_state = potential if potential is not None else PotentialState()
         if not isinstance(self.frame_state, FrameState):
@@ -297,8 +333,9 @@ class AnalysisWidget(widgets.VBox):
         self._runner = LiveRunner(self._compute, self._deliver, self._fail, self._set_busy, threaded=threaded)
         self.code_area = widgets.Textarea(layout=widgets.Layout(width="100%", height="9em", display="none"))
         self.code_area.add_class("mwkin-code")
-        self.code_button = widgets.Button(description="Copy as code", icon="code",
-                                          tooltip="show a Python snippet that reproduces this result")
+        self.code_button = widgets.Button(
+            description="Copy as code", icon="code", tooltip="show a Python snippet that reproduces this result"
+        )
         self.code_button.on_click(lambda _: self._toggle_code())
         self.add_class("mwkin-widget")
 
@@ -316,8 +353,12 @@ class AnalysisWidget(widgets.VBox):
     @property
     def config(self):
         """JSON-able dict of everything needed to rebuild this widget's result."""
-        return {"widget": type(self).__name__, "frame": self.frame_state.config,
-                "potential": self.potential_state.config, **self._config()}
+        return {
+            "widget": type(self).__name__,
+            "frame": self.frame_state.config,
+            "potential": self.potential_state.config,
+            **self._config(),
+        }
 
     def load_config(self, config):
         """Apply a dict produced by :attr:`config` (frame, potential and the widget's own settings).
@@ -338,25 +379,34 @@ class AnalysisWidget(widgets.VBox):
             kind = config.pop("widget", name)
             if kind != name:
                 raise ConfigError(f"this config is for a {kind}, not a {name}")
-            frame = (frame_from_config(require_mapping(config.pop("frame"), "config['frame']"))
-                     if "frame" in config else None)
-            potential = (validated_potential_config(require_mapping(config.pop("potential"), "config['potential']"))
-                         if "potential" in config else None)
+            frame = (
+                frame_from_config(require_mapping(config.pop("frame"), "config['frame']"))
+                if "frame" in config
+                else None
+            )
+            potential = (
+                validated_potential_config(require_mapping(config.pop("potential"), "config['potential']"))
+                if "potential" in config
+                else None
+            )
             unknown = set(config) - set(self.SETTINGS)
             if unknown:
                 raise ConfigError(f"unknown {name} settings {sorted(unknown)}; expected {sorted(self.SETTINGS)}")
-            checked = {key: setting.prepare(self, key, config[key])
-                       for key, setting in self.SETTINGS.items() if key in config}
+            checked = {
+                key: setting.prepare(self, key, config[key]) for key, setting in self.SETTINGS.items() if key in config
+            }
             snapshot = self._snapshot()
             try:
                 with self._quiet, self.hold_trait_notifications():
                     for key, value in checked.items():
                         self.SETTINGS[key].apply(self, value)
-            except Exception:   # a safety net: the checks above should leave nothing to fail here
+            except Exception:  # a safety net: the checks above should leave nothing to fail here
                 self._restore(snapshot)
                 raise
         except Exception as exc:
-            self.status_line.show_error(f"error: config not applied (nothing changed): {str(exc) or type(exc).__name__}")
+            self.status_line.show_error(
+                f"error: config not applied (nothing changed): {str(exc) or type(exc).__name__}"
+            )
             raise
         # Only now, with everything checked and applied, do the shared states change.
         with self._quiet:
@@ -416,7 +466,7 @@ class AnalysisWidget(widgets.VBox):
     def _refresh(self, **options):
         """Submit the current inputs, with ``options`` added to the request; nothing while :attr:`_quiet`."""
         if self._quiet:
-            return   # the program is still changing controls; whoever did it refreshes once at the end
+            return  # the program is still changing controls; whoever did it refreshes once at the end
         try:
             request = {**self._request(), **options}
         except Exception as exc:  # noqa: BLE001 - shown on screen, inputs kept as typed
@@ -443,8 +493,9 @@ class AnalysisWidget(widgets.VBox):
         from ._export import export_panels
 
         path = pathlib.Path(path)
-        return export_panels(self._figure_panels(), path, title=type(self).__name__,
-                             footer=self.provenance_text, dpi=dpi)
+        return export_panels(
+            self._figure_panels(), path, title=type(self).__name__, footer=self.provenance_text, dpi=dpi
+        )
 
     @property
     def provenance_text(self):
@@ -513,8 +564,9 @@ class AnalysisWidget(widgets.VBox):
     def _provenance_for(self, result, request):
         from ..provenance import provenance_line
 
-        return provenance_line(frame=request.get("frame"), potential=request.get("potential"),
-                               distance=request.get("distance"))
+        return provenance_line(
+            frame=request.get("frame"), potential=request.get("potential"), distance=request.get("distance")
+        )
 
     def _code(self, request):
         raise NotImplementedError

@@ -149,7 +149,7 @@ class LiveRunner:
         with self._lock:
             if worker:
                 if not self._is_current_worker():
-                    return False    # abandoned as stalled: a fresh worker has taken over
+                    return False  # abandoned as stalled: a fresh worker has taken over
                 self._running_since = None
             if generation == self._generation:
                 self.last_seconds = seconds

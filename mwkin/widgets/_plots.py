@@ -62,14 +62,14 @@ COLOURS = {
 #: Colours of the orbit views -- the face-on canvas (``GalaxyView.colors``), the meridional figure, their
 #: key and the exported figure all take them from here (our own choice).
 ORBIT_COLOURS = {
-    "track": "#1f5fa8",       # the orbit (forward in time in the meridional view)
-    "backward": "#d0661f",    # the orbit backward in time (meridional view)
-    "cloud": "#9fb6d3",       # orbits drawn from the uncertainties
+    "track": "#1f5fa8",  # the orbit (forward in time in the meridional view)
+    "backward": "#d0661f",  # the orbit backward in time (meridional view)
+    "cloud": "#9fb6d3",  # orbits drawn from the uncertainties
     "sun": "#e0a800",
     "centre": "#222222",
-    "rotation": "#6a6a6a",    # the sense of Galactic rotation
-    "star": "#1f5fa8",        # the star now
-    "arrow": "#d6275a",       # the star's initial velocity in the plane
+    "rotation": "#6a6a6a",  # the sense of Galactic rotation
+    "star": "#1f5fa8",  # the star now
+    "arrow": "#d6275a",  # the star's initial velocity in the plane
 }
 
 #: Opacity of the faint orbits drawn from the uncertainties, in every view and in the export.
@@ -144,11 +144,19 @@ def small_figure(title, x_label, y_label, *, width="360px", height="300px", x_ra
     """A bqplot Figure with linear x and y scales and labelled axes; returns (figure, x_scale, y_scale)."""
     xs = bq.LinearScale(**_range_kwargs(x_range))
     ys = bq.LinearScale(**_range_kwargs(y_range))
-    axes = [bq.Axis(scale=xs, label=x_label, grid_lines="none"),
-            bq.Axis(scale=ys, label=y_label, side="left", grid_lines="none", label_offset="45px")]
-    fig = bq.Figure(marks=[], axes=axes, title=title, title_style={"font-size": "13px"},
-                    fig_margin={"top": 30, "bottom": 45, "left": 60, "right": 15},
-                    layout=widgets.Layout(width=width, height=height), padding_y=0.05)
+    axes = [
+        bq.Axis(scale=xs, label=x_label, grid_lines="none"),
+        bq.Axis(scale=ys, label=y_label, side="left", grid_lines="none", label_offset="45px"),
+    ]
+    fig = bq.Figure(
+        marks=[],
+        axes=axes,
+        title=title,
+        title_style={"font-size": "13px"},
+        fig_margin={"top": 30, "bottom": 45, "left": 60, "right": 15},
+        layout=widgets.Layout(width=width, height=height),
+        padding_y=0.05,
+    )
     return fig, xs, ys
 
 
@@ -160,22 +168,38 @@ def _range_kwargs(value_range):
 
 def line_mark(xs, ys, color, *, label="", width=2.0, dashed=False):
     """An empty line mark; fill it with ``mark.x, mark.y = ...``. The label is for :func:`legend_html`."""
-    return bq.Lines(x=np.zeros(0), y=np.zeros(0), scales={"x": xs, "y": ys}, colors=[color],
-                    stroke_width=width, labels=[label] if label else [], display_legend=False,
-                    line_style="dashed" if dashed else "solid")
+    return bq.Lines(
+        x=np.zeros(0),
+        y=np.zeros(0),
+        scales={"x": xs, "y": ys},
+        colors=[color],
+        stroke_width=width,
+        labels=[label] if label else [],
+        display_legend=False,
+        line_style="dashed" if dashed else "solid",
+    )
 
 
 def band_mark(xs, ys, color, *, opacity=0.25):
     """A filled band between two curves; set ``mark.x`` (n,) and ``mark.y`` (2, n) = (low, high)."""
-    return bq.Lines(x=np.zeros(0), y=np.zeros((2, 0)), scales={"x": xs, "y": ys}, colors=[color],
-                    fill="between", fill_colors=[color], fill_opacities=[opacity], stroke_width=0.5,
-                    opacities=[0.0, 0.0])
+    return bq.Lines(
+        x=np.zeros(0),
+        y=np.zeros((2, 0)),
+        scales={"x": xs, "y": ys},
+        colors=[color],
+        fill="between",
+        fill_colors=[color],
+        fill_opacities=[opacity],
+        stroke_width=0.5,
+        opacities=[0.0, 0.0],
+    )
 
 
 def error_bar_mark(xs, ys, color, *, width=1.5):
     """Vertical error bars as one line per point: ``set_error_bars(mark, x, low, high)``."""
-    return bq.Lines(x=np.zeros((0, 2)), y=np.zeros((0, 2)), scales={"x": xs, "y": ys}, colors=[color],
-                    stroke_width=width)
+    return bq.Lines(
+        x=np.zeros((0, 2)), y=np.zeros((0, 2)), scales={"x": xs, "y": ys}, colors=[color], stroke_width=width
+    )
 
 
 def set_error_bars(mark, x, low, high):
@@ -190,9 +214,17 @@ def set_error_bars(mark, x, low, high):
 
 def points_mark(xs, ys, color, *, size=30, label="", marker="circle"):
     """A small scatter mark (binned values, reference points), not for whole samples."""
-    return bq.Scatter(x=np.zeros(0), y=np.zeros(0), scales={"x": xs, "y": ys}, colors=[color],
-                      default_size=size, marker=marker, labels=[label] if label else [],
-                      display_legend=False, stroke="white")
+    return bq.Scatter(
+        x=np.zeros(0),
+        y=np.zeros(0),
+        scales={"x": xs, "y": ys},
+        colors=[color],
+        default_size=size,
+        marker=marker,
+        labels=[label] if label else [],
+        display_legend=False,
+        stroke="white",
+    )
 
 
 _SYMBOLS = {"line": "&#8212;", "dashed": "- -", "point": "&#9679;", "square": "&#9632;", "band": "&#9608;"}
@@ -208,15 +240,25 @@ def legend_html(items, width="420px"):
     """
     import html as _html
 
-    parts = [f'<span style="color:{colour};font-weight:bold">{_SYMBOLS[kind]}</span>&nbsp;{_html.escape(text)}'
-             for colour, kind, text in items]
+    parts = [
+        f'<span style="color:{colour};font-weight:bold">{_SYMBOLS[kind]}</span>&nbsp;{_html.escape(text)}'
+        for colour, kind, text in items
+    ]
     return f'<div style="font-size:11px;max-width:{width};line-height:1.5">' + " &nbsp; ".join(parts) + "</div>"
 
 
 # ---------------------------------------------------------------------- one description: live -> export
 #: bqplot marker names -> matplotlib's.
-_MARKERS = {"circle": "o", "square": "s", "cross": "P", "diamond": "D", "triangle-up": "^", "triangle-down": "v",
-            "cross-filled": "P", "plus": "+"}
+_MARKERS = {
+    "circle": "o",
+    "square": "s",
+    "cross": "P",
+    "diamond": "D",
+    "triangle-up": "^",
+    "triangle-down": "v",
+    "cross-filled": "P",
+    "plus": "+",
+}
 
 
 def _joined(x, y):
@@ -248,27 +290,62 @@ def layers_from_marks(marks):
             if mark.fill == "between":
                 y = np.asarray(mark.y, dtype=float)
                 if y.ndim == 2 and y.shape[0] == 2 and y.shape[1]:
-                    layers.append({"kind": "band", "x": np.asarray(mark.x, dtype=float), "y_low": y[0], "y_high": y[1],
-                                   "color": (mark.fill_colors or colours)[0],
-                                   "opacity": (mark.fill_opacities or [0.25])[0], "label": label})
+                    layers.append(
+                        {
+                            "kind": "band",
+                            "x": np.asarray(mark.x, dtype=float),
+                            "y_low": y[0],
+                            "y_high": y[1],
+                            "color": (mark.fill_colors or colours)[0],
+                            "opacity": (mark.fill_opacities or [0.25])[0],
+                            "label": label,
+                        }
+                    )
                 continue
             x, y = _joined(mark.x, mark.y)
             if not np.isfinite(y).any():
                 continue
-            layers.append({"kind": "line", "x": x, "y": y, "color": colours[0], "width": float(mark.stroke_width),
-                           "dashed": mark.line_style == "dashed", "opacity": opacity, "label": label})
+            layers.append(
+                {
+                    "kind": "line",
+                    "x": x,
+                    "y": y,
+                    "color": colours[0],
+                    "width": float(mark.stroke_width),
+                    "dashed": mark.line_style == "dashed",
+                    "opacity": opacity,
+                    "label": label,
+                }
+            )
         elif isinstance(mark, bq.Scatter):
             x, y = np.asarray(mark.x, dtype=float), np.asarray(mark.y, dtype=float)
             if not (np.isfinite(x) & np.isfinite(y)).any():
                 continue
-            layers.append({"kind": "scatter", "x": x, "y": y, "color": colours[0], "label": label,
-                           "size": 0.66 * float(mark.default_size), "marker": _MARKERS.get(mark.marker, "o"),
-                           "edgecolor": mark.stroke or None})
+            layers.append(
+                {
+                    "kind": "scatter",
+                    "x": x,
+                    "y": y,
+                    "color": colours[0],
+                    "label": label,
+                    "size": 0.66 * float(mark.default_size),
+                    "marker": _MARKERS.get(mark.marker, "o"),
+                    "edgecolor": mark.stroke or None,
+                }
+            )
         elif isinstance(mark, bq.Label):
             for xi, yi, text in zip(np.atleast_1d(mark.x), np.atleast_1d(mark.y), np.atleast_1d(mark.text)):
                 if np.isfinite(xi) and np.isfinite(yi):
-                    layers.append({"kind": "text", "x": [float(xi)], "y": [float(yi)], "text": str(text),
-                                   "color": colours[0], "align": "center" if mark.align == "middle" else "left"})
+                    layers.append(
+                        {
+                            "kind": "text",
+                            "x": [float(xi)],
+                            "y": [float(yi)],
+                            "text": str(text),
+                            "color": colours[0],
+                            "align": "center" if mark.align == "middle" else "left",
+                        }
+                    )
     return layers
 
 
@@ -288,8 +365,16 @@ def layers_from_view(view, *, size=1.0):
         layers = [{"kind": "scatter", "x": x, "y": y, "color": COLOURS["points"], "size": size}]
     selected = np.asarray(view.selected_indices, dtype=np.int64)
     if selected.size:
-        layers.append({"kind": "scatter", "x": x[selected], "y": y[selected], "color": COLOURS["selected"],
-                       "size": 2 * size, "label": f"selected ({selected.size})"})
+        layers.append(
+            {
+                "kind": "scatter",
+                "x": x[selected],
+                "y": y[selected],
+                "color": COLOURS["selected"],
+                "size": 2 * size,
+                "label": f"selected ({selected.size})",
+            }
+        )
     return layers
 
 
@@ -316,8 +401,15 @@ def panel_from_view(view, *, last=(), notes=()):
     from ._base import Panel
 
     x_range, y_range = view_ranges(view)
-    return Panel(view.title_text, *view_axis_titles(view), [*layers_from_view(view), *last],
-                 equal_aspect=view.equal_aspect, notes=notes, x_range=x_range, y_range=y_range)
+    return Panel(
+        view.title_text,
+        *view_axis_titles(view),
+        [*layers_from_view(view), *last],
+        equal_aspect=view.equal_aspect,
+        notes=notes,
+        x_range=x_range,
+        y_range=y_range,
+    )
 
 
 def panel_from_figure(figure, title=None, *, first=(), last=(), notes=(), equal_aspect=False, legend_outside=False):
@@ -334,9 +426,17 @@ def panel_from_figure(figure, title=None, *, first=(), last=(), notes=(), equal_
         lo, hi = getattr(scale, "min", None), getattr(scale, "max", None)
         return None if lo is None or hi is None else (lo, hi)
 
-    return Panel(title if title is not None else figure.title, x_axis.label, y_axis.label,
-                 [*first, *layers_from_marks(figure.marks), *last], equal_aspect=equal_aspect, notes=notes,
-                 legend_outside=legend_outside, x_range=scale_range(x_axis.scale), y_range=scale_range(y_axis.scale))
+    return Panel(
+        title if title is not None else figure.title,
+        x_axis.label,
+        y_axis.label,
+        [*first, *layers_from_marks(figure.marks), *last],
+        equal_aspect=equal_aspect,
+        notes=notes,
+        legend_outside=legend_outside,
+        x_range=scale_range(x_axis.scale),
+        y_range=scale_range(y_axis.scale),
+    )
 
 
 # ---------------------------------------------------------------------- the whole-sample view
@@ -362,8 +462,16 @@ class PointCloud(widgets.VBox):
         CSS pixels.
     """
 
-    def __init__(self, *, max_points=MAX_DRAWN_POINTS, equal_aspect=False, width=400, height=340,
-                 point_size=6, colour=COLOURS["points"]):
+    def __init__(
+        self,
+        *,
+        max_points=MAX_DRAWN_POINTS,
+        equal_aspect=False,
+        width=400,
+        height=340,
+        point_size=6,
+        colour=COLOURS["points"],
+    ):
         self.max_points = max_points
         self.labels = {"x": ("x", ""), "y": ("y", ""), "c": ("", "")}
         self._x = np.zeros(0, dtype=np.float32)
@@ -372,27 +480,33 @@ class PointCloud(widgets.VBox):
         self._shown = np.zeros(0, dtype=np.int64)
         self._selected = np.zeros(0, dtype=np.uint32)
         self._callbacks = []
-        self.figure, self.x_scale, self.y_scale = small_figure("", "x", "y", width=f"{width}px",
-                                                              height=f"{height}px")
+        self.figure, self.x_scale, self.y_scale = small_figure("", "x", "y", width=f"{width}px", height=f"{height}px")
         if equal_aspect:
             self.figure.min_aspect_ratio = self.figure.max_aspect_ratio = 1.0
         self.c_scale = bq.ColorScale(scheme="viridis")
-        self.c_axis = bq.ColorAxis(scale=self.c_scale, label="", side="right",
-                                   visible=False)
+        self.c_axis = bq.ColorAxis(scale=self.c_scale, label="", side="right", visible=False)
         self.figure.axes = [*self.figure.axes, self.c_axis]
-        self.mark = bq.Scatter(x=np.zeros(0), y=np.zeros(0), scales={"x": self.x_scale, "y": self.y_scale},
-                               colors=[colour], default_size=point_size, opacities=[0.55],
-                               stroke=None, selected_style={"opacity": 1.0, "fill": COLOURS["selected"],
-                                                            "stroke": COLOURS["selected"]},
-                               unselected_style={"opacity": 0.25})
+        self.mark = bq.Scatter(
+            x=np.zeros(0),
+            y=np.zeros(0),
+            scales={"x": self.x_scale, "y": self.y_scale},
+            colors=[colour],
+            default_size=point_size,
+            opacities=[0.55],
+            stroke=None,
+            selected_style={"opacity": 1.0, "fill": COLOURS["selected"], "stroke": COLOURS["selected"]},
+            unselected_style={"opacity": 0.25},
+        )
         self.figure.marks = [self.mark]
         self.note = widgets.HTML()
         self.note.add_class("mwkin-cloud-note")
-        self.brush = bq.interacts.BrushSelector(x_scale=self.x_scale, y_scale=self.y_scale,
-                                                marks=[self.mark], color=COLOURS["selected"])
+        self.brush = bq.interacts.BrushSelector(
+            x_scale=self.x_scale, y_scale=self.y_scale, marks=[self.mark], color=COLOURS["selected"]
+        )
         self.pan_zoom = bq.interacts.PanZoom(scales={"x": [self.x_scale], "y": [self.y_scale]})
-        self.mode = widgets.ToggleButtons(options=[("box select", "brush"), ("pan / zoom", "pan")],
-                                          value="brush", style={"button_width": "90px"})
+        self.mode = widgets.ToggleButtons(
+            options=[("box select", "brush"), ("pan / zoom", "pan")], value="brush", style={"button_width": "90px"}
+        )
         self.mode.observe(self._set_mode, "value")
         self.clear_button = widgets.Button(description="clear selection", layout=widgets.Layout(width="120px"))
         self.clear_button.on_click(lambda _: self.clear_selection())
@@ -402,8 +516,22 @@ class PointCloud(widgets.VBox):
         self.add_class("mwkin-cloud")
 
     # ---------------------------------------------------------------- data
-    def set_data(self, x, y, c=None, *, x_label=None, y_label=None, c_label=None, x_unit=None, y_unit=None,
-                 c_unit=None, keep_selection=False, keep_view=False, **_view_options):
+    def set_data(
+        self,
+        x,
+        y,
+        c=None,
+        *,
+        x_label=None,
+        y_label=None,
+        c_label=None,
+        x_unit=None,
+        y_unit=None,
+        c_unit=None,
+        keep_selection=False,
+        keep_view=False,
+        **_view_options,
+    ):
         """Show new arrays (one length). Same arguments as ``SampleScatter.set_data``.
 
         ``keep_view`` and the view options of the canvas view (``c_range``, ``view_range``) are accepted
@@ -442,8 +570,10 @@ class PointCloud(widgets.VBox):
         self.c_axis.visible = c is not None
         n_finite = len(finite)
         if n_finite > len(self._shown):
-            self.note.value = (f"<small>drawing a fixed random {len(self._shown)} of {n_finite} points; "
-                               f"selections use all of them</small>")
+            self.note.value = (
+                f"<small>drawing a fixed random {len(self._shown)} of {n_finite} points; "
+                f"selections use all of them</small>"
+            )
         else:
             self.note.value = f"<small>{n_finite} points</small>"
         if keep_selection and len(self._selected) and self._selected[-1] < len(x):
@@ -555,9 +685,14 @@ class SampleView(widgets.VBox):
             from .views import SampleScatter
 
             # The box width lets the view's toolbar wrap instead of widening the view past the plot.
-            self.view = SampleScatter(width=width, height=height, equal_aspect=equal_aspect,
-                                      selection_mode=selection_mode, point_size=2,
-                                      layout=widgets.Layout(width=f"{width + 4}px"))
+            self.view = SampleScatter(
+                width=width,
+                height=height,
+                equal_aspect=equal_aspect,
+                selection_mode=selection_mode,
+                point_size=2,
+                layout=widgets.Layout(width=f"{width + 4}px"),
+            )
         else:
             self.view = PointCloud(equal_aspect=equal_aspect, width=width, height=height)
         self.is_canvas = bool(use_canvas)

@@ -83,8 +83,10 @@ def _config_sample_path(path):
             f"config['sample']['path'] = {path!r} is outside the folders a config may read from "
             f"({', '.join(str(f) for f in folders)}): a config from a shared notebook may only name files "
             "under the notebook's folder. Copy the file there, or trust its folder with "
-            "mwkin.widgets.allow_sample_folder(...)")
+            "mwkin.widgets.allow_sample_folder(...)"
+        )
     return resolved
+
 
 #: File suffixes the upload button accepts (read_catalog tells the format from them).
 UPLOAD_SUFFIXES = (".csv", ".ecsv", ".fits", ".fit", ".fts", ".vot", ".votable", ".xml", ".parquet", ".pq")
@@ -241,8 +243,10 @@ def read_upload(entry):
         if lowered.endswith(compressed):
             lowered = lowered[: -len(compressed)]
     if not lowered.endswith(UPLOAD_SUFFIXES):
-        raise CatalogError(f"cannot tell the format of the uploaded file {name!r}: its name should end in "
-                           f"one of {', '.join(UPLOAD_SUFFIXES)}")
+        raise CatalogError(
+            f"cannot tell the format of the uploaded file {name!r}: its name should end in "
+            f"one of {', '.join(UPLOAD_SUFFIXES)}"
+        )
     content = bytes(entry.get("content") or b"")
     if not content:
         raise CatalogError(f"the uploaded file {name!r} is empty")
@@ -289,9 +293,11 @@ def inverse_parallax_caveat(stars, method, min_snr, zero_point_mas=0.0):
         reasons.append("the sample has no parallax errors, so no cut can be made")
     if not reasons:
         return ""
-    return ("Caution: 1/parallax is a biased and noisy distance at low parallax signal-to-noise "
-            "(" + "; ".join(reasons) + "). Distances, and the velocities that scale with them, "
-            "are then pushed outward; raise the cut or give a distance column.")
+    return (
+        "Caution: 1/parallax is a biased and noisy distance at low parallax signal-to-noise "
+        "(" + "; ".join(reasons) + "). Distances, and the velocities that scale with them, "
+        "are then pushed outward; raise the cut or give a distance column."
+    )
 
 
 class SampleLoader(widgets.HBox):
@@ -304,8 +310,12 @@ class SampleLoader(widgets.HBox):
     def __init__(self, on_loaded, on_error):
         self._on_loaded = on_loaded
         self._on_error = on_error
-        self.upload = widgets.FileUpload(accept=",".join(UPLOAD_SUFFIXES), multiple=False,
-                                         description="Load a table", tooltip="CSV, ECSV, FITS, VOTable or Parquet")
+        self.upload = widgets.FileUpload(
+            accept=",".join(UPLOAD_SUFFIXES),
+            multiple=False,
+            description="Load a table",
+            tooltip="CSV, ECSV, FITS, VOTable or Parquet",
+        )
         self.upload.add_class("mwkin-upload")
         self.upload.observe(self._uploaded, "value")
         self.label = widgets.HTML()
@@ -340,18 +350,32 @@ class DistanceControls(widgets.VBox):
         zero_point_mas = InverseParallax().zero_point_mas if zero_point_mas is None else zero_point_mas
         self._on_change = on_change
         self._quiet = Quiet()
-        self.method = widgets.ToggleButtons(options=[self.METHODS[0]], value=self.METHODS[0],
-                                            description="distance", style={"button_width": "135px"},
-                                            tooltip="how each star's distance is obtained")
+        self.method = widgets.ToggleButtons(
+            options=[self.METHODS[0]],
+            value=self.METHODS[0],
+            description="distance",
+            style={"button_width": "135px"},
+            tooltip="how each star's distance is obtained",
+        )
         # A plain box: the core's InverseParallax refuses a negative cut by name; a bounded box would
         # clamp it to 0 silently (no cut at all).
-        self.min_snr = widgets.FloatText(value=min_snr, step=1.0,
-                                                description="min parallax/error", style={"description_width": "9em"},
-                                                layout=widgets.Layout(width="15em"), continuous_update=False)
-        self.zero_point = widgets.FloatText(value=zero_point_mas, step=0.005, description="zero point [mas]",
-                                            style={"description_width": "9em"}, layout=widgets.Layout(width="15em"),
-                                            continuous_update=False,
-                                            tooltip="subtracted from every parallax (e.g. -0.017 mas for Gaia EDR3)")
+        self.min_snr = widgets.FloatText(
+            value=min_snr,
+            step=1.0,
+            description="min parallax/error",
+            style={"description_width": "9em"},
+            layout=widgets.Layout(width="15em"),
+            continuous_update=False,
+        )
+        self.zero_point = widgets.FloatText(
+            value=zero_point_mas,
+            step=0.005,
+            description="zero point [mas]",
+            style={"description_width": "9em"},
+            layout=widgets.Layout(width="15em"),
+            continuous_update=False,
+            tooltip="subtracted from every parallax (e.g. -0.017 mas for Gaia EDR3)",
+        )
         self.min_snr.add_class("mwkin-min-snr")
         self.zero_point.add_class("mwkin-zero-point")
         self.method.add_class("mwkin-distance-method")
@@ -363,7 +387,9 @@ class DistanceControls(widgets.VBox):
         """Offer the distance column only when the sample has one."""
         has_column = stars is not None and "distance" in stars.colnames
         has_parallax = stars is not None and "parallax" in stars.colnames
-        options = ([self.METHODS[0]] if has_parallax or stars is None else []) + ([self.METHODS[1]] if has_column else [])
+        options = ([self.METHODS[0]] if has_parallax or stars is None else []) + (
+            [self.METHODS[1]] if has_column else []
+        )
         current = self.method.value
         with self._quiet:
             self.method.options = options
@@ -391,21 +417,27 @@ class DistanceControls(widgets.VBox):
         """Python expression building :meth:`choice` in a snippet (``mk`` is the mwkin package)."""
         if self.method.value == self.METHODS[1]:
             return "mk.DistanceColumn('distance')"
-        return (f"mk.InverseParallax(min_snr={float(self.min_snr.value)!r}, "
-                f"zero_point_mas={float(self.zero_point.value)!r})")
+        return (
+            f"mk.InverseParallax(min_snr={float(self.min_snr.value)!r}, "
+            f"zero_point_mas={float(self.zero_point.value)!r})"
+        )
 
     @property
     def config(self):
-        return {"method": self.method.value, "min_snr": float(self.min_snr.value),
-                "zero_point_mas": float(self.zero_point.value)}
+        return {
+            "method": self.method.value,
+            "min_snr": float(self.min_snr.value),
+            "zero_point_mas": float(self.zero_point.value),
+        }
 
     def check_config(self, config):
         """A :attr:`config`-like dict checked (nothing applied); a :class:`ConfigError` names what is wrong."""
         config = require_mapping(config, "config['distance']")
         unknown = set(config) - {"method", "min_snr", "zero_point_mas"}
         if unknown:
-            raise ConfigError(f"unknown distance settings {sorted(unknown)}; expected "
-                              "['method', 'min_snr', 'zero_point_mas']")
+            raise ConfigError(
+                f"unknown distance settings {sorted(unknown)}; expected ['method', 'min_snr', 'zero_point_mas']"
+            )
         method = config.get("method", self.method.value)
         if method not in self.METHODS:
             raise ConfigError(f"config['distance']['method'] must be one of {self.METHODS}, got {method!r:.80}")
@@ -450,14 +482,17 @@ def _check_sample_config(widget, config):
         except Exception as exc:  # noqa: BLE001 - reworded: never echo the file's content
             raise ConfigError(
                 f"config['sample']['path']: {path} could not be read as a star table "
-                f"({type(exc).__name__}); read it with mwkin.read_catalog({path!r}) to see why") from None
+                f"({type(exc).__name__}); read it with mwkin.read_catalog({path!r}) to see why"
+            ) from None
     if source.kind == "none":
         return None, ""
     if widget._stars is None:
         return None, f"the saved sample ({source.describe()}) is not in the config: {source.to_config()['note']}"
     if source.fingerprint and widget._source.fingerprint != source.fingerprint:
-        return None, (f"note: the config was saved with a different sample ({source.describe()}, fingerprint "
-                      f"{source.fingerprint}); using the current one ({widget._source.describe()})")
+        return None, (
+            f"note: the config was saved with a different sample ({source.describe()}, fingerprint "
+            f"{source.fingerprint}); using the current one ({widget._source.describe()})"
+        )
     return None, ""
 
 
@@ -476,13 +511,20 @@ def _restore_sample(widget, saved):
 
 
 #: The ``sample`` entry of a sample widget's config (a path is read again; a table in memory is kept).
-SAMPLE_SETTING = Setting(lambda w: w._source.to_config(), _apply_sample_config, check=_check_sample_config,
-                         save=lambda w: (w._stars, w._source, w._note), restore=_restore_sample)
+SAMPLE_SETTING = Setting(
+    lambda w: w._source.to_config(),
+    _apply_sample_config,
+    check=_check_sample_config,
+    save=lambda w: (w._stars, w._source, w._note),
+    restore=_restore_sample,
+)
 
 #: The ``distance`` entry: the :class:`DistanceControls` settings.
-DISTANCE_SETTING = Setting(lambda w: w.distance_controls.config,
-                           lambda w, config: w.distance_controls.apply_config(config),
-                           check=lambda w, config: w.distance_controls.check_config(config))
+DISTANCE_SETTING = Setting(
+    lambda w: w.distance_controls.config,
+    lambda w, config: w.distance_controls.apply_config(config),
+    check=lambda w, config: w.distance_controls.check_config(config),
+)
 
 
 class SampleInput:
@@ -523,8 +565,7 @@ class SampleInput:
         """Show why a sample could not be used; keep the previous one; warn the cell that gave it."""
         from ._base import error_text
 
-        kept = (f" (kept the previous sample: {self._source.describe()})" if self._stars is not None
-                else " (no sample)")
+        kept = f" (kept the previous sample: {self._source.describe()})" if self._stars is not None else " (no sample)"
         text = error_text(exc) + kept
         self.status_line.show_error(text)
         warnings.warn(f"{type(self).__name__}: the sample was not used: {text}", SampleWarning, stacklevel=3)

@@ -56,16 +56,27 @@ class NumberField(widgets.HBox):
     def __init__(self, label, value, css, on_value, slider=None, tooltip=""):
         self._quiet = Quiet()
         self._on_value = on_value
-        self.text = widgets.FloatText(value=value, description=label, style=_LABEL_STYLE,
-                                      continuous_update=False, tooltip=tooltip or label,
-                                      layout=widgets.Layout(width="17em"))
+        self.text = widgets.FloatText(
+            value=value,
+            description=label,
+            style=_LABEL_STYLE,
+            continuous_update=False,
+            tooltip=tooltip or label,
+            layout=widgets.Layout(width="17em"),
+        )
         children = [self.text]
         self.slider = None
         if slider is not None:
             lo, hi, step = slider
-            self.slider = widgets.FloatSlider(value=min(max(value, lo), hi), min=lo, max=hi, step=step,
-                                              readout=False, continuous_update=True,
-                                              layout=widgets.Layout(width="14em"))
+            self.slider = widgets.FloatSlider(
+                value=min(max(value, lo), hi),
+                min=lo,
+                max=hi,
+                step=step,
+                readout=False,
+                continuous_update=True,
+                layout=widgets.Layout(width="14em"),
+            )
             self.slider.observe(self._slider_moved, "value")
             children.append(self.slider)
         self.text.observe(self._typed, "value")
@@ -155,8 +166,9 @@ class FrameControls(widgets.VBox):
         presets = SolarFrame.presets()
         self._last_preset = self.state.preset if self.state.preset in presets else DEFAULT_FRAME_PRESET
 
-        self.preset_dropdown = widgets.Dropdown(description="Preset", style=_LABEL_STYLE,
-                                                layout=widgets.Layout(width="31em"))
+        self.preset_dropdown = widgets.Dropdown(
+            description="Preset", style=_LABEL_STYLE, layout=widgets.Layout(width="31em")
+        )
         self.preset_dropdown.add_class("mwkin-frame-preset")
         self.preset_dropdown.observe(self._preset_chosen, "value")
         self.citation = widgets.HTML()
@@ -164,10 +176,17 @@ class FrameControls(widgets.VBox):
 
         frame = self.state.frame
         self.fields = {
-            "R0": NumberField("R0 [kpc]", frame.R0, "mwkin-R0", self._setter("R0"), (6.5, 10.0, 0.001),
-                              "Sun-centre distance, kpc"),
-            "z_sun": NumberField("z_sun [pc]", frame.z_sun, "mwkin-zsun", self._setter("z_sun"),
-                                 (-50.0, 100.0, 0.1), "height of the Sun above the mid-plane, pc"),
+            "R0": NumberField(
+                "R0 [kpc]", frame.R0, "mwkin-R0", self._setter("R0"), (6.5, 10.0, 0.001), "Sun-centre distance, kpc"
+            ),
+            "z_sun": NumberField(
+                "z_sun [pc]",
+                frame.z_sun,
+                "mwkin-zsun",
+                self._setter("z_sun"),
+                (-50.0, 100.0, 0.1),
+                "height of the Sun above the mid-plane, pc",
+            ),
         }
         vc, (U, V, W) = self._lsr_view(frame)
         lsr = {
@@ -184,25 +203,37 @@ class FrameControls(widgets.VBox):
         for key, (label, value, rng, tip) in {**lsr, **cart}.items():
             self.fields[key] = NumberField(label, value, f"mwkin-{key}", self._velocity_setter(key), rng, tip)
         self.lsr_box = widgets.VBox([self.fields[k] for k in lsr])
-        self.cartesian_box = widgets.VBox([self.fields[k] for k in cart],
-                                          layout=widgets.Layout(display="none"))
+        self.cartesian_box = widgets.VBox([self.fields[k] for k in cart], layout=widgets.Layout(display="none"))
         self.representation = widgets.ToggleButtons(
-            options=[("(U, V, W) + vc", "lsr"), ("Cartesian v_sun", "cartesian")], value="lsr",
-            description="Solar velocity", style=_LABEL_STYLE)
+            options=[("(U, V, W) + vc", "lsr"), ("Cartesian v_sun", "cartesian")],
+            value="lsr",
+            description="Solar velocity",
+            style=_LABEL_STYLE,
+        )
         self.representation.add_class("mwkin-velocity-representation")
         self.representation.observe(self._representation_changed, "value")
 
-        self.reset_button = widgets.Button(description="Reset", icon="undo",
-                                           tooltip="back to the last preset chosen")
+        self.reset_button = widgets.Button(description="Reset", icon="undo", tooltip="back to the last preset chosen")
         self.reset_button.add_class("mwkin-frame-reset")
         self.reset_button.on_click(lambda _: self.reset())
         self.reflex_label = widgets.HTML()
         self.reflex_label.add_class("mwkin-reflex")
         self.status_line = StatusLine()
 
-        super().__init__([self.preset_dropdown, self.citation, self.fields["R0"], self.fields["z_sun"],
-                          self.representation, self.lsr_box, self.cartesian_box,
-                          widgets.HBox([self.reset_button]), self.reflex_label, self.status_line])
+        super().__init__(
+            [
+                self.preset_dropdown,
+                self.citation,
+                self.fields["R0"],
+                self.fields["z_sun"],
+                self.representation,
+                self.lsr_box,
+                self.cartesian_box,
+                widgets.HBox([self.reset_button]),
+                self.reflex_label,
+                self.status_line,
+            ]
+        )
         self.add_class("mwkin-frame-controls")
         self.state.observe(self._state_changed, ["R0", "z_sun", "v_sun", "preset"])
         self._show_preset()
@@ -243,6 +274,7 @@ class FrameControls(widgets.VBox):
     def _setter(self, name):
         def set_value(value):
             self._try(self.fields[name], lambda frame: frame.replace(**{name: value}))
+
         return set_value
 
     def _velocity_setter(self, key):
@@ -256,13 +288,16 @@ class FrameControls(widgets.VBox):
                     v[index] = value
                     return frame.replace(v_sun=tuple(v))
             else:
+
                 def make(frame):
                     vc, (U, V, W) = self._lsr_view(frame)
                     parts = {"vc": vc, "U": U, "V": V, "W": W, key: value}
                     new = SolarFrame.from_lsr(frame.R0, frame.z_sun, **parts)
                     self._solar_V = parts["V"]
                     return frame.replace(v_sun=new.v_sun)
+
             self._try(field, make)
+
         return set_value
 
     def _preset_chosen(self, change):
@@ -312,12 +347,13 @@ class FrameControls(widgets.VBox):
             self.preset_dropdown.value = name
         if name == _CUSTOM:
             base = presets[self._last_preset]
-            self.citation.value = (f"<small>edited; reset returns to <i>{html.escape(base.name)}</i> "
-                                   f"({html.escape(base.citation)})</small>")
+            self.citation.value = (
+                f"<small>edited; reset returns to <i>{html.escape(base.name)}</i> "
+                f"({html.escape(base.citation)})</small>"
+            )
         else:
             entry = presets[name]
-            self.citation.value = (f"<small>{html.escape(entry.description)}. "
-                                   f"{html.escape(entry.citation)}</small>")
+            self.citation.value = f"<small>{html.escape(entry.description)}. {html.escape(entry.citation)}</small>"
 
     def _show_reflex(self):
         r = self.reflex
@@ -326,7 +362,8 @@ class FrameControls(widgets.VBox):
             f"Reflex motion of the Galactic centre implied by this frame: mu_l* = {r['mu_l']:.3f}, "
             f"mu_b = {r['mu_b']:.3f} mas/yr; measured for Sgr A* (Reid & Brunthaler 2020): "
             f"{ml:.3f} ± {sl:.3f}, {mb:.3f} ± {sb:.3f} mas/yr; difference "
-            f"{r['sigma_l']:+.1f}σ in mu_l*, {r['sigma_b']:+.1f}σ in mu_b")
+            f"{r['sigma_l']:+.1f}σ in mu_l*, {r['sigma_b']:+.1f}σ in mu_b"
+        )
         self.reflex_label.value = f"<small>{html.escape(self.reflex_text)}</small>"
 
 
@@ -407,8 +444,13 @@ class PotentialControls(widgets.VBox):
         self._presets = Potential.presets()
 
         options = [(name, name) for name in self._presets] + [("adjustable three-component", _THREE_COMPONENT)]
-        self.preset_dropdown = widgets.Dropdown(options=options, value=self.state.preset, description="Model",
-                                                style=_LABEL_STYLE, layout=widgets.Layout(width="31em"))
+        self.preset_dropdown = widgets.Dropdown(
+            options=options,
+            value=self.state.preset,
+            description="Model",
+            style=_LABEL_STYLE,
+            layout=widgets.Layout(width="31em"),
+        )
         self.preset_dropdown.add_class("mwkin-potential-preset")
         self.preset_dropdown.observe(self._preset_chosen, "value")
         self.citation = widgets.HTML()
@@ -419,15 +461,23 @@ class PotentialControls(widgets.VBox):
         self.parameter_box.add_class("mwkin-potential-parameters")
         self._build_sliders()
 
-        self.match_checkbox = widgets.Checkbox(value=self.state.match_frame_vc, indent=False,
-                                               description="match the frame's circular velocity at the Sun",
-                                               disabled=frame_state is None)
+        self.match_checkbox = widgets.Checkbox(
+            value=self.state.match_frame_vc,
+            indent=False,
+            description="match the frame's circular velocity at the Sun",
+            disabled=frame_state is None,
+        )
         self.match_checkbox.add_class("mwkin-match-vc")
         self.match_checkbox.observe(self._match_toggled, "value")
-        self.solar_V_field = NumberField("V_sun - V_LSR [km/s]", self.state.solar_V, "mwkin-solar-V",
-                                         self._solar_V_set, tooltip="the Sun's motion along rotation "
-                                         "relative to the LSR (Schoenrich et al. 2010: "
-                                         f"{SCHOENRICH2010_SOLAR_MOTION[1]:g} km/s)")
+        self.solar_V_field = NumberField(
+            "V_sun - V_LSR [km/s]",
+            self.state.solar_V,
+            "mwkin-solar-V",
+            self._solar_V_set,
+            tooltip="the Sun's motion along rotation "
+            "relative to the LSR (Schoenrich et al. 2010: "
+            f"{SCHOENRICH2010_SOLAR_MOTION[1]:g} km/s)",
+        )
 
         self._build_figure()
         self.readout = widgets.HTML()
@@ -437,9 +487,18 @@ class PotentialControls(widgets.VBox):
         self._seconds = {}
         self._runner = LiveRunner(self._compute, self._deliver, self._fail, self._busy, threaded=threaded)
 
-        super().__init__([self.preset_dropdown, self.citation, self.parameter_box,
-                          widgets.HBox([self.match_checkbox]), self.solar_V_field,
-                          self.figure, self.readout, self.status_line])
+        super().__init__(
+            [
+                self.preset_dropdown,
+                self.citation,
+                self.parameter_box,
+                widgets.HBox([self.match_checkbox]),
+                self.solar_V_field,
+                self.figure,
+                self.readout,
+                self.status_line,
+            ]
+        )
         self.add_class("mwkin-potential-controls")
         self.state.observe(self._state_changed, ["preset", "parameters", "match_frame_vc", "solar_V"])
         if frame_state is not None:
@@ -465,7 +524,7 @@ class PotentialControls(widgets.VBox):
         config = self.state.config
         inline = self._seconds.get(_model_key(config), math.inf) < INLINE_LIMIT_S
         if not (inline and self._runner.idle):
-            self._busy(True)            # at once, on the main thread: the worker may start later
+            self._busy(True)  # at once, on the main thread: the worker may start later
         self._runner.submit({"potential": config, "frame": frame}, inline=inline)
 
     def wait(self, timeout=120.0):
@@ -479,16 +538,24 @@ class PotentialControls(widgets.VBox):
         self.sliders = {}
         boxes = []
         for component, params in self.state.parameters.items():
-            rows = [widgets.HTML(f"<b>{html.escape(component)}</b>"
-                                 + (f" <small>({html.escape(str(params['model']))})</small>"
-                                    if "model" in params else ""))]
+            rows = [
+                widgets.HTML(
+                    f"<b>{html.escape(component)}</b>"
+                    + (f" <small>({html.escape(str(params['model']))})</small>" if "model" in params else "")
+                )
+            ]
             for name, value in params.items():
                 if isinstance(value, bool) or not isinstance(value, (int, float)):
                     continue
                 label, rng, factor = _slider_spec(component, name, value)
-                field = NumberField(label, value / factor, f"mwkin-{component}-{name}",
-                                    self._parameter_setter(component, name, factor), rng,
-                                    f"{component} {name}")
+                field = NumberField(
+                    label,
+                    value / factor,
+                    f"mwkin-{component}-{name}",
+                    self._parameter_setter(component, name, factor),
+                    rng,
+                    f"{component} {name}",
+                )
                 self.sliders[(component, name)] = (field, factor)
                 rows.append(field)
             boxes.append(widgets.VBox(rows))
@@ -496,8 +563,12 @@ class PotentialControls(widgets.VBox):
         self._slider_keys = self._numeric_keys()
 
     def _numeric_keys(self):
-        return {(c, n) for c, p in self.state.parameters.items() for n, v in p.items()
-                if isinstance(v, (int, float)) and not isinstance(v, bool)}
+        return {
+            (c, n)
+            for c, p in self.state.parameters.items()
+            for n, v in p.items()
+            if isinstance(v, (int, float)) and not isinstance(v, bool)
+        }
 
     # ------------------------------------------------------------------ user -> state
     def _preset_chosen(self, change):
@@ -512,7 +583,7 @@ class PotentialControls(widgets.VBox):
             params = {c: dict(p) for c, p in self.state.parameters.items()}
             params[component][name] = value * factor
             try:
-                Potential.three_component(**params)    # the core validates (cheap: no integration)
+                Potential.three_component(**params)  # the core validates (cheap: no integration)
             except Exception as exc:  # noqa: BLE001 - shown on screen, typed value kept
                 field.mark_invalid(True)
                 self.status_line.show_error(f"{error_text(exc)} (not applied)")
@@ -521,6 +592,7 @@ class PotentialControls(widgets.VBox):
             with self.state.hold_trait_notifications():
                 self.state.parameters = params
                 self.state.preset = _THREE_COMPONENT
+
         return set_value
 
     def _match_toggled(self, change):
@@ -552,8 +624,9 @@ class PotentialControls(widgets.VBox):
             self.preset_dropdown.value = self.state.preset
         name = self.state.preset
         if name == _THREE_COMPONENT:
-            self.citation.value = ("<small>bulge + disc + halo with the parameters below "
-                                   "(masses in 1e10 Msun, lengths in kpc)</small>")
+            self.citation.value = (
+                "<small>bulge + disc + halo with the parameters below (masses in 1e10 Msun, lengths in kpc)</small>"
+            )
             self.parameter_box.layout.display = None
         else:
             entry = self._presets[name]
@@ -566,19 +639,36 @@ class PotentialControls(widgets.VBox):
 
         self._x_scale = bq.LinearScale(min=0.0, max=float(self._radii[-1]))
         self._y_scale = bq.LinearScale(min=0.0)
-        self.curve_mark = bq.Lines(x=self._radii, y=np.zeros((1, self._radii.size)), scales={
-            "x": self._x_scale, "y": self._y_scale}, labels=["total"], display_legend=True,
-            colors=[_COMPONENT_COLOURS["total"]])
-        self.frame_mark = bq.Scatter(x=np.array([np.nan]), y=np.array([np.nan]), marker="cross",
-                                     default_size=90, colors=["#a11d1d"], display_legend=True,
-                                     labels=["frame: v_sun,y - V at R0"],
-                                     scales={"x": self._x_scale, "y": self._y_scale})
-        axes = [bq.Axis(scale=self._x_scale, label="R [kpc]"),
-                bq.Axis(scale=self._y_scale, side="left", label="v_c [km/s]")]
-        self.figure = bq.Figure(marks=[self.curve_mark, self.frame_mark], axes=axes,
-                                title="Rotation curve", legend_location="bottom-right",
-                                layout=widgets.Layout(width="460px", height="320px"),
-                                fig_margin={"top": 40, "bottom": 45, "left": 60, "right": 20})
+        self.curve_mark = bq.Lines(
+            x=self._radii,
+            y=np.zeros((1, self._radii.size)),
+            scales={"x": self._x_scale, "y": self._y_scale},
+            labels=["total"],
+            display_legend=True,
+            colors=[_COMPONENT_COLOURS["total"]],
+        )
+        self.frame_mark = bq.Scatter(
+            x=np.array([np.nan]),
+            y=np.array([np.nan]),
+            marker="cross",
+            default_size=90,
+            colors=["#a11d1d"],
+            display_legend=True,
+            labels=["frame: v_sun,y - V at R0"],
+            scales={"x": self._x_scale, "y": self._y_scale},
+        )
+        axes = [
+            bq.Axis(scale=self._x_scale, label="R [kpc]"),
+            bq.Axis(scale=self._y_scale, side="left", label="v_c [km/s]"),
+        ]
+        self.figure = bq.Figure(
+            marks=[self.curve_mark, self.frame_mark],
+            axes=axes,
+            title="Rotation curve",
+            legend_location="bottom-right",
+            layout=widgets.Layout(width="460px", height="320px"),
+            fig_margin={"top": 40, "bottom": 45, "left": 60, "right": 20},
+        )
         self.figure.add_class("mwkin-rotation-curve")
 
     # ------------------------------------------------------------------ computation
@@ -606,8 +696,9 @@ class PotentialControls(widgets.VBox):
         result.meta = {**curve.meta, "potential_model": pot}
         if frame is not None:
             solar_V = request["potential"]["solar_V"]
-            result.meta.update({"frame": frame, "solar_V_kms": solar_V,
-                                "vc_frame_kms": lsr_circular_velocity(frame, solar_V)})
+            result.meta.update(
+                {"frame": frame, "solar_V_kms": solar_V, "vc_frame_kms": lsr_circular_velocity(frame, solar_V)}
+            )
         result.meta["oort"] = pot.oort_constants(frame.inplane_radius if frame is not None else _REFERENCE_R_KPC)
         return result
 
@@ -637,7 +728,8 @@ class PotentialControls(widgets.VBox):
             self.readout.value = (
                 f"v_c(R0 = {R_ref:.3f} kpc) = <b>{vc_pot:.1f} km/s</b> in this potential; "
                 f"the frame implies {vc_frame:.1f} km/s (v_sun,y - V); "
-                f"difference {vc_pot - vc_frame:+.1f} km/s")
+                f"difference {vc_pot - vc_frame:+.1f} km/s"
+            )
         else:
             self.readout.value = f"v_c({R_ref:g} kpc) = <b>{vc_pot:.1f} km/s</b> in this potential"
         self._y_scale.max = 1.1 * top
@@ -661,8 +753,9 @@ _REFERENCE_R_KPC = 8.0
 _LEGACY_RESULT_KEYS = {
     "potential": lambda t: t.meta["potential_model"],
     "frame": lambda t: t.meta.get("frame"),
-    "curves": lambda t: dict(zip(_curve_labels(t.meta["potential_model"], t),
-                                 (column_values(t, c, "km/s") for c in t.colnames[1:]))),
+    "curves": lambda t: dict(
+        zip(_curve_labels(t.meta["potential_model"], t), (column_values(t, c, "km/s") for c in t.colnames[1:]))
+    ),
     "R_sun": lambda t: float(t.meta["oort"].R.to_value("kpc")) if "frame" in t.meta else None,
     "vc_pot": lambda t: float(t.meta["oort"].vc.to_value("km/s")) if "frame" in t.meta else None,
     "vc_frame": lambda t: t.meta.get("vc_frame_kms"),
@@ -679,10 +772,13 @@ class _RotationCurve(QTable):
 
     def __getitem__(self, item):
         if isinstance(item, str) and item not in self.colnames and item in _LEGACY_RESULT_KEYS:
-            warnings.warn(f"PotentialControls.result is now the rotation-curve QTable; result[{item!r}] is "
-                          "deprecated: use its columns (R, vc, vc_<component>) and meta (oort: the "
-                          "OortConstants at the Sun, vc_frame_kms, frame, potential_model)",
-                          DeprecationWarning, stacklevel=2)
+            warnings.warn(
+                f"PotentialControls.result is now the rotation-curve QTable; result[{item!r}] is "
+                "deprecated: use its columns (R, vc, vc_<component>) and meta (oort: the "
+                "OortConstants at the Sun, vc_frame_kms, frame, potential_model)",
+                DeprecationWarning,
+                stacklevel=2,
+            )
             value = _LEGACY_RESULT_KEYS[item](self)
             if value is None:
                 raise KeyError(item)

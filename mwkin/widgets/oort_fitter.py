@@ -57,24 +57,29 @@ L_BIN_DEG = 15.0
 _MEDIAN_ERROR_FACTOR = math.sqrt(math.pi / 2.0)
 
 _USES = {"proper motions": "proper_motions", "radial velocities": "radial_velocities", "both": "both"}
-_RESIDUALS = {"mu_l*": ("z_mu_l_star", "normalised residual of mu_l*"),
-              "mu_b": ("z_mu_b", "normalised residual of mu_b"),
-              "v_r": ("z_v_r", "normalised residual of v_r")}
+_RESIDUALS = {
+    "mu_l*": ("z_mu_l_star", "normalised residual of mu_l*"),
+    "mu_b": ("z_mu_b", "normalised residual of mu_b"),
+    "v_r": ("z_v_r", "normalised residual of v_r"),
+}
 _AGAINST = ("l", "distance")
 
-BINS_NOTE = ("The first-order (linear) velocity field holds only near the Sun: where A and B drift from bin "
-             "to bin beyond their errors, the model has stopped holding (its mu_l* error is ~0.1 mas/yr at "
-             "0.2 kpc and ~0.5 mas/yr at 1 kpc for a disc model).")
+BINS_NOTE = (
+    "The first-order (linear) velocity field holds only near the Sun: where A and B drift from bin "
+    "to bin beyond their errors, the model has stopped holding (its mu_l* error is ~0.1 mas/yr at "
+    "0.2 kpc and ~0.5 mas/yr at 1 kpc for a disc model)."
+)
 
 #: Largest bootstrap the live widget runs (the core has no limit; past this a live fit takes seconds).
 MAX_LIVE_BOOTSTRAP = 5000
 
 
-
 def _check_bootstrap(widget, n_boot):
     if not 0 <= n_boot <= MAX_LIVE_BOOTSTRAP:
-        raise ValueError(f"bootstrap N = {n_boot}: give 0 (no bootstrap) to {MAX_LIVE_BOOTSTRAP} resamples "
-                         "in the widget (use mwkin.fit_oort directly for more)")
+        raise ValueError(
+            f"bootstrap N = {n_boot}: give 0 (no bootstrap) to {MAX_LIVE_BOOTSTRAP} resamples "
+            "in the widget (use mwkin.fit_oort directly for more)"
+        )
     return n_boot
 
 
@@ -85,8 +90,11 @@ def _check_max_pm_error(widget, max_pm_error):
 
 
 def _check_distance_range(widget, value):
-    if (len(value) != 2 or any(isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v)
-                               for v in value) or not 0 <= value[0] < value[1]):
+    if (
+        len(value) != 2
+        or any(isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) for v in value)
+        or not 0 <= value[0] < value[1]
+    ):
         raise ValueError("must be [min, max] in kpc with 0 <= min < max")
     return float(value[0]), float(value[1])
 
@@ -122,11 +130,15 @@ class _SampleGeometry:
 
     def __init__(self, stars):
         self.l_deg, self.b_deg, self.mu_l_star, self.mu_b = sky_motions(stars)
-        self.v_r = (column_values(stars, "radial_velocity", "km/s") if "radial_velocity" in stars.colnames
-                    else np.full(len(stars), np.nan))
+        self.v_r = (
+            column_values(stars, "radial_velocity", "km/s")
+            if "radial_velocity" in stars.colnames
+            else np.full(len(stars), np.nan)
+        )
         if "pmra_error" in stars.colnames and "pmdec_error" in stars.colnames:
-            self.pm_error = np.fmax(column_values(stars, "pmra_error", "mas/yr"),
-                                    column_values(stars, "pmdec_error", "mas/yr"))
+            self.pm_error = np.fmax(
+                column_values(stars, "pmra_error", "mas/yr"), column_values(stars, "pmdec_error", "mas/yr")
+            )
         else:
             self.pm_error = None
         self.has_rv = bool(np.isfinite(self.v_r).any())
@@ -152,8 +164,10 @@ class _SampleGeometry:
             mask = np.abs(self.b_deg) <= max_abs_b
         if max_pm_error > 0:
             if self.pm_error is None:
-                raise ValueError(f"max pm error = {max_pm_error:g} mas/yr: the sample has no pmra_error and "
-                                 "pmdec_error columns to cut on (set it to 0)")
+                raise ValueError(
+                    f"max pm error = {max_pm_error:g} mas/yr: the sample has no pmra_error and "
+                    "pmdec_error columns to cut on (set it to 0)"
+                )
             with np.errstate(invalid="ignore"):
                 cut = self.pm_error <= max_pm_error
             mask = cut if mask is None else mask & cut
@@ -170,9 +184,12 @@ def first_order_model(l_deg, fit, distance_kpc, b_deg=0.0):
     -------
     mu_l_star, v_r : numpy.ndarray
     """
-    warnings.warn("mwkin.widgets.oort_fitter.first_order_model is deprecated: use "
-                  "mwkin.oort.predicted_observables(l_deg, b_deg, distance_kpc, fit), which also gives mu_b",
-                  DeprecationWarning, stacklevel=2)
+    warnings.warn(
+        "mwkin.widgets.oort_fitter.first_order_model is deprecated: use "
+        "mwkin.oort.predicted_observables(l_deg, b_deg, distance_kpc, fit), which also gives mu_b",
+        DeprecationWarning,
+        stacklevel=2,
+    )
     mu_l, _, v_r = predicted_observables(l_deg, b_deg, distance_kpc, fit)
     return mu_l, v_r
 
@@ -228,8 +245,19 @@ class OortFitter(SampleInput, AnalysisWidget):
       latitude cut off.
     """
 
-    def __init__(self, sample=None, frame=None, potential=None, *, distance_range=(0.0, 0.5), use="both",
-                 bins=DEFAULT_BINS_KPC, threaded=True, use_canvas=None, **kwargs):
+    def __init__(
+        self,
+        sample=None,
+        frame=None,
+        potential=None,
+        *,
+        distance_range=(0.0, 0.5),
+        use="both",
+        bins=DEFAULT_BINS_KPC,
+        threaded=True,
+        use_canvas=None,
+        **kwargs,
+    ):
         super().__init__(frame, potential, threaded=threaded, **kwargs)
         self.add_class("mwkin-oort-fitter")
         self._stars = None
@@ -238,10 +266,9 @@ class OortFitter(SampleInput, AnalysisWidget):
         self._note = ""
         self._bins_cache = {}
         self._bins_error = ""
-        self._bins_runner = LiveRunner(self._compute_bins, self._deliver_bins, self._fail_bins,
-                                       threaded=threaded)
+        self._bins_runner = LiveRunner(self._compute_bins, self._deliver_bins, self._fail_bins, threaded=threaded)
 
-        with self._quiet:   # building: one computation once the sample is in
+        with self._quiet:  # building: one computation once the sample is in
             self._build(distance_range, use, bins, use_canvas)
         if sample is not None:
             self.sample = sample
@@ -254,56 +281,94 @@ class OortFitter(SampleInput, AnalysisWidget):
         "distance": DISTANCE_SETTING,
         # The front end snaps the range to the slider's step and echoes values like 0.49999999999999994;
         # rounding far below the step keeps the settings (and the config) at what the user chose.
-        "distance_range": Setting(lambda w: [round(float(v), 9) for v in w.distance_range.value],
-                                  _set_distance_range, types=(list, tuple), check=_check_distance_range),
+        "distance_range": Setting(
+            lambda w: [round(float(v), 9) for v in w.distance_range.value],
+            _set_distance_range,
+            types=(list, tuple),
+            check=_check_distance_range,
+        ),
         "max_pm_error": control_setting("max_pm_error", types=(int, float), convert=float, check=_check_max_pm_error),
-        "max_abs_b": control_setting("max_abs_b", types=(int, float), convert=float,
-                                     check=within_control("max_abs_b", " deg")),
+        "max_abs_b": control_setting(
+            "max_abs_b", types=(int, float), convert=float, check=within_control("max_abs_b", " deg")
+        ),
         "use": control_setting("use", types=(str,), check=one_of(set(_USES.values()), "use")),
         "robust": control_setting("robust", types=(bool,), convert=bool),
         "bootstrap": control_setting("bootstrap", types=(int,), convert=int, check=_check_bootstrap),
         "seed": Setting(lambda w: w.seed, lambda w, value: setattr(w, "seed", value), types=(int, type(None))),
         "bins": control_setting("bins_text", types=(str,), check=_check_bins),
         "residual": control_setting("residual", types=(str,), check=one_of(set(_RESIDUALS), "residual")),
-        "residual_against": control_setting("residual_against", types=(str,),
-                                            check=one_of(set(_AGAINST), "residual_against")),
+        "residual_against": control_setting(
+            "residual_against", types=(str,), check=one_of(set(_AGAINST), "residual_against")
+        ),
     }
 
     def _build(self, distance_range, use, bins, use_canvas):
         self.loader = SampleLoader(self._set_sample, self._upload_failed)
         self.distance_controls = DistanceControls(self.refresh)
-        self.distance_range = widgets.FloatRangeSlider(value=tuple(distance_range), min=0.0,
-                                                       max=max(3.0, float(distance_range[1])), step=0.01,
-                                                       description="distance [kpc]", readout_format=".2f",
-                                                       continuous_update=True, style={"description_width": "9em"},
-                                                       layout=widgets.Layout(width="30em"))
+        self.distance_range = widgets.FloatRangeSlider(
+            value=tuple(distance_range),
+            min=0.0,
+            max=max(3.0, float(distance_range[1])),
+            step=0.01,
+            description="distance [kpc]",
+            readout_format=".2f",
+            continuous_update=True,
+            style={"description_width": "9em"},
+            layout=widgets.Layout(width="30em"),
+        )
         self.distance_range.add_class("mwkin-distance-range")
         # Plain number boxes, checked in _settings(): a bounded box would silently clamp a value typed
         # out of range (bootstrap 10**9 became 5000) instead of saying it is out of range.
-        self.max_pm_error = widgets.FloatText(value=0.0, step=0.05,
-                                                     description="max pm error [mas/yr]",
-                                                     tooltip="largest max(pmra_error, pmdec_error); 0: no cut",
-                                                     style={"description_width": "12.5em"},
-                                                     layout=widgets.Layout(width="19em"), continuous_update=False)
-        self.max_abs_b = widgets.FloatSlider(value=90.0, min=0.0, max=90.0, step=1.0, description="max |b| [deg]",
-                                             continuous_update=False, style={"description_width": "9em"},
-                                             tooltip="Galactic latitude cut; 90: no cut")
-        self.use = widgets.ToggleButtons(options=list(_USES.items()), value=use, description="fit",
-                                         style={"button_width": "135px"})
+        self.max_pm_error = widgets.FloatText(
+            value=0.0,
+            step=0.05,
+            description="max pm error [mas/yr]",
+            tooltip="largest max(pmra_error, pmdec_error); 0: no cut",
+            style={"description_width": "12.5em"},
+            layout=widgets.Layout(width="19em"),
+            continuous_update=False,
+        )
+        self.max_abs_b = widgets.FloatSlider(
+            value=90.0,
+            min=0.0,
+            max=90.0,
+            step=1.0,
+            description="max |b| [deg]",
+            continuous_update=False,
+            style={"description_width": "9em"},
+            tooltip="Galactic latitude cut; 90: no cut",
+        )
+        self.use = widgets.ToggleButtons(
+            options=list(_USES.items()), value=use, description="fit", style={"button_width": "135px"}
+        )
         self.use.add_class("mwkin-use")
         self.robust = widgets.Checkbox(value=False, description="reject outliers (4-sigma clipping)", indent=False)
-        self.bootstrap = widgets.IntText(value=0, step=50, description="bootstrap N",
-                                                continuous_update=False, layout=widgets.Layout(width="14em"))
+        self.bootstrap = widgets.IntText(
+            value=0, step=50, description="bootstrap N", continuous_update=False, layout=widgets.Layout(width="14em")
+        )
         self.seed = 1
-        self.bins_text = widgets.Text(value=", ".join(f"{e:g}" for e in bins), description="bin edges [kpc]",
-                                      continuous_update=False, style={"description_width": "9em"},
-                                      layout=widgets.Layout(width="30em"))
-        self.residual = widgets.Dropdown(options=list(_RESIDUALS), value="mu_l*", description="residual of",
-                                         layout=widgets.Layout(width="14em"))
-        self.residual_against = widgets.ToggleButtons(options=list(_AGAINST), value="l", description="against",
-                                                      style={"button_width": "80px"})
-        for control in (self.distance_range, self.max_pm_error, self.max_abs_b, self.use, self.robust,
-                        self.bootstrap, self.bins_text):
+        self.bins_text = widgets.Text(
+            value=", ".join(f"{e:g}" for e in bins),
+            description="bin edges [kpc]",
+            continuous_update=False,
+            style={"description_width": "9em"},
+            layout=widgets.Layout(width="30em"),
+        )
+        self.residual = widgets.Dropdown(
+            options=list(_RESIDUALS), value="mu_l*", description="residual of", layout=widgets.Layout(width="14em")
+        )
+        self.residual_against = widgets.ToggleButtons(
+            options=list(_AGAINST), value="l", description="against", style={"button_width": "80px"}
+        )
+        for control in (
+            self.distance_range,
+            self.max_pm_error,
+            self.max_abs_b,
+            self.use,
+            self.robust,
+            self.bootstrap,
+            self.bins_text,
+        ):
             control.observe(lambda _: self.refresh(), "value")
         for control in (self.residual, self.residual_against):
             control.observe(lambda _: self._redraw_residuals(), "value")
@@ -320,32 +385,48 @@ class OortFitter(SampleInput, AnalysisWidget):
         self.bins_note = widgets.HTML(f'<div style="max-width:380px;font-size:11px">{html.escape(BINS_NOTE)}</div>')
         self.bins_note.add_class("mwkin-bins-note")
 
-        settings = widgets.VBox([
-            self.loader, self.distance_controls, self.distance_range,
-            widgets.HBox([self.max_pm_error, self.max_abs_b]), self.use,
-            widgets.HBox([self.robust, self.bootstrap]), self.bins_text,
-        ])
+        settings = widgets.VBox(
+            [
+                self.loader,
+                self.distance_controls,
+                self.distance_range,
+                widgets.HBox([self.max_pm_error, self.max_abs_b]),
+                self.use,
+                widgets.HBox([self.robust, self.bootstrap]),
+                self.bins_text,
+            ]
+        )
         self._mu_box = widgets.HBox([self.mu_view, widgets.VBox([self.mu_fig, self.mu_legend])])
-        self._residual_box = widgets.HBox([
-            widgets.VBox([widgets.HBox([self.residual, self.residual_against]), self.residual_view]),
-            widgets.VBox([self.bins_fig, self.bins_legend, self.bins_status, self.bins_note])])
+        self._residual_box = widgets.HBox(
+            [
+                widgets.VBox([widgets.HBox([self.residual, self.residual_against]), self.residual_view]),
+                widgets.VBox([self.bins_fig, self.bins_legend, self.bins_status, self.bins_note]),
+            ]
+        )
         self.children = [
             widgets.HBox([settings, self.table_html]),
             self._mu_box,
             self.vr_box,
             self._residual_box,
-            self.counts_label, self.caveat_label, self.notes_html, self.status_line, self.provenance_label,
-            widgets.HBox([self.code_button]), self.code_area,
+            self.counts_label,
+            self.caveat_label,
+            self.notes_html,
+            self.status_line,
+            self.provenance_label,
+            widgets.HBox([self.code_button]),
+            self.code_area,
         ]
         self.frame_state.observe(lambda _: self.refresh(), names=["R0", "z_sun", "v_sun"])
-        self.potential_state.observe(lambda _: self.refresh(),
-                                     names=["preset", "parameters", "match_frame_vc", "solar_V"])
+        self.potential_state.observe(
+            lambda _: self.refresh(), names=["preset", "parameters", "match_frame_vc", "solar_V"]
+        )
 
     # ------------------------------------------------------------------ plots
     def _build_plots(self, use_canvas):
         self.mu_view = SampleView("mu_l* against l: fitted stars", use_canvas=use_canvas, selection_mode="pan")
-        self.mu_fig, xs, ys = small_figure("mu_l*: binned medians and the model", "l [deg]", "mu_l* [mas/yr]",
-                                           width="420px", x_range=(0, 360))
+        self.mu_fig, xs, ys = small_figure(
+            "mu_l*: binned medians and the model", "l [deg]", "mu_l* [mas/yr]", width="420px", x_range=(0, 360)
+        )
         self.mu_band = band_mark(xs, ys, COLOURS["band"])
         self.mu_bars = error_bar_mark(xs, ys, COLOURS["median"])
         self.mu_medians = points_mark(xs, ys, COLOURS["median"], size=25, label="data median")
@@ -355,8 +436,9 @@ class OortFitter(SampleInput, AnalysisWidget):
         self.mu_legend = widgets.HTML()
 
         self.vr_view = SampleView("v_r against l: fitted stars", use_canvas=use_canvas, selection_mode="pan")
-        self.vr_fig, xs, ys = small_figure("v_r: binned medians and the model", "l [deg]", "v_r [km/s]",
-                                           width="420px", x_range=(0, 360))
+        self.vr_fig, xs, ys = small_figure(
+            "v_r: binned medians and the model", "l [deg]", "v_r [km/s]", width="420px", x_range=(0, 360)
+        )
         self.vr_band = band_mark(xs, ys, COLOURS["band"])
         self.vr_bars = error_bar_mark(xs, ys, COLOURS["median"])
         self.vr_medians = points_mark(xs, ys, COLOURS["median"], size=25, label="data median")
@@ -369,8 +451,7 @@ class OortFitter(SampleInput, AnalysisWidget):
 
         self.residual_view = SampleView("normalised residuals", use_canvas=use_canvas, selection_mode="pan")
 
-        self.bins_fig, xs, ys = small_figure("A and B in distance bins", "distance [kpc]", "[km/s/kpc]",
-                                             width="380px")
+        self.bins_fig, xs, ys = small_figure("A and B in distance bins", "distance [kpc]", "[km/s/kpc]", width="380px")
         self.bins_A = points_mark(xs, ys, COLOURS["A"], size=40, label="A")
         self.bins_B = points_mark(xs, ys, COLOURS["B"], size=40, label="B", marker="square")
         self.bins_A_bars = error_bar_mark(xs, ys, COLOURS["A"])
@@ -378,10 +459,17 @@ class OortFitter(SampleInput, AnalysisWidget):
         self.pot_A = line_mark(xs, ys, COLOURS["A"], label="A of the potential", dashed=True, width=1.5)
         self.pot_B = line_mark(xs, ys, COLOURS["B"], label="B of the potential", dashed=True, width=1.5)
         self.bins_fig.marks = [self.bins_A_bars, self.bins_B_bars, self.pot_A, self.pot_B, self.bins_A, self.bins_B]
-        self.bins_legend = widgets.HTML(legend_html([
-            (COLOURS["A"], "point", "A"), (COLOURS["B"], "square", "B"),
-            (COLOURS["A"], "dashed", "A of the potential"), (COLOURS["B"], "dashed", "B of the potential")],
-            width="380px"))
+        self.bins_legend = widgets.HTML(
+            legend_html(
+                [
+                    (COLOURS["A"], "point", "A"),
+                    (COLOURS["B"], "square", "B"),
+                    (COLOURS["A"], "dashed", "A of the potential"),
+                    (COLOURS["B"], "dashed", "B of the potential"),
+                ],
+                width="380px",
+            )
+        )
 
     # ------------------------------------------------------------------ sample
     def _set_sample(self, stars, source):
@@ -395,8 +483,15 @@ class OortFitter(SampleInput, AnalysisWidget):
         self._geometry = _SampleGeometry(stars) if stars is not None else None
 
     def _result_views(self):
-        return [self.table_html, self._mu_box, self.vr_box, self._residual_box, self.counts_label,
-                self.caveat_label, self.notes_html]
+        return [
+            self.table_html,
+            self._mu_box,
+            self.vr_box,
+            self._residual_box,
+            self.counts_label,
+            self.caveat_label,
+            self.notes_html,
+        ]
 
     def _runners(self):
         return [self._runner, self._bins_runner]
@@ -411,40 +506,67 @@ class OortFitter(SampleInput, AnalysisWidget):
 
     def _settings(self):
         """The fit's settings as typed, with the range checks a config gets too (ValueError naming them)."""
-        settings = {key: setting.get(self) for key, setting in self.SETTINGS.items() if key not in ("sample", "distance")}
+        settings = {
+            key: setting.get(self) for key, setting in self.SETTINGS.items() if key not in ("sample", "distance")
+        }
         _check_bootstrap(self, settings["bootstrap"])
         _check_max_pm_error(self, settings["max_pm_error"])
         return settings
 
     def _request(self):
         if self._stars is None:
-            raise ValueError("no sample: pass sample=... (a table, DataFrame or path) or load a file"
-                             + (f"; {self._note}" if self._note else ""))
+            raise ValueError(
+                "no sample: pass sample=... (a table, DataFrame or path) or load a file"
+                + (f"; {self._note}" if self._note else "")
+            )
         settings = self._settings()
         frame = self.frame_state.frame
         controls = self.distance_controls
         return {
-            "stars": self._stars, "source": self._source, "geometry": self._geometry, "frame": frame,
-            "potential": self.potential_state.potential_for(frame), "potential_config": self.potential_state.config,
-            "distance": controls.choice(), "distance_code": controls.code(), "settings": settings,
+            "stars": self._stars,
+            "source": self._source,
+            "geometry": self._geometry,
+            "frame": frame,
+            "potential": self.potential_state.potential_for(frame),
+            "potential_config": self.potential_state.config,
+            "distance": controls.choice(),
+            "distance_code": controls.code(),
+            "settings": settings,
             "bins": parse_bins(settings["bins"]),
             "quality": self._geometry.quality(settings["max_pm_error"], settings["max_abs_b"]),
-            "caveat": inverse_parallax_caveat(self._stars, controls.method.value, controls.min_snr.value,
-                                              controls.zero_point.value),
+            "caveat": inverse_parallax_caveat(
+                self._stars, controls.method.value, controls.min_snr.value, controls.zero_point.value
+            ),
         }
 
     def _compute(self, request):
         from ..oort import fit_oort
 
         s = request["settings"]
-        return fit_oort(request["stars"], request["frame"], use=s["use"], distance=request["distance"],
-                        distance_range=tuple(s["distance_range"]), quality=request["quality"], robust=s["robust"],
-                        bootstrap=s["bootstrap"], seed=s["seed"], potential=request["potential"])
+        return fit_oort(
+            request["stars"],
+            request["frame"],
+            use=s["use"],
+            distance=request["distance"],
+            distance_range=tuple(s["distance_range"]),
+            quality=request["quality"],
+            robust=s["robust"],
+            bootstrap=s["bootstrap"],
+            seed=s["seed"],
+            potential=request["potential"],
+        )
 
     def _bins_key(self, request):
         s = request["settings"]
-        return (request["distance"], s["use"], s["max_pm_error"], s["max_abs_b"], s["robust"],
-                tuple(request["bins"]), request["source"].fingerprint)
+        return (
+            request["distance"],
+            s["use"],
+            s["max_pm_error"],
+            s["max_abs_b"],
+            s["robust"],
+            tuple(request["bins"]),
+            request["source"].fingerprint,
+        )
 
     def _show(self, fit, request):
         self._fit_arrays = self._arrays_for(fit, request)
@@ -460,11 +582,13 @@ class OortFitter(SampleInput, AnalysisWidget):
         self.table_html.value = parameter_table_html(fit)
         self.counts_label.value = self._counts_html(fit)
         caveat = request["caveat"]
-        self.caveat_label.value = (f'<div style="color:#8a4b00;font-size:12px">{html.escape(caveat)}</div>'
-                                   if caveat else "")
-        self.notes_html.value = ('<details><summary style="font-size:12px">notes on this fit</summary><ul '
-                                 'style="font-size:11px">' + "".join(f"<li>{html.escape(n)}</li>" for n in fit.notes)
-                                 + "</ul></details>")
+        self.caveat_label.value = (
+            f'<div style="color:#8a4b00;font-size:12px">{html.escape(caveat)}</div>' if caveat else ""
+        )
+        self.notes_html.value = (
+            '<details><summary style="font-size:12px">notes on this fit</summary><ul '
+            'style="font-size:11px">' + "".join(f"<li>{html.escape(n)}</li>" for n in fit.notes) + "</ul></details>"
+        )
 
     def _arrays_for(self, fit, request):
         """Per-row arrays (NaN where a row was not fitted) for the plots and the export."""
@@ -488,10 +612,24 @@ class OortFitter(SampleInput, AnalysisWidget):
         a = self._fit_arrays
         edges = np.arange(0.0, 360.0 + L_BIN_DEG / 2, L_BIN_DEG)
         l_curve, mu_curve, vr_curve = _model_curves(fit, a["median_distance"])
-        self.mu_view.set_data(a["l"], a["mu_l_star"], a["distance"], x_label="l", x_unit="deg", y_label="mu_l*",
-                              y_unit="mas/yr", c_label="distance", c_unit="kpc")
-        self._draw_binned(edges, a["l"], a["mu_l_star"], a["mu_model"], (self.mu_band, self.mu_bars, self.mu_medians,
-                                                                         self.mu_model_stars))
+        self.mu_view.set_data(
+            a["l"],
+            a["mu_l_star"],
+            a["distance"],
+            x_label="l",
+            x_unit="deg",
+            y_label="mu_l*",
+            y_unit="mas/yr",
+            c_label="distance",
+            c_unit="kpc",
+        )
+        self._draw_binned(
+            edges,
+            a["l"],
+            a["mu_l_star"],
+            a["mu_model"],
+            (self.mu_band, self.mu_bars, self.mu_medians, self.mu_model_stars),
+        )
         with self.mu_model.hold_sync():
             self.mu_model.x, self.mu_model.y = l_curve, mu_curve
         self.mu_model.labels = [f"model, b = 0, d = {a['median_distance']:.2f} kpc"]
@@ -499,10 +637,24 @@ class OortFitter(SampleInput, AnalysisWidget):
         has_vr = bool(np.isfinite(a["v_r"]).any())
         self.vr_box.layout.display = None if has_vr else "none"
         if has_vr:
-            self.vr_view.set_data(a["l"], a["v_r"], a["distance"], x_label="l", x_unit="deg", y_label="v_r",
-                                  y_unit="km/s", c_label="distance", c_unit="kpc")
-            self._draw_binned(edges, a["l"], a["v_r"], a["vr_model"], (self.vr_band, self.vr_bars, self.vr_medians,
-                                                                       self.vr_model_stars))
+            self.vr_view.set_data(
+                a["l"],
+                a["v_r"],
+                a["distance"],
+                x_label="l",
+                x_unit="deg",
+                y_label="v_r",
+                y_unit="km/s",
+                c_label="distance",
+                c_unit="kpc",
+            )
+            self._draw_binned(
+                edges,
+                a["l"],
+                a["v_r"],
+                a["vr_model"],
+                (self.vr_band, self.vr_bars, self.vr_medians, self.vr_model_stars),
+            )
             with self.vr_model.hold_sync():
                 self.vr_model.x, self.vr_model.y = l_curve, vr_curve
             self.vr_model.labels = [f"model, b = 0, d = {a['median_distance']:.2f} kpc"]
@@ -532,8 +684,14 @@ class OortFitter(SampleInput, AnalysisWidget):
         name = self.residual.value
         against = self.residual_against.value
         x = a["l"] if against == "l" else a["distance"]
-        self.residual_view.set_data(x, a[f"z_{name}"], x_label=against, x_unit="deg" if against == "l" else "kpc",
-                                    y_label=f"(data - model) / sigma of {name}", y_unit="")
+        self.residual_view.set_data(
+            x,
+            a[f"z_{name}"],
+            x_label=against,
+            x_unit="deg" if against == "l" else "kpc",
+            y_label=f"(data - model) / sigma of {name}",
+            y_unit="",
+        )
         self.residual_view.set_title(f"normalised residuals of {name} against {against}")
 
     # ------------------------------------------------------------------ distance bins (second worker)
@@ -553,8 +711,9 @@ class OortFitter(SampleInput, AnalysisWidget):
         rows = np.flatnonzero(keep)
         subset = stars[rows]
         subset.meta = stars.meta
-        return fit_in_distance_bins(subset, request["bins"], request["frame"], use=s["use"],
-                                    distance=request["distance"], robust=s["robust"])
+        return fit_in_distance_bins(
+            subset, request["bins"], request["frame"], use=s["use"], distance=request["distance"], robust=s["robust"]
+        )
 
     def _deliver_bins(self, table, job, seconds):
         self._bins_cache[job["key"]] = table
@@ -589,21 +748,24 @@ class OortFitter(SampleInput, AnalysisWidget):
                 else:
                     mark.x, mark.y = np.zeros(0), np.zeros(0)
         n_empty = int(np.count_nonzero(~np.isfinite(np.asarray(bins["A"], dtype=float))))
-        self.bins_status.value = (f"<small>{len(bins)} bins" + (f", {n_empty} without a constrained A" if n_empty
-                                                               else "") + "</small>")
+        self.bins_status.value = (
+            f"<small>{len(bins)} bins" + (f", {n_empty} without a constrained A" if n_empty else "") + "</small>"
+        )
 
     # ------------------------------------------------------------------ text
     def _counts_html(self, fit):
         dropped = ", ".join(f"{k.replace('_', ' ')}: {v}" for k, v in fit.n_dropped.items()) or "none"
         text = f"{fit.n_used} stars fitted ({fit.n_data} data); left out: {dropped}"
         if fit.distance_reasons:
-            text += " (no distance: " + ", ".join(f"{k.replace('_', ' ')}: {v}"
-                                                  for k, v in fit.distance_reasons.items()) + ")"
+            text += (
+                " (no distance: "
+                + ", ".join(f"{k.replace('_', ' ')}: {v}" for k, v in fit.distance_reasons.items())
+                + ")"
+            )
         return f"<small>{html.escape(text)}</small>"
 
     def _summary(self, fit):
-        text = (f"A = {_pm(fit.A, fit.errors['A'])}, B = {_pm(fit.B, fit.errors['B'])} km/s/kpc "
-                f"from {fit.n_used} stars")
+        text = f"A = {_pm(fit.A, fit.errors['A'])}, B = {_pm(fit.B, fit.errors['B'])} km/s/kpc from {fit.n_used} stars"
         return f"{text}; {self._note}" if self._note else text
 
     def _provenance_for(self, fit, request):
@@ -611,10 +773,13 @@ class OortFitter(SampleInput, AnalysisWidget):
 
         s = request["settings"]
         lo, hi = s["distance_range"]
-        extra = (f"fit: {s['use'].replace('_', ' ')}, {lo:g}-{hi:g} kpc, robust={s['robust']}, "
-                 f"bootstrap={s['bootstrap']}; sample: {request['source'].describe()}")
-        return provenance_line(frame=request["frame"], potential=request["potential"], distance=request["distance"],
-                               extra=extra)
+        extra = (
+            f"fit: {s['use'].replace('_', ' ')}, {lo:g}-{hi:g} kpc, robust={s['robust']}, "
+            f"bootstrap={s['bootstrap']}; sample: {request['source'].describe()}"
+        )
+        return provenance_line(
+            frame=request["frame"], potential=request["potential"], distance=request["distance"], extra=extra
+        )
 
     # ------------------------------------------------------------------ sharing
     def _code(self, request):
@@ -623,8 +788,10 @@ class OortFitter(SampleInput, AnalysisWidget):
         quality = "None"
         cuts = []
         if s["max_abs_b"] < 90.0:
-            lines += ["from mwkin.oort.sample import sky_motions",
-                      "l, b, mu_l, mu_b = sky_motions(stars)  # deg, deg, mas/yr, mas/yr (the fit's own rotation)"]
+            lines += [
+                "from mwkin.oort.sample import sky_motions",
+                "l, b, mu_l, mu_b = sky_motions(stars)  # deg, deg, mas/yr, mas/yr (the fit's own rotation)",
+            ]
             cuts.append(f"(np.abs(b) <= {s['max_abs_b']!r})")
         if s["max_pm_error"] > 0:
             cuts.append(f"(np.fmax(stars['pmra_error'].value, stars['pmdec_error'].value) <= {s['max_pm_error']!r})")
@@ -651,18 +818,23 @@ class OortFitter(SampleInput, AnalysisWidget):
             panels += [panel_from_view(self.vr_view), panel_from_figure(self.vr_fig)]
         panels.append(panel_from_view(self.residual_view))
         if fit.bins is not None:
-            panels.append(panel_from_figure(
-                self.bins_fig, notes=["where A and B drift with distance, the first-order model stops holding"]))
+            panels.append(
+                panel_from_figure(
+                    self.bins_fig, notes=["where A and B drift with distance, the first-order model stops holding"]
+                )
+            )
         return panels
 
 
 def _binned_legend(median_distance):
-    return legend_html([
-        (COLOURS["median"], "point", f"median in {L_BIN_DEG:g}-deg bins, with its error"),
-        (COLOURS["band"], "band", "16-84 % spread"),
-        (COLOURS["model"], "line", f"model at b = 0 and the median distance {median_distance:.2f} kpc"),
-        (COLOURS["potential"], "dashed", "median of the model at each star's own l, b, d"),
-    ])
+    return legend_html(
+        [
+            (COLOURS["median"], "point", f"median in {L_BIN_DEG:g}-deg bins, with its error"),
+            (COLOURS["band"], "band", "16-84 % spread"),
+            (COLOURS["model"], "line", f"model at b = 0 and the median distance {median_distance:.2f} kpc"),
+            (COLOURS["potential"], "dashed", "median of the model at each star's own l, b, d"),
+        ]
+    )
 
 
 def _pm(value, error):
@@ -671,9 +843,22 @@ def _pm(value, error):
     return f"{value:.2f} ± {error:.2f}" if np.isfinite(error) else f"{value:.2f}"
 
 
-_ROW_UNITS = {"A": "km/s/kpc", "B": "km/s/kpc", "C": "km/s/kpc", "K": "km/s/kpc", "U": "km/s", "V": "km/s",
-              "W": "km/s", "Omega0": "km/s/kpc", "dV/dR": "km/s/kpc", "V0": "km/s", "kappa": "km/s/kpc",
-              "sigma_U": "km/s", "sigma_V": "km/s", "sigma_W": "km/s"}
+_ROW_UNITS = {
+    "A": "km/s/kpc",
+    "B": "km/s/kpc",
+    "C": "km/s/kpc",
+    "K": "km/s/kpc",
+    "U": "km/s",
+    "V": "km/s",
+    "W": "km/s",
+    "Omega0": "km/s/kpc",
+    "dV/dR": "km/s/kpc",
+    "V0": "km/s",
+    "kappa": "km/s/kpc",
+    "sigma_U": "km/s",
+    "sigma_V": "km/s",
+    "sigma_W": "km/s",
+}
 _POTENTIAL_KEYS = {"A": "A", "B": "B", "Omega0": "Omega", "kappa": "kappa"}
 
 
@@ -704,7 +889,9 @@ def parameter_table_html(fit):
         rows.append("<tr>" + "".join(f'<td style="padding:1px 8px">{c}</td>' for c in cells) + "</tr>")
     caption = ""
     if pot:
-        caption = (f"<caption style='font-size:11px;caption-side:bottom'>potential: {html.escape(fit.potential_description)}"
-                   f" at R = {pot['R_kpc']:.3f} kpc</caption>")
+        caption = (
+            f"<caption style='font-size:11px;caption-side:bottom'>potential: {html.escape(fit.potential_description)}"
+            f" at R = {pot['R_kpc']:.3f} kpc</caption>"
+        )
     header = "<tr>" + "".join(f'<th style="padding:1px 8px;text-align:left">{h}</th>' for h in head) + "</tr>"
     return f'<table class="mwkin-oort-parameters" style="font-size:12px">{caption}{header}{"".join(rows)}</table>'

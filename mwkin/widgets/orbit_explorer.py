@@ -37,26 +37,49 @@ from .views import GalaxyView
 __all__ = ["OrbitExplorer", "OrbitView", "DEFAULT_STAR"]
 
 #: The star shown when none is given: a thin-disc-like star about 1 kpc away (made up for the demo).
-DEFAULT_STAR = {"ra": 120.0, "dec": -30.0, "parallax": 1.0, "pmra": -4.0, "pmdec": 3.0,
-                "radial_velocity": 15.0, "parallax_error": 0.04, "pmra_error": 0.05, "pmdec_error": 0.05,
-                "radial_velocity_error": 1.0, "distance": 1.0, "distance_error": 0.04}
+DEFAULT_STAR = {
+    "ra": 120.0,
+    "dec": -30.0,
+    "parallax": 1.0,
+    "pmra": -4.0,
+    "pmdec": 3.0,
+    "radial_velocity": 15.0,
+    "parallax_error": 0.04,
+    "pmra_error": 0.05,
+    "pmdec_error": 0.05,
+    "radial_velocity_error": 1.0,
+    "distance": 1.0,
+    "distance_error": 0.04,
+}
 
 #: Typed observables: key -> (label with unit, default slider range or None).
 _OBSERVABLES = {
-    "ra": ("ra [deg]", None), "dec": ("dec [deg]", None),
-    "parallax": ("parallax [mas]", None), "distance": ("distance [kpc]", None),
-    "pmra": ("pmra [mas/yr]", (-100.0, 100.0, 0.1)), "pmdec": ("pmdec [mas/yr]", (-100.0, 100.0, 0.1)),
+    "ra": ("ra [deg]", None),
+    "dec": ("dec [deg]", None),
+    "parallax": ("parallax [mas]", None),
+    "distance": ("distance [kpc]", None),
+    "pmra": ("pmra [mas/yr]", (-100.0, 100.0, 0.1)),
+    "pmdec": ("pmdec [mas/yr]", (-100.0, 100.0, 0.1)),
     "radial_velocity": ("radial_velocity [km/s]", (-400.0, 400.0, 0.5)),
 }
-_OBS_ERRORS = {"parallax_error": "σ parallax [mas]", "distance_error": "σ distance [kpc]",
-               "pmra_error": "σ pmra [mas/yr]", "pmdec_error": "σ pmdec [mas/yr]",
-               "radial_velocity_error": "σ radial_velocity [km/s]"}
+_OBS_ERRORS = {
+    "parallax_error": "σ parallax [mas]",
+    "distance_error": "σ distance [kpc]",
+    "pmra_error": "σ pmra [mas/yr]",
+    "pmdec_error": "σ pmdec [mas/yr]",
+    "radial_velocity_error": "σ radial_velocity [km/s]",
+}
 #: Typed Galactocentric phase space (astropy's Galactocentric axes). vx and vy have no slider: the
 #: velocity arrow of the face-on view is their live control (a slider would also echo each dragged
 #: value back rounded to its step, racing the drag).
-_PHASE_SPACE = {"x": ("x [kpc]", None), "y": ("y [kpc]", None), "z": ("z [kpc]", None),
-                "vx": ("vx [km/s]", None), "vy": ("vy [km/s]", None),
-                "vz": ("vz [km/s]", (-300.0, 300.0, 0.5))}
+_PHASE_SPACE = {
+    "x": ("x [kpc]", None),
+    "y": ("y [kpc]", None),
+    "z": ("z [kpc]", None),
+    "vx": ("vx [km/s]", None),
+    "vy": ("vy [km/s]", None),
+    "vz": ("vz [km/s]", (-300.0, 300.0, 0.5)),
+}
 DEFAULT_PHASE_SPACE = {"x": -8.0, "y": 0.5, "z": 0.1, "vx": 10.0, "vy": 230.0, "vz": 5.0}
 
 _SOURCES = {"table": "table row", "observables": "observables", "phase_space": "phase space"}
@@ -79,12 +102,13 @@ _KEY_HTML = (
     f"<span style='color:{_COLOURS['centre']}'>✚ Galactic centre</span> &nbsp; "
     f"<span style='color:{_COLOURS['star']}'>● star now</span> &nbsp; "
     f"<span style='color:{_COLOURS['rotation']}'>↻ sense of rotation (clockwise seen from the north "
-    "Galactic pole; toward you in the meridional view)</span></small>")
+    "Galactic pole; toward you in the meridional view)</span></small>"
+)
 
-_FACE_PX = 420          # face-on GalaxyView: square (the view itself keeps equal aspect)
+_FACE_PX = 420  # face-on GalaxyView: square (the view itself keeps equal aspect)
 #: Arrow scale of the face-on view: a 250 km/s arrow spans this fraction of the view's half-width.
 _ARROW_FRACTION = 0.3
-_MER_W, _MER_H = _FACE_PX, 240   # meridional figure, under the face-on view
+_MER_W, _MER_H = _FACE_PX, 240  # meridional figure, under the face-on view
 _MARGIN = 45
 
 
@@ -173,33 +197,56 @@ class OrbitExplorer(AnalysisWidget):
 
     #: The config's settings (besides the shared frame and potential), in the order they are applied.
     SETTINGS = {
-        "star": Setting(lambda w: w._star_setting(), lambda w, star: w._apply_star_setting(star),
-                        check=lambda w, star: _checked_star(w, star)),
-        "t_forward_gyr": Setting(lambda w: float(w.time_fields["t_forward"].value),
-                                 lambda w, value: w.time_fields["t_forward"].show(float(value)), check=_finite_gyr),
-        "t_backward_gyr": Setting(lambda w: float(w.time_fields["t_backward"].value),
-                                  lambda w, value: w.time_fields["t_backward"].show(float(value)), check=_finite_gyr),
+        "star": Setting(
+            lambda w: w._star_setting(),
+            lambda w, star: w._apply_star_setting(star),
+            check=lambda w, star: _checked_star(w, star),
+        ),
+        "t_forward_gyr": Setting(
+            lambda w: float(w.time_fields["t_forward"].value),
+            lambda w, value: w.time_fields["t_forward"].show(float(value)),
+            check=_finite_gyr,
+        ),
+        "t_backward_gyr": Setting(
+            lambda w: float(w.time_fields["t_backward"].value),
+            lambda w, value: w.time_fields["t_backward"].show(float(value)),
+            check=_finite_gyr,
+        ),
         "n_points": control_setting("n_points", types=(int,), convert=int),
         "cloud": control_setting("cloud_toggle", types=(bool,), convert=bool),
         "n_cloud": control_setting("n_cloud", types=(int,), convert=int, check=within_control("n_cloud")),
         "seed": Setting(lambda w: w._seed, lambda w, value: setattr(w, "_seed", int(value)), types=(int,)),
     }
 
-    def __init__(self, frame=None, potential=None, star=None, *, stars=None, row=0, t_forward=1.0,
-                 t_backward=0.0, n_points=2001, n_cloud=30, seed=1, threaded=True, **kwargs):
+    def __init__(
+        self,
+        frame=None,
+        potential=None,
+        star=None,
+        *,
+        stars=None,
+        row=0,
+        t_forward=1.0,
+        t_backward=0.0,
+        n_points=2001,
+        n_cloud=30,
+        seed=1,
+        threaded=True,
+        **kwargs,
+    ):
         super().__init__(frame, potential, threaded=threaded, **kwargs)
-        with self._quiet:   # building: one computation at the end
+        with self._quiet:  # building: one computation at the end
             table_refused = self._build(star, stars, row, t_forward, t_backward, n_points, n_cloud, seed)
         self.frame_state.observe(self._inputs_changed, ["R0", "z_sun", "v_sun"])
         self.potential_state.observe(self._inputs_changed, ["preset", "parameters", "match_frame_vc", "solar_V"])
-        if not table_refused:   # else the status line keeps saying why the table was not used
+        if not table_refused:  # else the status line keeps saying why the table was not used
             self.refresh()
 
     def _build(self, star, stars, row, t_forward, t_backward, n_points, n_cloud, seed):
         """Make the inputs, views and layout; returns True if a table was given and refused."""
         self._stars = None
         self._seed = int(seed)
-        self._drawn = None        # the extent of what the face-on view shows (to widen it after a drag)
+        self._drawn = None  # the extent of what the face-on view shows (to widen it after a drag)
         star = dict(star or {})
         if star and set(star) & set(_PHASE_SPACE) and not set(star) & {"ra", "dec"}:
             source, obs, phase = "phase_space", dict(DEFAULT_STAR), {**DEFAULT_PHASE_SPACE, **star}
@@ -221,39 +268,66 @@ class OrbitExplorer(AnalysisWidget):
         self.readout.add_class("mwkin-orbit-parameters")
         self.drag_note = widgets.HTML()
         self.drag_note.add_class("mwkin-drag-note")
-        self.restore_button = widgets.Button(description="back to the star as given", icon="undo",
-                                             tooltip="undo the dragged velocity: use the star as it was "
-                                                     "given before the first drag",
-                                             layout=widgets.Layout(width="auto", display="none"))
+        self.restore_button = widgets.Button(
+            description="back to the star as given",
+            icon="undo",
+            tooltip="undo the dragged velocity: use the star as it was given before the first drag",
+            layout=widgets.Layout(width="auto", display="none"),
+        )
         self.restore_button.add_class("mwkin-restore-star")
         self.restore_button.on_click(lambda _: self.restore_star())
 
-        left = widgets.VBox([self.source, self.drag_note, self.restore_button, self.table_box,
-                             self.observables_box, self.phase_box, self.time_box, self.cloud_box],
-                            layout=widgets.Layout(width="30em", flex="0 0 auto"))
+        left = widgets.VBox(
+            [
+                self.source,
+                self.drag_note,
+                self.restore_button,
+                self.table_box,
+                self.observables_box,
+                self.phase_box,
+                self.time_box,
+                self.cloud_box,
+            ],
+            layout=widgets.Layout(width="30em", flex="0 0 auto"),
+        )
         self.key = widgets.HTML(_KEY_HTML)
         self.key.add_class("mwkin-orbit-key")
-        plots = widgets.VBox([self.galaxy_view, self.meridional_figure, self.key, self.readout],
-                             layout=widgets.Layout(width=f"{_FACE_PX + 10}px", flex="0 0 auto"))
+        plots = widgets.VBox(
+            [self.galaxy_view, self.meridional_figure, self.key, self.readout],
+            layout=widgets.Layout(width=f"{_FACE_PX + 10}px", flex="0 0 auto"),
+        )
         # Fixed widths: a column that shrank or grew with its content (the note shown at the first drag)
         # would move the face-on view under the pointer in the middle of a drag.
         self._plots_box = plots
-        self.children = [widgets.HBox([left, plots]), self.status_line,
-                         widgets.HBox([self.code_button]), self.code_area, self.provenance_label]
+        self.children = [
+            widgets.HBox([left, plots]),
+            self.status_line,
+            widgets.HBox([self.code_button]),
+            self.code_area,
+            self.provenance_label,
+        ]
         self.add_class("mwkin-orbit-explorer")
         return table_refused
 
     # ================================================================== inputs
     def _build_inputs(self, obs, phase, distance_input, t_forward, t_backward, n_points, n_cloud):
         changed = self._inputs_changed
-        self.source = widgets.ToggleButtons(options=[(_SOURCES[k], k) for k in ("observables", "phase_space")],
-                                            description="Star from", style={"description_width": "6em"})
+        self.source = widgets.ToggleButtons(
+            options=[(_SOURCES[k], k) for k in ("observables", "phase_space")],
+            description="Star from",
+            style={"description_width": "6em"},
+        )
         self.source.add_class("mwkin-star-source")
         self.source.observe(self._source_changed, "value")
 
-        self.row_selector = widgets.BoundedIntText(value=0, min=0, max=0, description="row",
-                                                   style={"description_width": "9em"},
-                                                   layout=widgets.Layout(width="17em"))
+        self.row_selector = widgets.BoundedIntText(
+            value=0,
+            min=0,
+            max=0,
+            description="row",
+            style={"description_width": "9em"},
+            layout=widgets.Layout(width="17em"),
+        )
         self.row_selector.add_class("mwkin-row")
         self.row_selector.observe(changed, "value")
         self.row_label = widgets.HTML()
@@ -265,41 +339,69 @@ class OrbitExplorer(AnalysisWidget):
 
         self.observable_fields = {k: field(k, lab, obs[k], rng) for k, (lab, rng) in _OBSERVABLES.items()}
         self.error_fields = {k: field(k, lab, obs.get(k, 0.0), None) for k, lab in _OBS_ERRORS.items()}
-        self.distance_input = widgets.ToggleButtons(options=[("parallax", "parallax"), ("distance", "distance")],
-                                                    value=distance_input, description="distance from",
-                                                    style={"description_width": "9em"})
+        self.distance_input = widgets.ToggleButtons(
+            options=[("parallax", "parallax"), ("distance", "distance")],
+            value=distance_input,
+            description="distance from",
+            style={"description_width": "9em"},
+        )
         self.distance_input.add_class("mwkin-distance-input")
         self.distance_input.observe(self._distance_input_changed, "value")
         f, e = self.observable_fields, self.error_fields
-        self.observables_box = widgets.VBox([
-            f["ra"], f["dec"], self.distance_input, f["parallax"], f["distance"], f["pmra"], f["pmdec"],
-            f["radial_velocity"], widgets.HTML("<small>uncertainties (1σ, for the orbit cloud)</small>"),
-            e["parallax_error"], e["distance_error"], e["pmra_error"], e["pmdec_error"],
-            e["radial_velocity_error"]])
+        self.observables_box = widgets.VBox(
+            [
+                f["ra"],
+                f["dec"],
+                self.distance_input,
+                f["parallax"],
+                f["distance"],
+                f["pmra"],
+                f["pmdec"],
+                f["radial_velocity"],
+                widgets.HTML("<small>uncertainties (1σ, for the orbit cloud)</small>"),
+                e["parallax_error"],
+                e["distance_error"],
+                e["pmra_error"],
+                e["pmdec_error"],
+                e["radial_velocity_error"],
+            ]
+        )
         self.phase_fields = {k: field(k, lab, phase[k], rng) for k, (lab, rng) in _PHASE_SPACE.items()}
         self.phase_box = widgets.VBox(
             [widgets.HTML("<small>Galactocentric Cartesian (astropy axes: the Sun near x = -R0)</small>")]
-            + list(self.phase_fields.values()))
+            + list(self.phase_fields.values())
+        )
 
         self.time_fields = {
             "t_forward": field("t_forward", "forward [Gyr]", t_forward, None),
             "t_backward": field("t_backward", "backward [Gyr]", t_backward, None),
         }
-        self.n_points = widgets.IntText(value=int(n_points), description="output points",
-                                        style={"description_width": "9em"}, layout=widgets.Layout(width="17em"),
-                                        continuous_update=False)
+        self.n_points = widgets.IntText(
+            value=int(n_points),
+            description="output points",
+            style={"description_width": "9em"},
+            layout=widgets.Layout(width="17em"),
+            continuous_update=False,
+        )
         self.n_points.add_class("mwkin-n-points")
         self.n_points.observe(changed, "value")
-        self.time_box = widgets.VBox([widgets.HTML("<b>integration time</b>"), *self.time_fields.values(),
-                                      self.n_points])
+        self.time_box = widgets.VBox(
+            [widgets.HTML("<b>integration time</b>"), *self.time_fields.values(), self.n_points]
+        )
 
-        self.cloud_toggle = widgets.Checkbox(value=False, description="show orbits from the uncertainties",
-                                             indent=False)
+        self.cloud_toggle = widgets.Checkbox(
+            value=False, description="show orbits from the uncertainties", indent=False
+        )
         self.cloud_toggle.add_class("mwkin-cloud-toggle")
         self.cloud_toggle.observe(changed, "value")
-        self.n_cloud = widgets.BoundedIntText(value=int(n_cloud), min=2, max=200, description="orbits drawn",
-                                              style={"description_width": "9em"},
-                                              layout=widgets.Layout(width="17em"))
+        self.n_cloud = widgets.BoundedIntText(
+            value=int(n_cloud),
+            min=2,
+            max=200,
+            description="orbits drawn",
+            style={"description_width": "9em"},
+            layout=widgets.Layout(width="17em"),
+        )
         self.n_cloud.add_class("mwkin-n-cloud")
         self.n_cloud.observe(changed, "value")
         self.cloud_box = widgets.VBox([self.cloud_toggle, self.n_cloud])
@@ -345,15 +447,17 @@ class OrbitExplorer(AnalysisWidget):
             return
         values = self._row_values()
         ident = f"source_id {values['source_id']}: " if "source_id" in values else ""
-        shown = ", ".join(f"{k} = {values[k]:.4g}" for k in ("ra", "dec", "parallax", "distance", "pmra",
-                                                             "pmdec", "radial_velocity")
-                          if k in values and np.isfinite(values[k]))
+        shown = ", ".join(
+            f"{k} = {values[k]:.4g}"
+            for k in ("ra", "dec", "parallax", "distance", "pmra", "pmdec", "radial_velocity")
+            if k in values and np.isfinite(values[k])
+        )
         self.row_label.value = f"<small>{html.escape(ident + shown)} (of {len(self._stars)} rows)</small>"
 
     def _row_values(self):
         """The chosen row's numbers (standard units, NaN where masked) and its source_id, by column name."""
         i = int(self.row_selector.value)
-        row = self._stars[i:i + 1]
+        row = self._stars[i : i + 1]
         out = {}
         for name in self._stars.colnames:
             if name == "source_id":
@@ -362,7 +466,7 @@ class OrbitExplorer(AnalysisWidget):
                 continue
             try:
                 values = column_values(row, name)
-            except ValueError:   # a text column: not an input of the orbit
+            except ValueError:  # a text column: not an input of the orbit
                 continue
             if values.size == 1:
                 out[name] = float(values[0])
@@ -396,7 +500,7 @@ class OrbitExplorer(AnalysisWidget):
     def _velocity_dragged(self, vx, vy):
         """``galaxy_view.velocity_xy`` changed: a drag in the browser, or a value set from Python."""
         if self._quiet:
-            return   # the view being told the current star's velocity, not an edit
+            return  # the view being told the current star's velocity, not an edit
         vx, vy = float(vx), float(vy)
         fields = self.phase_fields
         if self.source.value == "phase_space" and (vx, vy) == (float(fields["vx"].value), float(fields["vy"].value)):
@@ -409,7 +513,7 @@ class OrbitExplorer(AnalysisWidget):
                 return
         fields["vx"].show(vx)
         fields["vy"].show(vy)
-        self._refresh(keep_view=True)      # the view must not move under the pointer
+        self._refresh(keep_view=True)  # the view must not move under the pointer
 
     def _convert_to_phase_space(self):
         """Turn the star (observables or table row) into typed phase space with the current frame.
@@ -457,7 +561,8 @@ class OrbitExplorer(AnalysisWidget):
             f"now Galactocentric phase space, converted from the {html.escape(given)} with the frame of "
             f"that moment (R0 = {R0} kpc). A change of the frame now moves the Sun, not the star; the "
             "orbit cloud is off (phase space has no uncertainties). The star as given is kept "
-            "(config['star']['original']).</small>")
+            "(config['star']['original']).</small>"
+        )
         self.restore_button.description = f"back to the {given}"
         self.restore_button.layout.display = None
 
@@ -478,8 +583,12 @@ class OrbitExplorer(AnalysisWidget):
             return {"kind": "phase_space", "values": values, "errors": {}}
         if source == "table":
             row = self._row_values()
-            use = "distance" if ("parallax" not in row or not np.isfinite(row.get("parallax", np.nan))) \
-                and np.isfinite(row.get("distance", np.nan)) else "parallax"
+            use = (
+                "distance"
+                if ("parallax" not in row or not np.isfinite(row.get("parallax", np.nan)))
+                and np.isfinite(row.get("distance", np.nan))
+                else "parallax"
+            )
             where = f"row {int(self.row_selector.value)}"
         else:
             row = {k: float(f.value) for k, f in self.observable_fields.items()}
@@ -492,14 +601,18 @@ class OrbitExplorer(AnalysisWidget):
         for key in keys:
             v = row.get(key, np.nan)
             if not np.isfinite(v):
-                raise ValueError(f"{where}: {key} is missing or not finite ({v}); the orbit needs ra, dec, "
-                                 "parallax or distance, pmra, pmdec and radial_velocity")
+                raise ValueError(
+                    f"{where}: {key} is missing or not finite ({v}); the orbit needs ra, dec, "
+                    "parallax or distance, pmra, pmdec and radial_velocity"
+                )
             values[key] = float(v)
         if not -90.0 <= values["dec"] <= 90.0:
             raise ValueError(f"{where}: dec = {values['dec']} deg is outside [-90, 90] deg")
         if use == "parallax" and not values["parallax"] > 0:
-            raise ValueError(f"{where}: parallax = {values['parallax']} mas is not positive, so 1/parallax gives "
-                             "no distance; type a distance [kpc] instead")
+            raise ValueError(
+                f"{where}: parallax = {values['parallax']} mas is not positive, so 1/parallax gives "
+                "no distance; type a distance [kpc] instead"
+            )
         if use == "distance" and not values["distance"] > 0:
             raise ValueError(f"{where}: distance = {values['distance']} kpc must be positive")
         errors = {}
@@ -522,8 +635,9 @@ class OrbitExplorer(AnalysisWidget):
         for key, value in (("t_forward", t_forward), ("t_backward", t_backward)):
             label = self.time_fields[key].text.description
             if not math.isfinite(value) or value < 0:
-                raise ValueError(f"integration time {label} = {value} must be >= 0 (use the other field "
-                                 "for the other direction)")
+                raise ValueError(
+                    f"integration time {label} = {value} must be >= 0 (use the other field for the other direction)"
+                )
         if t_forward == 0 and t_backward == 0:
             raise ValueError("integration time: forward and backward are both 0 Gyr; give at least one")
         if n_points < 2:
@@ -535,13 +649,22 @@ class OrbitExplorer(AnalysisWidget):
         t_forward, t_backward, n_points = self._time_request()
         cloud = bool(self.cloud_toggle.value) and star["kind"] == "observables"
         dragged = self._original if self.source.value == "phase_space" else None
-        return {"frame": self.frame_state.frame, "potential_config": self.potential_state.config,
-                "star": star, "source": self.source.value,
-                "row": int(self.row_selector.value) if self.source.value == "table" else None,
-                "t_forward": t_forward, "t_backward": t_backward, "n_points": n_points,
-                "cloud": cloud, "n_cloud": int(self.n_cloud.value), "seed": self._seed,
-                "dragged_from": None if dragged is None else _given_text(dragged),
-                "keep_view": False, "dragging": bool(self.galaxy_view.dragging)}
+        return {
+            "frame": self.frame_state.frame,
+            "potential_config": self.potential_state.config,
+            "star": star,
+            "source": self.source.value,
+            "row": int(self.row_selector.value) if self.source.value == "table" else None,
+            "t_forward": t_forward,
+            "t_backward": t_backward,
+            "n_points": n_points,
+            "cloud": cloud,
+            "n_cloud": int(self.n_cloud.value),
+            "seed": self._seed,
+            "dragged_from": None if dragged is None else _given_text(dragged),
+            "keep_view": False,
+            "dragging": bool(self.galaxy_view.dragging),
+        }
 
     def _compute(self, request):
         frame = request["frame"]
@@ -568,10 +691,20 @@ class OrbitExplorer(AnalysisWidget):
             if fatal:
                 raise ValueError(f"the {name} could not be computed: {'; '.join(fatal)}")
         start = _phase_space_row(phase)
-        note = "" if request["dragged_from"] is None else \
-            f"velocity set by dragging (star converted from the {request['dragged_from']}, which is kept)"
-        return OrbitView(orbits=main, backward=backward if forward is not None else None, cloud=cloud,
-                         potential=pot, frame=frame, start=start, note=note)
+        note = (
+            ""
+            if request["dragged_from"] is None
+            else f"velocity set by dragging (star converted from the {request['dragged_from']}, which is kept)"
+        )
+        return OrbitView(
+            orbits=main,
+            backward=backward if forward is not None else None,
+            cloud=cloud,
+            potential=pot,
+            frame=frame,
+            start=start,
+            note=note,
+        )
 
     def _star_table_for_bench(self):
         """The current star as the one-row table handed to the core (benchmarks, debugging)."""
@@ -605,15 +738,16 @@ class OrbitExplorer(AnalysisWidget):
         p = self.orbital_parameters()
         text = f"rperi {p['rperi']:.2f} kpc, rapo {p['rapo']:.2f} kpc, zmax {p['zmax']:.2f} kpc"
         advisory = str(view.orbits.flags[0])
-        if advisory:   # e.g. coarse_time_grid: the turning points may be off; more output points fix it
+        if advisory:  # e.g. coarse_time_grid: the turning points may be off; more output points fix it
             text += f"; caution: {advisory.replace(';', ', ')} (see mwkin.integrate_orbits)"
         return f"{text}; {view.note}" if view.note else text
 
     def _provenance_for(self, view, request):
         from ..provenance import provenance_line
 
-        return provenance_line(frame=view.frame, potential=view.potential,
-                               extra=f"star from {_SOURCES[request['source']]}")
+        return provenance_line(
+            frame=view.frame, potential=view.potential, extra=f"star from {_SOURCES[request['source']]}"
+        )
 
     def _show(self, view, request):
         tracks = {"forward": None, "backward": None}
@@ -629,9 +763,14 @@ class OrbitExplorer(AnalysisWidget):
 
     def _show_readout(self, view, star):
         p = self.orbital_parameters()
-        rows = [("r_peri", f"{p['rperi']:.3f}", "kpc", "rperi"), ("r_apo", f"{p['rapo']:.3f}", "kpc", "rapo"),
-                ("z_max", f"{p['zmax']:.3f}", "kpc", "zmax"), ("e", f"{p['eccentricity']:.3f}", "", "eccentricity"),
-                ("E", f"{p['energy']:.5g}", "km²/s²", "energy"), ("L_z", f"{p['Lz']:.5g}", "kpc km/s", "Lz")]
+        rows = [
+            ("r_peri", f"{p['rperi']:.3f}", "kpc", "rperi"),
+            ("r_apo", f"{p['rapo']:.3f}", "kpc", "rapo"),
+            ("z_max", f"{p['zmax']:.3f}", "kpc", "zmax"),
+            ("e", f"{p['eccentricity']:.3f}", "", "eccentricity"),
+            ("E", f"{p['energy']:.5g}", "km²/s²", "energy"),
+            ("L_z", f"{p['Lz']:.5g}", "kpc km/s", "Lz"),
+        ]
         spread = {}
         if view.cloud is not None:
             for key in ("rperi", "rapo", "zmax", "eccentricity", "energy", "Lz"):
@@ -641,10 +780,14 @@ class OrbitExplorer(AnalysisWidget):
                     lo, hi = np.percentile(values, [16, 84])
                     spread[key] = f"{lo:.4g} – {hi:.4g}"
         head = "<tr><th></th><th>value</th><th>unit</th>" + ("<th>cloud 16–84%</th>" if spread else "") + "</tr>"
-        body = "".join(f"<tr><td>{n}</td><td>{v}</td><td>{u}</td>"
-                       + (f"<td>{spread.get(k, '')}</td>" if spread else "") + "</tr>" for n, v, u, k in rows)
-        note = ("<small>r_peri, r_apo, z_max and e over the integrated span; E in the potential's zero point "
-                "(see OrbitSet.energy); L_z = R v_phi, positive for prograde orbits</small>")
+        body = "".join(
+            f"<tr><td>{n}</td><td>{v}</td><td>{u}</td>" + (f"<td>{spread.get(k, '')}</td>" if spread else "") + "</tr>"
+            for n, v, u, k in rows
+        )
+        note = (
+            "<small>r_peri, r_apo, z_max and e over the integrated span; E in the potential's zero point "
+            "(see OrbitSet.energy); L_z = R v_phi, positive for prograde orbits</small>"
+        )
         caveat = _parallax_caveat(star)
         if caveat:
             note += f"<br><small class='mwkin-caveat'>{html.escape(caveat)}</small>"
@@ -656,36 +799,84 @@ class OrbitExplorer(AnalysisWidget):
 
         def figure(title, x_label, y_label, width, height):
             xs, ys = bq.LinearScale(), bq.LinearScale()
-            axes = [bq.Axis(scale=xs, label=x_label, grid_lines="none"),
-                    bq.Axis(scale=ys, label=y_label, side="left", grid_lines="none")]
-            fig = bq.Figure(axes=axes, title=title, fig_margin={"top": _MARGIN, "bottom": _MARGIN,
-                                                                "left": _MARGIN, "right": _MARGIN},
-                            layout=widgets.Layout(width=f"{width}px", height=f"{height}px"),
-                            min_aspect_ratio=width / height, max_aspect_ratio=width / height,
-                            legend_location="top-right")
+            axes = [
+                bq.Axis(scale=xs, label=x_label, grid_lines="none"),
+                bq.Axis(scale=ys, label=y_label, side="left", grid_lines="none"),
+            ]
+            fig = bq.Figure(
+                axes=axes,
+                title=title,
+                fig_margin={"top": _MARGIN, "bottom": _MARGIN, "left": _MARGIN, "right": _MARGIN},
+                layout=widgets.Layout(width=f"{width}px", height=f"{height}px"),
+                min_aspect_ratio=width / height,
+                max_aspect_ratio=width / height,
+                legend_location="top-right",
+            )
             return fig, xs, ys
 
         def marks(xs, ys, labelled):
             sc = {"x": xs, "y": ys}
             empty = np.array([np.nan])
             m = {
-                "cloud": bq.Lines(x=empty, y=empty, scales=sc, colors=[_COLOURS["cloud"]], opacities=[CLOUD_OPACITY],
-                                  labels=["from the uncertainties"],
-                                  stroke_width=1.0),
-                "backward": bq.Lines(x=empty, y=empty, scales=sc, colors=[_COLOURS["backward"]],
-                                     line_style="dashed", labels=["backward"], display_legend=labelled),
-                "forward": bq.Lines(x=empty, y=empty, scales=sc, colors=[_COLOURS["forward"]],
-                                    labels=["forward"], display_legend=labelled),
+                "cloud": bq.Lines(
+                    x=empty,
+                    y=empty,
+                    scales=sc,
+                    colors=[_COLOURS["cloud"]],
+                    opacities=[CLOUD_OPACITY],
+                    labels=["from the uncertainties"],
+                    stroke_width=1.0,
+                ),
+                "backward": bq.Lines(
+                    x=empty,
+                    y=empty,
+                    scales=sc,
+                    colors=[_COLOURS["backward"]],
+                    line_style="dashed",
+                    labels=["backward"],
+                    display_legend=labelled,
+                ),
+                "forward": bq.Lines(
+                    x=empty,
+                    y=empty,
+                    scales=sc,
+                    colors=[_COLOURS["forward"]],
+                    labels=["forward"],
+                    display_legend=labelled,
+                ),
                 "rotation": bq.Lines(x=empty, y=empty, scales=sc, colors=[_COLOURS["rotation"]]),
-                "star": bq.Scatter(x=empty, y=empty, scales=sc, colors=[_COLOURS["star"]], default_size=40,
-                                   labels=["star (t = 0)"]),
-                "sun": bq.Scatter(x=empty, y=empty, scales=sc, colors=[_COLOURS["sun"]], default_size=90,
-                                  stroke="black", labels=["Sun"], display_legend=labelled),
-                "centre": bq.Scatter(x=np.array([0.0]), y=np.array([0.0]), scales=sc, marker="cross",
-                                     colors=[_COLOURS["centre"]], default_size=90, labels=["Galactic centre"],
-                                     display_legend=labelled),
-                "label": bq.Label(x=empty, y=empty, scales=sc, text=np.array(["rotation"]),
-                                  colors=[_COLOURS["rotation"]], default_size=12, align="middle"),
+                "star": bq.Scatter(
+                    x=empty, y=empty, scales=sc, colors=[_COLOURS["star"]], default_size=40, labels=["star (t = 0)"]
+                ),
+                "sun": bq.Scatter(
+                    x=empty,
+                    y=empty,
+                    scales=sc,
+                    colors=[_COLOURS["sun"]],
+                    default_size=90,
+                    stroke="black",
+                    labels=["Sun"],
+                    display_legend=labelled,
+                ),
+                "centre": bq.Scatter(
+                    x=np.array([0.0]),
+                    y=np.array([0.0]),
+                    scales=sc,
+                    marker="cross",
+                    colors=[_COLOURS["centre"]],
+                    default_size=90,
+                    labels=["Galactic centre"],
+                    display_legend=labelled,
+                ),
+                "label": bq.Label(
+                    x=empty,
+                    y=empty,
+                    scales=sc,
+                    text=np.array(["rotation"]),
+                    colors=[_COLOURS["rotation"]],
+                    default_size=12,
+                    align="middle",
+                ),
             }
             return m
 
@@ -743,8 +934,12 @@ class OrbitExplorer(AnalysisWidget):
         g = self.galaxy_view
         if only_if_needed:
             x0, x1, y0, y1 = g.view_range
-            if min(x0, x1) <= bounds[0] and bounds[1] <= max(x0, x1) \
-                    and min(y0, y1) <= bounds[2] and bounds[3] <= max(y0, y1):
+            if (
+                min(x0, x1) <= bounds[0]
+                and bounds[1] <= max(x0, x1)
+                and min(y0, y1) <= bounds[2]
+                and bounds[3] <= max(y0, y1)
+            ):
                 return
         with g.hold_sync():
             g.view_range = [-extent, extent, -extent, extent]
@@ -760,7 +955,7 @@ class OrbitExplorer(AnalysisWidget):
             zs.append(cloud["z"].ravel())
         R_top = max(float(np.nanmax(np.concatenate(Rs))), R_sun) * 1.08
         z_half = max(float(np.nanmax(np.abs(np.concatenate(zs)))), abs(z_sun)) * 1.15
-        ratio = (_MER_W - 2 * _MARGIN) / (_MER_H - 2 * _MARGIN)   # plot-area width / height
+        ratio = (_MER_W - 2 * _MARGIN) / (_MER_H - 2 * _MARGIN)  # plot-area width / height
         # Equal aspect: data span ratio equals the plot area's ratio (widen whichever is short).
         if R_top / (2 * z_half) > ratio:
             z_half = R_top / ratio / 2
@@ -796,10 +991,19 @@ class OrbitExplorer(AnalysisWidget):
             raise RuntimeError("nothing to export yet: the orbit has not been computed")
         scale = float(self.galaxy_view.arrow_scale)
         face_on = self.galaxy_view.export_panel(
-            "Face-on", notes=["grey arrow: sense of Galactic rotation (clockwise seen from the north pole)",
-                              f"red arrow: the star's initial velocity in the plane ({scale:.3g} km/s per kpc)"])
-        meridional = panel_from_figure(self.meridional_figure, "Meridional", equal_aspect=True, legend_outside=True,
-                                       notes=["rotation is toward the viewer (perpendicular to this plane)"])
+            "Face-on",
+            notes=[
+                "grey arrow: sense of Galactic rotation (clockwise seen from the north pole)",
+                f"red arrow: the star's initial velocity in the plane ({scale:.3g} km/s per kpc)",
+            ],
+        )
+        meridional = panel_from_figure(
+            self.meridional_figure,
+            "Meridional",
+            equal_aspect=True,
+            legend_outside=True,
+            notes=["rotation is toward the viewer (perpendicular to this plane)"],
+        )
         return [face_on, meridional]
 
     # ================================================================== sharing
@@ -811,8 +1015,10 @@ class OrbitExplorer(AnalysisWidget):
         star = self._star_config()
         if self._original is not None:
             star["original"] = self._original
-            star["note"] = ("vx, vy set by dragging the velocity arrow; 'original' is the star as given, "
-                            "'phase_space' its conversion with the frame of that moment")
+            star["note"] = (
+                "vx, vy set by dragging the velocity arrow; 'original' is the star as given, "
+                "'phase_space' its conversion with the frame of that moment"
+            )
         return star
 
     def _apply_star_setting(self, star):
@@ -821,12 +1027,14 @@ class OrbitExplorer(AnalysisWidget):
         self._original = dict(original) if original and self.source.value == "phase_space" else None
 
     def _star_config(self):
-        star = {"source": self.source.value,
-                "observables": {k: float(f.value) for k, f in self.observable_fields.items()},
-                "errors": {k: float(f.value) for k, f in self.error_fields.items()},
-                "distance_input": self.distance_input.value,
-                "phase_space": {k: float(f.value) for k, f in self.phase_fields.items()},
-                "row": int(self.row_selector.value)}
+        star = {
+            "source": self.source.value,
+            "observables": {k: float(f.value) for k, f in self.observable_fields.items()},
+            "errors": {k: float(f.value) for k, f in self.error_fields.items()},
+            "distance_input": self.distance_input.value,
+            "phase_space": {k: float(f.value) for k, f in self.phase_fields.items()},
+            "row": int(self.row_selector.value),
+        }
         if self.source.value == "table":
             star["row_values"] = {k: v for k, v in self._row_values().items() if k != "source_id"}
             star["note"] = "the table itself is not saved; pass stars= again to use it"
@@ -850,8 +1058,7 @@ class OrbitExplorer(AnalysisWidget):
                 for key, field_ in {**self.observable_fields, **self.error_fields}.items():
                     if np.isfinite(values.get(key, np.nan)):
                         field_.show(float(values[key]))
-                self.distance_input.value = "parallax" if np.isfinite(values.get("parallax", np.nan)) \
-                    else "distance"
+                self.distance_input.value = "parallax" if np.isfinite(values.get("parallax", np.nan)) else "distance"
                 source = "observables"
             else:
                 self.row_selector.value = int(star.get("row", 0))
@@ -859,38 +1066,48 @@ class OrbitExplorer(AnalysisWidget):
         self.source.value = source
 
     def _code(self, request):
-        lines = snippet_preamble(request, imports=("import numpy as np", "from astropy.table import QTable"),
-                                 potential="pot")
+        lines = snippet_preamble(
+            request, imports=("import numpy as np", "from astropy.table import QTable"), potential="pot"
+        )
         star = request["star"]
         cloud = request["cloud"]
         values = {**star["values"], **(star["errors"] if cloud else {})}
         columns = ", ".join(f"{k!r}: [{v!r}]" for k, v in values.items())
         lines.append(f"star = QTable({{{columns}}})  # {_UNITS_CODE[star['kind']]}")
         if request["dragged_from"] is not None:
-            lines.append(f"# vx, vy set by dragging the velocity arrow; x, y, z, vz converted from the "
-                         f"{request['dragged_from']} (see config['star']['original'])")
+            lines.append(
+                f"# vx, vy set by dragging the velocity arrow; x, y, z, vz converted from the "
+                f"{request['dragged_from']} (see config['star']['original'])"
+            )
         if star["kind"] == "observables":
             choice = "mk.DistanceColumn()" if "distance" in star["values"] else "mk.InverseParallax(min_snr=0)"
             errors = ', errors="linear", return_covariance=True' if cloud else ""
             lines.append(f"star = mk.to_galactocentric(star, frame=frame, distance={choice}{errors})")
         t_f, t_b, n = request["t_forward"], request["t_backward"], request["n_points"]
-        grids = ([("orbits", t_f)] if t_f > 0 else []) + ([("backward" if t_f > 0 else "orbits", -t_b)] if t_b > 0 else [])
+        grids = ([("orbits", t_f)] if t_f > 0 else []) + (
+            [("backward" if t_f > 0 else "orbits", -t_b)] if t_b > 0 else []
+        )
         for name, end in grids:
-            lines.append(f"{name} = mk.integrate_orbits(star, pot, frame=frame, t=np.linspace(0.0, {end!r}, {n}))"
-                         "  # Gyr")
+            lines.append(
+                f"{name} = mk.integrate_orbits(star, pot, frame=frame, t=np.linspace(0.0, {end!r}, {n}))  # Gyr"
+            )
         lines.append("print(orbits.rperi, orbits.rapo, orbits.zmax, orbits.eccentricity)")
         if cloud:
             span = t_f if t_f > 0 else -t_b
-            lines += ["# the cloud: orbits of stars drawn from the linear covariance of x..vz",
-                      f"cloud = mk.orbit_parameters(star, pot, frame=frame, method=\"integrate\", "
-                      f"t=np.linspace(0.0, {span!r}, {min(n, CLOUD_POINTS)}), n_samples={request['n_cloud']}, "
-                      f"seed={request['seed']})",
-                      "print(cloud[\"rapo_p16\"], cloud[\"rapo_p84\"])"]
+            lines += [
+                "# the cloud: orbits of stars drawn from the linear covariance of x..vz",
+                f'cloud = mk.orbit_parameters(star, pot, frame=frame, method="integrate", '
+                f"t=np.linspace(0.0, {span!r}, {min(n, CLOUD_POINTS)}), n_samples={request['n_cloud']}, "
+                f"seed={request['seed']})",
+                'print(cloud["rapo_p16"], cloud["rapo_p84"])',
+            ]
         return "\n".join(lines) + "\n"
 
 
-_UNITS_CODE = {"observables": "ra, dec in deg, parallax in mas (distance in kpc), pm in mas/yr, km/s",
-               "phase_space": "Galactocentric x, y, z in kpc, vx, vy, vz in km/s"}
+_UNITS_CODE = {
+    "observables": "ra, dec in deg, parallax in mas (distance in kpc), pm in mas/yr, km/s",
+    "phase_space": "Galactocentric x, y, z in kpc, vx, vy, vz in km/s",
+}
 
 
 # ====================================================================== helpers (no widget access)
@@ -902,23 +1119,25 @@ def _checked_star(widget, star, where="OrbitExplorer config['star']", original_a
     unknown = set(star) - known
     if unknown:
         raise ConfigError(f"{where} has unknown keys {sorted(unknown)}; expected {sorted(known)}")
-    fields_by_part = {"observables": DEFAULT_STAR, "errors": None, "phase_space": DEFAULT_PHASE_SPACE,
-                      "row_values": None}
+    fields_by_part = {
+        "observables": DEFAULT_STAR,
+        "errors": None,
+        "phase_space": DEFAULT_PHASE_SPACE,
+        "row_values": None,
+    }
     for part, names in fields_by_part.items():
         values = require_mapping(star.get(part, {}), f"{where}[{part!r}]")
         for name, value in values.items():
             if part != "row_values" and names is not None and name not in names:
-                raise ConfigError(f"{where}[{part!r}] has an unknown field {name!r}; "
-                                  f"expected {sorted(names)}")
+                raise ConfigError(f"{where}[{part!r}] has an unknown field {name!r}; expected {sorted(names)}")
             if not (isinstance(value, (int, float)) and not isinstance(value, bool)):
-                raise ConfigError(f"{where}[{part!r}][{name!r}] must be a number, "
-                                  f"got {value!r:.80}")
+                raise ConfigError(f"{where}[{part!r}][{name!r}] must be a number, got {value!r:.80}")
     if "source" in star and star["source"] not in _SOURCES:
-        raise ConfigError(f"{where}['source'] must be one of {sorted(_SOURCES)}, "
-                          f"got {star['source']!r:.80}")
+        raise ConfigError(f"{where}['source'] must be one of {sorted(_SOURCES)}, got {star['source']!r:.80}")
     if "distance_input" in star and star["distance_input"] not in ("parallax", "distance"):
-        raise ConfigError(f"{where}['distance_input'] must be 'parallax' or 'distance', "
-                          f"got {star['distance_input']!r:.80}")
+        raise ConfigError(
+            f"{where}['distance_input'] must be 'parallax' or 'distance', got {star['distance_input']!r:.80}"
+        )
     if "row" in star and (isinstance(star["row"], bool) or not isinstance(star["row"], int) or star["row"] < 0):
         raise ConfigError(f"{where}['row'] must be a whole number >= 0, got {star['row']!r:.80}")
     if "converted_with_frame" in star:
@@ -948,7 +1167,7 @@ def _joined_track(tracks, key):
         return fwd[key]
     if fwd is None:
         return back[key][::-1]
-    return np.concatenate([back[key][::-1], fwd[key][1:]])   # both start at the star (t = 0)
+    return np.concatenate([back[key][::-1], fwd[key][1:]])  # both start at the star (t = 0)
 
 
 def _star_table(star):
@@ -973,8 +1192,10 @@ def _parallax_caveat(star):
     snr = float(parallax_snr(_star_table(star))[0])
     if snr >= LOW_SNR:
         return ""
-    return (f"parallax/error = {snr:.1f} < {LOW_SNR:g}: 1/parallax is a biased, noisy distance here "
-            "(Bailer-Jones 2015, PASP 127, 994); the orbit cloud shows how uncertain the orbit is")
+    return (
+        f"parallax/error = {snr:.1f} < {LOW_SNR:g}: 1/parallax is a biased, noisy distance here "
+        "(Bailer-Jones 2015, PASP 127, 994); the orbit cloud shows how uncertain the orbit is"
+    )
 
 
 def _distance_choice(star):
@@ -996,8 +1217,9 @@ def _phase_space(star, frame, want_covariance=False):
     if star["kind"] == "phase_space":
         return table, None
     errors = "linear" if want_covariance else "none"
-    gc = to_galactocentric(table, frame=frame, distance=_distance_choice(star), errors=errors,
-                           return_covariance=want_covariance)
+    gc = to_galactocentric(
+        table, frame=frame, distance=_distance_choice(star), errors=errors, return_covariance=want_covariance
+    )
     if gc["flag"][0]:
         raise ValueError(f"the star has no Galactocentric position and velocity: {gc['flag'][0]}")
     cov = column_values(gc, "cov_galactocentric").reshape(1, 6, 6) if want_covariance else None
@@ -1020,8 +1242,10 @@ def _draw_stars(phase, cov, n, seed):
     from ..orbits import OrbitError
 
     if cov is None:
-        raise ValueError("the star has no covariance to draw from; give the parallax (or distance), "
-                         "pmra, pmdec and radial_velocity errors")
+        raise ValueError(
+            "the star has no covariance to draw from; give the parallax (or distance), "
+            "pmra, pmdec and radial_velocity errors"
+        )
     try:
         return draw_phase_space_samples(_phase_space_row(phase), cov, n, seed).reshape(-1, 6)
     except OrbitError as exc:

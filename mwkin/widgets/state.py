@@ -24,9 +24,19 @@ from ..frames import (
     warn_if_implausible,
 )
 
-__all__ = ["FrameState", "PotentialState", "DEFAULT_FRAME_PRESET", "DEFAULT_POTENTIAL_PRESET",
-           "potential_from_config", "default_three_component_parameters", "ConfigError", "require_mapping",
-           "frame_from_config", "validated_potential_config", "lsr_circular_velocity"]
+__all__ = [
+    "FrameState",
+    "PotentialState",
+    "DEFAULT_FRAME_PRESET",
+    "DEFAULT_POTENTIAL_PRESET",
+    "potential_from_config",
+    "default_three_component_parameters",
+    "ConfigError",
+    "require_mapping",
+    "frame_from_config",
+    "validated_potential_config",
+    "lsr_circular_velocity",
+]
 
 
 class ConfigError(ValueError):
@@ -45,6 +55,7 @@ def frame_from_config(config):
         return SolarFrame.from_dict(config)
     except (KeyError, TypeError) as exc:  # keep every failure a ValueError that names the problem
         raise ConfigError(f"frame config: {exc}") from None
+
 
 #: The preset a new FrameState holds (mwkin.frames.DEFAULT_PRESET).
 DEFAULT_FRAME_PRESET = DEFAULT_PRESET
@@ -68,10 +79,16 @@ class FrameState(traitlets.HasTraits):
 
     # The defaults are mwkin.frames.DEFAULT_FRAME_PARAMETERS (the frame __init__ sets anyway).
     R0 = traitlets.Float(DEFAULT_FRAME_PARAMETERS["R0"], help="Sun-centre distance, kpc")
-    z_sun = traitlets.Float(DEFAULT_FRAME_PARAMETERS["z_sun"], help="height of the Sun above the Galactic mid-plane, pc")
-    v_sun = traitlets.Tuple(traitlets.Float(), traitlets.Float(), traitlets.Float(),
-                            default_value=tuple(DEFAULT_FRAME_PARAMETERS["v_sun"]),
-                            help="solar velocity (vx, vy, vz) in Galactocentric Cartesian axes, km/s")
+    z_sun = traitlets.Float(
+        DEFAULT_FRAME_PARAMETERS["z_sun"], help="height of the Sun above the Galactic mid-plane, pc"
+    )
+    v_sun = traitlets.Tuple(
+        traitlets.Float(),
+        traitlets.Float(),
+        traitlets.Float(),
+        default_value=tuple(DEFAULT_FRAME_PARAMETERS["v_sun"]),
+        help="solar velocity (vx, vy, vz) in Galactocentric Cartesian axes, km/s",
+    )
     preset = traitlets.Unicode(DEFAULT_FRAME_PRESET, help="preset name, or '' once a value was edited")
 
     def __init__(self, frame=None, **kwargs):
@@ -89,7 +106,7 @@ class FrameState(traitlets.HasTraits):
         value = proposal["value"]
         if not (math.isfinite(value) and value > 0):
             raise traitlets.TraitError(f"R0 must be a finite distance > 0 kpc, got {value} kpc")
-        if not getattr(self, "_applying", False):   # a preset or saved frame was checked when made
+        if not getattr(self, "_applying", False):  # a preset or saved frame was checked when made
             warn_if_implausible(R0=value)
         return value
 
@@ -98,7 +115,7 @@ class FrameState(traitlets.HasTraits):
         value = proposal["value"]
         if not math.isfinite(value):
             raise traitlets.TraitError(f"z_sun must be a finite height in pc, got {value} pc")
-        try:   # the core's rule for z_sun against R0 (units stated: no unit-slip warning here)
+        try:  # the core's rule for z_sun against R0 (units stated: no unit-slip warning here)
             SolarFrame(R0=self.R0 * u.kpc, z_sun=value * u.pc)
         except FrameError as exc:
             raise traitlets.TraitError(str(exc)) from None
@@ -126,8 +143,9 @@ class FrameState(traitlets.HasTraits):
         """The current :class:`~mwkin.frames.SolarFrame`."""
         # With their units stated: the values were checked for unit slips when they were set, and a
         # frame made on every refresh must not repeat that warning.
-        return SolarFrame(R0=self.R0 * u.kpc, z_sun=self.z_sun * u.pc, v_sun=tuple(self.v_sun) * (u.km / u.s),
-                          label=self.preset)
+        return SolarFrame(
+            R0=self.R0 * u.kpc, z_sun=self.z_sun * u.pc, v_sun=tuple(self.v_sun) * (u.km / u.s), label=self.preset
+        )
 
     def set_frame(self, frame):
         """Take all values from a SolarFrame in one batch of notifications."""
@@ -175,9 +193,11 @@ class PotentialState(traitlets.HasTraits):
     preset = traitlets.Unicode(DEFAULT_POTENTIAL_PRESET, help="published model name, or '' for parameters")
     parameters = traitlets.Dict(help="three-component model parameters (Msun, kpc), used when preset is ''")
     match_frame_vc = traitlets.Bool(False, help="rescale to the frame's circular velocity at the Sun")
-    solar_V = traitlets.Float(SCHOENRICH2010_SOLAR_MOTION[1],
-                              help="solar motion relative to the LSR along rotation, km/s "
-                                   "(Schoenrich et al. 2010), used when matching the frame")
+    solar_V = traitlets.Float(
+        SCHOENRICH2010_SOLAR_MOTION[1],
+        help="solar motion relative to the LSR along rotation, km/s "
+        "(Schoenrich et al. 2010), used when matching the frame",
+    )
 
     def __init__(self, potential=None, **kwargs):
         super().__init__(**kwargs)
@@ -199,8 +219,10 @@ class PotentialState(traitlets.HasTraits):
         """Take a preset or three-component Potential (anything ``to_dict()`` describes)."""
         spec = potential.to_dict()
         if "scaled_to" in spec:
-            raise ValueError("PotentialState holds unscaled models; use match_frame_vc=True to rescale to the "
-                             f"frame's circular velocity (this potential is scaled to {spec['scaled_to']})")
+            raise ValueError(
+                "PotentialState holds unscaled models; use match_frame_vc=True to rescale to the "
+                f"frame's circular velocity (this potential is scaled to {spec['scaled_to']})"
+            )
         with self.hold_trait_notifications():
             if spec.get("kind") == "preset":
                 self.preset = spec["name"]
@@ -213,8 +235,12 @@ class PotentialState(traitlets.HasTraits):
     @property
     def config(self):
         """JSON-able dict of the state."""
-        return {"preset": self.preset, "parameters": json.loads(json.dumps(self.parameters)),
-                "match_frame_vc": self.match_frame_vc, "solar_V": self.solar_V}
+        return {
+            "preset": self.preset,
+            "parameters": json.loads(json.dumps(self.parameters)),
+            "match_frame_vc": self.match_frame_vc,
+            "solar_V": self.solar_V,
+        }
 
     def load_config(self, config):
         """Inverse of :attr:`config`; a bad config raises :class:`ConfigError` and changes nothing."""
@@ -253,8 +279,9 @@ def validated_potential_config(config):
                 raise ConfigError(f"potential config: {key} must be a finite number (km/s), got {value!r}")
             value = float(value)
         elif not isinstance(value, kind):
-            raise ConfigError(f"potential config: {key} must be a {kind.__name__}, got "
-                              f"{type(value).__name__} {value!r:.80}")
+            raise ConfigError(
+                f"potential config: {key} must be a {kind.__name__}, got {type(value).__name__} {value!r:.80}"
+            )
         out[key] = copy.deepcopy(value)
     preset = out.get("preset")
     if preset:
@@ -268,13 +295,14 @@ def validated_potential_config(config):
         parameters = out.get("parameters", default_three_component_parameters())
         unknown = set(parameters) - set(_COMPONENTS)
         if unknown:
-            raise ConfigError(f"potential config: parameters has unknown components {sorted(unknown)}; "
-                              f"expected {list(_COMPONENTS)}")
+            raise ConfigError(
+                f"potential config: parameters has unknown components {sorted(unknown)}; expected {list(_COMPONENTS)}"
+            )
         for name, part in parameters.items():
             if not isinstance(part, dict):
                 raise ConfigError(f"potential config: parameters[{name!r}] must be a dict, got {part!r:.80}")
         try:
-            Potential.three_component(**copy.deepcopy(parameters))   # the core names the bad parameter
+            Potential.three_component(**copy.deepcopy(parameters))  # the core names the bad parameter
         except ValueError as exc:
             raise ConfigError(f"potential config: {exc}") from None
         except TypeError as exc:
@@ -307,7 +335,7 @@ def lsr_circular_velocity(frame, solar_V):
     -------
     float
     """
-    return float(frame.v_sun[1]) - float(solar_V)
+    return frame.lsr_circular_velocity(solar_V)
 
 
 def potential_from_config(config, frame=None):

@@ -106,15 +106,25 @@ class VelocityPanel(SampleInput, AnalysisWidget):
         "colour_by": control_setting("colour_control", types=(str,), check=one_of(set(COLOUR_COLUMNS), "colour_by")),
     }
 
-    def __init__(self, sample=None, frame=None, potential=None, *, errors="none", colour_by="none",
-                 threaded=True, use_canvas=None, **kwargs):
+    def __init__(
+        self,
+        sample=None,
+        frame=None,
+        potential=None,
+        *,
+        errors="none",
+        colour_by="none",
+        threaded=True,
+        use_canvas=None,
+        **kwargs,
+    ):
         super().__init__(frame, potential, threaded=threaded, **kwargs)
         self.add_class("mwkin-velocity-panel")
         self._stars = None
         self._source = SampleSource()
         self._selected_rows = np.zeros(0, dtype=np.int64)
         self._note = ""
-        with self._quiet:   # building: one computation once the sample is in
+        with self._quiet:  # building: one computation once the sample is in
             self._build(errors, colour_by, use_canvas)
         if sample is not None:
             self.sample = sample
@@ -126,14 +136,19 @@ class VelocityPanel(SampleInput, AnalysisWidget):
         self.distance_controls = DistanceControls(self.refresh)
         if errors not in _ERROR_METHODS:
             raise ValueError(f"errors must be one of {_ERROR_METHODS}, got {errors!r}")
-        self.errors_control = widgets.ToggleButtons(options=list(_ERROR_METHODS), value=errors,
-                                                    description="errors", style={"button_width": "70px"},
-                                                    tooltip="uncertainty propagation (linear: full covariance)")
+        self.errors_control = widgets.ToggleButtons(
+            options=list(_ERROR_METHODS),
+            value=errors,
+            description="errors",
+            style={"button_width": "70px"},
+            tooltip="uncertainty propagation (linear: full covariance)",
+        )
         self.errors_control.add_class("mwkin-errors")
         if colour_by not in COLOUR_COLUMNS:
             raise ValueError(f"colour_by must be one of {list(COLOUR_COLUMNS)}, got {colour_by!r}")
-        self.colour_control = widgets.Dropdown(options=list(COLOUR_COLUMNS), value=colour_by,
-                                               description="colour by", layout=widgets.Layout(width="16em"))
+        self.colour_control = widgets.Dropdown(
+            options=list(COLOUR_COLUMNS), value=colour_by, description="colour by", layout=widgets.Layout(width="16em")
+        )
         self.colour_control.add_class("mwkin-colour-by")
         self.errors_control.observe(lambda _: self.refresh(), "value")
         self.colour_control.observe(self._recolour, "value")
@@ -154,12 +169,22 @@ class VelocityPanel(SampleInput, AnalysisWidget):
         self.selection_label = widgets.HTML()
         self.selection_label.add_class("mwkin-selection")
 
-        settings = widgets.VBox([self.loader, self.distance_controls,
-                                 widgets.HBox([self.errors_control, self.colour_control])])
+        settings = widgets.VBox(
+            [self.loader, self.distance_controls, widgets.HBox([self.errors_control, self.colour_control])]
+        )
         self._views_box = widgets.HBox(list(self._views), layout=widgets.Layout(flex_flow="row wrap"))
-        self.children = [settings, self._views_box, self.counts_label, self.lsr_label,
-                         self.caveat_label, self.selection_label, self.status_line, self.provenance_label,
-                         widgets.HBox([self.code_button]), self.code_area]
+        self.children = [
+            settings,
+            self._views_box,
+            self.counts_label,
+            self.lsr_label,
+            self.caveat_label,
+            self.selection_label,
+            self.status_line,
+            self.provenance_label,
+            widgets.HBox([self.code_button]),
+            self.code_area,
+        ]
 
         self.frame_state.observe(lambda _: self.refresh(), names=["R0", "z_sun", "v_sun"])
         self.potential_state.observe(lambda _: self._show_lsr(), names=["solar_V"])
@@ -226,26 +251,36 @@ class VelocityPanel(SampleInput, AnalysisWidget):
                 if view is not origin and view.n_points == self._n_rows():
                     view.selected_indices = self._selected_rows
         self.n_selected = len(self._selected_rows)
-        self.selection_label.value = (f"<small>{self.n_selected} stars selected (available as "
-                                      f"panel.selection)</small>" if self.n_selected else "")
+        self.selection_label.value = (
+            f"<small>{self.n_selected} stars selected (available as panel.selection)</small>" if self.n_selected else ""
+        )
 
     # ------------------------------------------------------------------ AnalysisWidget hooks
     def _request(self):
         if self._stars is None:
-            raise ValueError("no sample: pass sample=... (a table, DataFrame or path) or load a file"
-                             + (f"; {self._note}" if self._note else ""))
+            raise ValueError(
+                "no sample: pass sample=... (a table, DataFrame or path) or load a file"
+                + (f"; {self._note}" if self._note else "")
+            )
         controls = self.distance_controls
-        return {"stars": self._stars, "source": self._source, "frame": self.frame_state.frame,
-                "distance": controls.choice(), "distance_code": controls.code(),
-                "errors": self.errors_control.value,
-                "caveat": inverse_parallax_caveat(self._stars, controls.method.value, controls.min_snr.value,
-                                                  controls.zero_point.value)}
+        return {
+            "stars": self._stars,
+            "source": self._source,
+            "frame": self.frame_state.frame,
+            "distance": controls.choice(),
+            "distance_code": controls.code(),
+            "errors": self.errors_control.value,
+            "caveat": inverse_parallax_caveat(
+                self._stars, controls.method.value, controls.min_snr.value, controls.zero_point.value
+            ),
+        }
 
     def _compute(self, request):
         from ..kinematics import to_galactocentric
 
-        return to_galactocentric(request["stars"], request["frame"], errors=request["errors"],
-                                 distance=request["distance"])
+        return to_galactocentric(
+            request["stars"], request["frame"], errors=request["errors"], distance=request["distance"]
+        )
 
     def _show(self, result, request):
         has_v = np.asarray(result["has_velocity"], dtype=bool)
@@ -265,8 +300,9 @@ class VelocityPanel(SampleInput, AnalysisWidget):
         self.counts_label.value = self._counts_html(result)
         self._show_lsr()
         caveat = request["caveat"]
-        self.caveat_label.value = (f'<div style="color:#8a4b00;font-size:12px">{html.escape(caveat)}</div>'
-                                   if caveat else "")
+        self.caveat_label.value = (
+            f'<div style="color:#8a4b00;font-size:12px">{html.escape(caveat)}</div>' if caveat else ""
+        )
 
     def _draw(self, result, keep_selection):
         a = self._arrays
@@ -274,12 +310,29 @@ class VelocityPanel(SampleInput, AnalysisWidget):
         c_label, c_unit = _split_label(self.colour_control.value) if colour is not None else ("", "")
         common = {"c_label": c_label, "c_unit": c_unit, "keep_selection": keep_selection}
         with self._quiet:
-            self.toomre.set_data(a["v_phi"], a["v_perp"], colour, x_label="v_phi",
-                                 x_unit="km/s", y_label="sqrt(v_R² + v_z²)", y_unit="km/s", **common)
-            self.uv_plane.set_data(a["U"], a["V"], colour, x_label="U, toward the centre", x_unit="km/s",
-                                   y_label="V, along rotation", y_unit="km/s", **common)
-            self.rotation.set_data(a["R"], a["v_phi"], colour, x_label="R", x_unit="kpc", y_label="v_phi",
-                                   y_unit="km/s", **common)
+            self.toomre.set_data(
+                a["v_phi"],
+                a["v_perp"],
+                colour,
+                x_label="v_phi",
+                x_unit="km/s",
+                y_label="sqrt(v_R² + v_z²)",
+                y_unit="km/s",
+                **common,
+            )
+            self.uv_plane.set_data(
+                a["U"],
+                a["V"],
+                colour,
+                x_label="U, toward the centre",
+                x_unit="km/s",
+                y_label="V, along rotation",
+                y_unit="km/s",
+                **common,
+            )
+            self.rotation.set_data(
+                a["R"], a["v_phi"], colour, x_label="R", x_unit="kpc", y_label="v_phi", y_unit="km/s", **common
+            )
 
     def _colour_values(self, result):
         name = COLOUR_COLUMNS[self.colour_control.value]
@@ -297,10 +350,12 @@ class VelocityPanel(SampleInput, AnalysisWidget):
         return lsr_circular_velocity(frame, self.potential_state.solar_V)
 
     def _show_lsr(self):
-        self.lsr_label.value = (f"<small>Toomre diagram: the local standard of rest is at v_phi = "
-                                f"{self._lsr_vphi():.1f} km/s (the frame's v_sun_y minus solar_V = "
-                                f"{self.potential_state.solar_V:g} km/s); disc stars lie near it, a "
-                                f"non-rotating halo near v_phi = 0.</small>")
+        self.lsr_label.value = (
+            f"<small>Toomre diagram: the local standard of rest is at v_phi = "
+            f"{self._lsr_vphi():.1f} km/s (the frame's v_sun_y minus solar_V = "
+            f"{self.potential_state.solar_V:g} km/s); disc stars lie near it, a "
+            f"non-rotating halo near v_phi = 0.</small>"
+        )
 
     def _counts_html(self, result):
         n_in = len(result)
@@ -319,14 +374,20 @@ class VelocityPanel(SampleInput, AnalysisWidget):
     def _provenance_for(self, result, request):
         from ..provenance import provenance_line
 
-        return provenance_line(frame=request["frame"], distance=request["distance"],
-                               extra=f"errors: {request['errors']}; sample: {request['source'].describe()}")
+        return provenance_line(
+            frame=request["frame"],
+            distance=request["distance"],
+            extra=f"errors: {request['errors']}; sample: {request['source'].describe()}",
+        )
 
     def _code(self, request):
-        return "\n".join(snippet_preamble(request, sample=True) + [
-            f"out = mk.to_galactocentric(stars, frame, errors={request['errors']!r},",
-            f"                           distance={request['distance_code']})",
-        ])
+        return "\n".join(
+            snippet_preamble(request, sample=True)
+            + [
+                f"out = mk.to_galactocentric(stars, frame, errors={request['errors']!r},",
+                f"                           distance={request['distance_code']})",
+            ]
+        )
 
     def _figure_panels(self):
         """The three views as they are shown (points, colours, selection, region), for the static export.
@@ -338,8 +399,17 @@ class VelocityPanel(SampleInput, AnalysisWidget):
             return []
         t = np.linspace(0.0, np.pi, 91)
         centre = self._lsr_vphi()
-        guides = [{"kind": "line", "x": centre + s * np.cos(t), "y": s * np.sin(t), "color": COLOURS["guide"],
-                   "label": f"{s:g} km/s from the LSR", "width": 0.8} for s in GUIDE_SPEEDS_KMS]
+        guides = [
+            {
+                "kind": "line",
+                "x": centre + s * np.cos(t),
+                "y": s * np.sin(t),
+                "color": COLOURS["guide"],
+                "label": f"{s:g} km/s from the LSR",
+                "width": 0.8,
+            }
+            for s in GUIDE_SPEEDS_KMS
+        ]
         return [panel_from_view(view, last=guides if view is self.toomre else ()) for view in self._views]
 
 

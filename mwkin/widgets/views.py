@@ -108,37 +108,49 @@ class SampleScatter(anywidget.AnyWidget):
     x_unit = traitlets.Unicode("", help="unit of x, shown in brackets after the label").tag(sync=True)
     y_unit = traitlets.Unicode("", help="unit of y, shown in brackets after the label").tag(sync=True)
     c_unit = traitlets.Unicode("", help="unit of the colour values").tag(sync=True)
-    c_range = traitlets.List(traitlets.Float(), default_value=[], maxlen=2,
-                             help="[low, high] colour value range; empty for the data's range").tag(sync=True)
-    view_range = traitlets.List(traitlets.Float(), default_value=[], maxlen=4,
-                                help="shown region [x0, x1, y0, y1] in data units (x0 > x1 reverses the "
-                                     "axis); updated by the browser after pan and zoom").tag(sync=True)
-    home_range = traitlets.List(traitlets.Float(), default_value=[], maxlen=4,
-                                help="region [x0, x1, y0, y1] that 'Reset view' returns to").tag(sync=True)
+    c_range = traitlets.List(
+        traitlets.Float(), default_value=[], maxlen=2, help="[low, high] colour value range; empty for the data's range"
+    ).tag(sync=True)
+    view_range = traitlets.List(
+        traitlets.Float(),
+        default_value=[],
+        maxlen=4,
+        help="shown region [x0, x1, y0, y1] in data units (x0 > x1 reverses the "
+        "axis); updated by the browser after pan and zoom",
+    ).tag(sync=True)
+    home_range = traitlets.List(
+        traitlets.Float(), default_value=[], maxlen=4, help="region [x0, x1, y0, y1] that 'Reset view' returns to"
+    ).tag(sync=True)
     width = traitlets.Int(640, min=120, help="width of the plot in CSS pixels").tag(sync=True)
     height = traitlets.Int(420, min=100, help="height of the plot in CSS pixels").tag(sync=True)
     point_size = traitlets.Int(2, min=1, max=20, help="side of a drawn point in CSS pixels").tag(sync=True)
     opacity = traitlets.Float(0.75, min=0.02, max=1.0, help="opacity of each drawn point").tag(sync=True)
-    density = traitlets.Enum(["auto", "on", "off"], default_value="auto",
-                             help="density shading: 'on', 'off', or 'auto' (on above density_threshold "
-                                  "drawable stars)").tag(sync=True)
-    density_threshold = traitlets.Int(200_000, min=0,
-                                      help="number of drawable stars above which 'auto' shades "
-                                           "density").tag(sync=True)
+    density = traitlets.Enum(
+        ["auto", "on", "off"],
+        default_value="auto",
+        help="density shading: 'on', 'off', or 'auto' (on above density_threshold drawable stars)",
+    ).tag(sync=True)
+    density_threshold = traitlets.Int(
+        200_000, min=0, help="number of drawable stars above which 'auto' shades density"
+    ).tag(sync=True)
     density_bin_px = traitlets.Int(3, min=1, max=50, help="side of a density bin in CSS pixels").tag(sync=True)
     equal_aspect = traitlets.Bool(False, help="same data units per pixel on both axes").tag(sync=True)
-    selection_mode = traitlets.Enum(["pan", "brush", "lasso"], default_value="pan",
-                                    help="what a mouse drag does: pan, box selection or lasso").tag(sync=True)
-    hover_radius_px = traitlets.Int(12, min=1, max=100,
-                                    help="hover read-out picks the nearest star within this many "
-                                         "pixels").tag(sync=True)
+    selection_mode = traitlets.Enum(
+        ["pan", "brush", "lasso"], default_value="pan", help="what a mouse drag does: pan, box selection or lasso"
+    ).tag(sync=True)
+    hover_radius_px = traitlets.Int(
+        12, min=1, max=100, help="hover read-out picks the nearest star within this many pixels"
+    ).tag(sync=True)
     selected = _binary_trait("indices of the selected stars, uint32 little-endian, increasing")
     selection_region = traitlets.Dict(
         help="the region last selected in the browser: {'kind': 'box', 'x': [lo, hi], 'y': [lo, hi]} or "
-             "{'kind': 'lasso', 'x': [...], 'y': [...]} (vertices), in data units; {} when cleared"
+        "{'kind': 'lasso', 'x': [...], 'y': [...]} (vertices), in data units; {} when cleared"
     ).tag(sync=True)
-    draw_count = traitlets.Int(0, help="number of redraws so far, written by the browser after each "
-                                       "draw (lets tests and callers wait for a redraw)").tag(sync=True)
+    draw_count = traitlets.Int(
+        0,
+        help="number of redraws so far, written by the browser after each "
+        "draw (lets tests and callers wait for a redraw)",
+    ).tag(sync=True)
 
     def __init__(self, **kwargs):
         super().__init__(**kwargs)
@@ -146,9 +158,23 @@ class SampleScatter(anywidget.AnyWidget):
         self.observe(self._notify_select, names="selected")
 
     # ---- data ----
-    def set_data(self, x, y, c=None, *, x_label=None, y_label=None, c_label=None, x_unit=None,
-                 y_unit=None, c_unit=None, c_range=None, view_range=None, keep_view=False,
-                 keep_selection=False):
+    def set_data(
+        self,
+        x,
+        y,
+        c=None,
+        *,
+        x_label=None,
+        y_label=None,
+        c_label=None,
+        x_unit=None,
+        y_unit=None,
+        c_unit=None,
+        c_range=None,
+        view_range=None,
+        keep_view=False,
+        keep_selection=False,
+    ):
         """Send a sample to the view in one message.
 
         Parameters
@@ -245,8 +271,9 @@ class SampleScatter(anywidget.AnyWidget):
         idx = idx.astype(np.int64, copy=False).ravel()
         bad = (idx < 0) | (idx >= self.n_points)
         if bad.any():
-            raise ViewDataError(f"selected_indices: {int(bad.sum())} indices outside 0..{self.n_points - 1}, "
-                                f"first {int(idx[bad][0])}")
+            raise ViewDataError(
+                f"selected_indices: {int(bad.sum())} indices outside 0..{self.n_points - 1}, first {int(idx[bad][0])}"
+            )
         self.selected = np.unique(idx).astype(_U32).tobytes()
         self.selection_region = {}
 
@@ -348,37 +375,59 @@ class GalaxyView(anywidget.AnyWidget):
     track_y = _binary_trait("orbit track y (kpc), float32 little-endian")
     cloud_x = _binary_trait("x (kpc) of extra faint tracks, float32, tracks separated by NaN")
     cloud_y = _binary_trait("y (kpc) of extra faint tracks, float32, tracks separated by NaN")
-    star_xy = traitlets.List(traitlets.Float(), default_value=list(_SUN_XY), minlen=2, maxlen=2,
-                             help="star's initial position [x, y] in kpc").tag(sync=True)
-    velocity_xy = traitlets.List(traitlets.Float(), default_value=list(_SUN_VXY), minlen=2, maxlen=2,
-                                 help="star's initial in-plane velocity [vx, vy] in km/s; set by dragging "
-                                      "the arrow tip").tag(sync=True)
-    sun_xy = traitlets.List(traitlets.Float(), default_value=list(_SUN_XY), minlen=2, maxlen=2,
-                            help="the Sun's position [x, y] in kpc (default: the default frame's, "
-                                 "x = -R0)").tag(sync=True)
-    sun_velocity_xy = traitlets.List(traitlets.Float(), default_value=list(_SUN_VXY), minlen=2, maxlen=2,
-                                     help="the Sun's in-plane velocity [vx, vy] in km/s; sets the sense of "
-                                          "the rotation arrow").tag(sync=True)
-    colors = traitlets.Dict(default_value=dict(ORBIT_COLOURS),
-                            help="CSS colours of track, cloud, star, arrow, sun, centre and rotation (the "
-                                 "orbit views' palette, mwkin.widgets._plots.ORBIT_COLOURS)").tag(sync=True)
-    cloud_opacity = traitlets.Float(CLOUD_OPACITY, min=0.0, max=1.0,
-                                    help="opacity of the faint cloud tracks").tag(sync=True)
-    rotation_x = _binary_trait("x (kpc) of the arc showing the sense of rotation, float32; follows sun_xy and "
-                               "sun_velocity_xy (rotation_arc)")
+    star_xy = traitlets.List(
+        traitlets.Float(), default_value=list(_SUN_XY), minlen=2, maxlen=2, help="star's initial position [x, y] in kpc"
+    ).tag(sync=True)
+    velocity_xy = traitlets.List(
+        traitlets.Float(),
+        default_value=list(_SUN_VXY),
+        minlen=2,
+        maxlen=2,
+        help="star's initial in-plane velocity [vx, vy] in km/s; set by dragging the arrow tip",
+    ).tag(sync=True)
+    sun_xy = traitlets.List(
+        traitlets.Float(),
+        default_value=list(_SUN_XY),
+        minlen=2,
+        maxlen=2,
+        help="the Sun's position [x, y] in kpc (default: the default frame's, x = -R0)",
+    ).tag(sync=True)
+    sun_velocity_xy = traitlets.List(
+        traitlets.Float(),
+        default_value=list(_SUN_VXY),
+        minlen=2,
+        maxlen=2,
+        help="the Sun's in-plane velocity [vx, vy] in km/s; sets the sense of the rotation arrow",
+    ).tag(sync=True)
+    colors = traitlets.Dict(
+        default_value=dict(ORBIT_COLOURS),
+        help="CSS colours of track, cloud, star, arrow, sun, centre and rotation (the "
+        "orbit views' palette, mwkin.widgets._plots.ORBIT_COLOURS)",
+    ).tag(sync=True)
+    cloud_opacity = traitlets.Float(CLOUD_OPACITY, min=0.0, max=1.0, help="opacity of the faint cloud tracks").tag(
+        sync=True
+    )
+    rotation_x = _binary_trait(
+        "x (kpc) of the arc showing the sense of rotation, float32; follows sun_xy and sun_velocity_xy (rotation_arc)"
+    )
     rotation_y = _binary_trait("y (kpc) of the arc showing the sense of rotation, float32")
-    arrow_scale = traitlets.Float(50.0, min=1e-3,
-                                  help="velocity arrow scale, km/s per kpc of arrow length").tag(sync=True)
-    view_range = traitlets.List(traitlets.Float(), default_value=[-13.0, 13.0, -13.0, 13.0], minlen=4,
-                                maxlen=4, help="shown region [x0, x1, y0, y1] in kpc (widened to equal "
-                                               "aspect)").tag(sync=True)
+    arrow_scale = traitlets.Float(50.0, min=1e-3, help="velocity arrow scale, km/s per kpc of arrow length").tag(
+        sync=True
+    )
+    view_range = traitlets.List(
+        traitlets.Float(),
+        default_value=[-13.0, 13.0, -13.0, 13.0],
+        minlen=4,
+        maxlen=4,
+        help="shown region [x0, x1, y0, y1] in kpc (widened to equal aspect)",
+    ).tag(sync=True)
     width = traitlets.Int(460, min=120, help="width of the view in CSS pixels").tag(sync=True)
     height = traitlets.Int(460, min=120, help="height of the view in CSS pixels").tag(sync=True)
     editable = traitlets.Bool(True, help="whether the velocity arrow can be dragged").tag(sync=True)
-    dragging = traitlets.Bool(False, help="True while the arrow is being dragged (set by the "
-                                          "browser)").tag(sync=True)
-    draw_count = traitlets.Int(0, help="number of redraws so far, written by the browser after each "
-                                       "draw").tag(sync=True)
+    dragging = traitlets.Bool(False, help="True while the arrow is being dragged (set by the browser)").tag(sync=True)
+    draw_count = traitlets.Int(0, help="number of redraws so far, written by the browser after each draw").tag(
+        sync=True
+    )
 
     def __init__(self, **kwargs):
         super().__init__(**kwargs)
@@ -408,30 +457,63 @@ class GalaxyView(anywidget.AnyWidget):
         track_x, track_y = (v.astype(float) for v in self.track())
         layers = []
         if cloud_x.size:
-            layers.append({"kind": "line", "x": cloud_x, "y": cloud_y, "color": c["cloud"], "width": 1.0,
-                           "opacity": self.cloud_opacity})
+            layers.append(
+                {
+                    "kind": "line",
+                    "x": cloud_x,
+                    "y": cloud_y,
+                    "color": c["cloud"],
+                    "width": 1.0,
+                    "opacity": self.cloud_opacity,
+                }
+            )
         layers.append({"kind": "line", "x": track_x, "y": track_y, "color": c["track"], "width": 1.5})
         arc_x, arc_y = (np.frombuffer(b, _F32).astype(float) for b in (self.rotation_x, self.rotation_y))
         if arc_x.size >= 2:
-            layers += [{"kind": "line", "x": arc_x, "y": arc_y, "color": c["rotation"], "width": 2.0},
-                       {"kind": "arrow", "x": arc_x[-2:], "y": arc_y[-2:], "color": c["rotation"], "width": 2.0},
-                       {"kind": "text", "x": [1.12 * arc_x[-1]], "y": [1.12 * arc_y[-1]], "text": "Galactic rotation",
-                        "color": c["rotation"]}]
+            layers += [
+                {"kind": "line", "x": arc_x, "y": arc_y, "color": c["rotation"], "width": 2.0},
+                {"kind": "arrow", "x": arc_x[-2:], "y": arc_y[-2:], "color": c["rotation"], "width": 2.0},
+                {
+                    "kind": "text",
+                    "x": [1.12 * arc_x[-1]],
+                    "y": [1.12 * arc_y[-1]],
+                    "text": "Galactic rotation",
+                    "color": c["rotation"],
+                },
+            ]
         (sx, sy), (vx, vy), scale = self.star_xy, self.velocity_xy, self.arrow_scale
         layers += [
             {"kind": "scatter", "x": [0.0], "y": [0.0], "color": c["centre"], "size": 80, "marker": "+"},
             {"kind": "text", "x": [0.0], "y": [0.0], "text": "  Galactic centre", "color": c["centre"]},
-            {"kind": "scatter", "x": [self.sun_xy[0]], "y": [self.sun_xy[1]], "color": c["sun"], "size": 60,
-             "marker": "o"},
-            {"kind": "text", "x": [self.sun_xy[0]], "y": [self.sun_xy[1]], "text": "Sun  ", "color": c["centre"],
-             "align": "right"},
-            {"kind": "arrow", "x": [sx, sx + vx / scale], "y": [sy, sy + vy / scale], "color": c["arrow"],
-             "width": 2.0},
+            {
+                "kind": "scatter",
+                "x": [self.sun_xy[0]],
+                "y": [self.sun_xy[1]],
+                "color": c["sun"],
+                "size": 60,
+                "marker": "o",
+            },
+            {
+                "kind": "text",
+                "x": [self.sun_xy[0]],
+                "y": [self.sun_xy[1]],
+                "text": "Sun  ",
+                "color": c["centre"],
+                "align": "right",
+            },
+            {
+                "kind": "arrow",
+                "x": [sx, sx + vx / scale],
+                "y": [sy, sy + vy / scale],
+                "color": c["arrow"],
+                "width": 2.0,
+            },
             {"kind": "scatter", "x": [sx], "y": [sy], "color": c["star"], "size": 20},
         ]
         x0, x1, y0, y1 = self.view_range
-        return Panel(title, "x [kpc]", "y [kpc]", layers, equal_aspect=True, notes=notes,
-                     x_range=(x0, x1), y_range=(y0, y1))
+        return Panel(
+            title, "x [kpc]", "y [kpc]", layers, equal_aspect=True, notes=notes, x_range=(x0, x1), y_range=(y0, y1)
+        )
 
     def set_track(self, x, y):
         """Send the orbit track (kpc; Quantity or plain numbers) in one message.
@@ -463,6 +545,7 @@ class GalaxyView(anywidget.AnyWidget):
                 raise ViewDataError(f"cloud track {i}: x and y differ in length: {tx.size} and {ty.size}")
             xs += [tx, np.full(1, np.nan, _F32)]
             ys += [ty, np.full(1, np.nan, _F32)]
+
         def cat(parts):
             return np.concatenate(parts).astype(_F32).tobytes() if parts else b""
 

@@ -15,8 +15,9 @@ import mwkin as mk
 R0 = 8.122  # kpc, the astropy v4.0 frame the mock is made in
 
 
-def flat_disc_sample(n, seed, *, v_flat=230.0, r_max=1.0, z_scale=0.15, plx_error=(0.02, 0.06),
-                     pm_error=(0.02, 0.05), rv_fraction=0.6):
+def flat_disc_sample(
+    n, seed, *, v_flat=230.0, r_max=1.0, z_scale=0.15, plx_error=(0.02, 0.06), pm_error=(0.02, 0.05), rv_fraction=0.6
+):
     """Stars within ``r_max`` kpc of the Sun, mean flow ``v_flat`` km/s, dispersions (30, 20, 15) km/s.
 
     Gaussian parallax (uniform errors in ``plx_error`` mas) and proper-motion noise (``pm_error`` mas/yr);
@@ -36,9 +37,10 @@ def flat_disc_sample(n, seed, *, v_flat=230.0, r_max=1.0, z_scale=0.15, plx_erro
     # phi = atan2(y, -x) increases with rotation: e_R = (x, y)/R, e_phi = (y, -x)/R
     vx = v_R * x / R + v_phi * y / R
     vy = v_R * y / R - v_phi * x / R
-    gc = SkyCoord(CartesianRepresentation(x, y, z, unit=u.kpc,
-                                          differentials=CartesianDifferential(vx, vy, v_z, unit=u.km / u.s)),
-                  frame=gc_frame)
+    gc = SkyCoord(
+        CartesianRepresentation(x, y, z, unit=u.kpc, differentials=CartesianDifferential(vx, vy, v_z, unit=u.km / u.s)),
+        frame=gc_frame,
+    )
     icrs = gc.transform_to(ICRS())
     t = QTable()
     t["ra"] = icrs.ra.to(u.deg)

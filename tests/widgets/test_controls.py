@@ -83,7 +83,7 @@ def test_uvw_plus_vc_converts_to_and_from_the_cartesian_v_sun():
     assert controls.fields["W"].value == pytest.approx(7.78)
     controls.fields["vc"].text.value = 230.0
     assert state.v_sun == pytest.approx((12.9, 242.24, 7.78))
-    controls.fields["V"].text.value = 5.0      # vc kept, the split changes
+    controls.fields["V"].text.value = 5.0  # vc kept, the split changes
     assert state.v_sun[1] == pytest.approx(235.0)
     controls.fields["U"].text.value = 11.1
     assert state.v_sun[0] == pytest.approx(11.1)
@@ -106,8 +106,8 @@ def test_a_refused_value_stays_typed_and_the_error_is_shown():
     state = FrameState()
     controls = FrameControls(state)
     controls.fields["R0"].text.value = -2.0
-    assert state.R0 == pytest.approx(8.122)              # the state kept its value
-    assert controls.fields["R0"].value == -2.0           # the typed value is not lost
+    assert state.R0 == pytest.approx(8.122)  # the state kept its value
+    assert controls.fields["R0"].value == -2.0  # the typed value is not lost
     assert "mwkin-invalid" in controls.fields["R0"]._dom_classes
     assert controls.status.startswith("error") and "R0 must be positive" in controls.status
     controls.fields["z_sun"].text.value = 1e6
@@ -123,7 +123,7 @@ def test_reset_returns_to_the_last_preset_chosen():
     controls = FrameControls(state)
     controls.preset_dropdown.value = "astropy pre-v4.0"
     controls.fields["R0"].text.value = 9.0
-    controls.fields["z_sun"].text.value = -1e6             # refused, still typed
+    controls.fields["z_sun"].text.value = -1e6  # refused, still typed
     controls.reset()
     assert state.frame == mk.SolarFrame.preset("astropy pre-v4.0")
     assert controls.fields["z_sun"].value == pytest.approx(27.0)
@@ -193,7 +193,7 @@ def test_the_result_is_the_cores_rotation_curve_with_the_frame_comparison():
     assert isinstance(result, QTable) and result.colnames == expected.colnames
     for name in expected.colnames:
         np.testing.assert_allclose(result[name].value, expected[name].value, rtol=1e-12)
-    oort = result.meta["oort"]                       # mwkin's OortConstants at the in-plane R0
+    oort = result.meta["oort"]  # mwkin's OortConstants at the in-plane R0
     assert oort.R.to_value("kpc") == pytest.approx(frame.frame.inplane_radius)
     assert oort.A.to_value("km/(s kpc)") == pytest.approx(model.oort_constants(8.0).A.value, rel=1e-12)
     assert result.meta["vc_frame_kms"] == pytest.approx(245.6 - 12.24)
@@ -210,10 +210,10 @@ def test_the_result_is_the_cores_rotation_curve_with_the_frame_comparison():
     assert list(curves) == ["total", "bulge", "disc", "halo"]
     np.testing.assert_array_equal(curves["total"], result["vc"].value)
     with pytest.warns(DeprecationWarning), pytest.raises(KeyError):
-        result["vc_8"]                               # there is a frame: the value is vc_pot
+        result["vc_8"]  # there is a frame: the value is vc_pot
     alone = PotentialControls(PotentialState(), threaded=False)
     with pytest.warns(DeprecationWarning):
-        assert alone.result["vc_8"] == pytest.approx(220.0, abs=0.05)    # Bovy 2015: 220 km/s at 8 kpc
+        assert alone.result["vc_8"] == pytest.approx(220.0, abs=0.05)  # Bovy 2015: 220 km/s at 8 kpc
     assert "v_c(8 kpc) = <b>220.0 km/s</b>" in alone.readout.value
 
 
@@ -243,6 +243,7 @@ def test_rotation_curve_has_total_and_components_that_add_in_quadrature():
     np.testing.assert_allclose(y[0] ** 2, (y[1:] ** 2).sum(axis=0), rtol=1e-10)
     # against galpy directly: MWPotential2014 at R = 8 kpc is 220 km/s in galpy's units (ro=8, vo=220)
     from galpy.potential import MWPotential2014, vcirc
+
     R = np.asarray(mark.x, dtype=float)
     i = np.argmin(np.abs(R - 12.0))
     assert y[0, i] == pytest.approx(220.0 * vcirc(MWPotential2014, R[i] / 8.0), rel=1e-9)
@@ -276,7 +277,7 @@ def test_a_slider_switches_to_the_three_component_model_and_redraws():
     assert controls.preset_dropdown.value == ""
     after = np.asarray(controls.curve_mark.y, dtype=float)
     assert not np.allclose(before, after)
-    assert vc_at_sun(controls) > 225.0                  # a heavier disc, a faster rotation
+    assert vc_at_sun(controls) > 225.0  # a heavier disc, a faster rotation
     assert controls.parameter_box.layout.display != "none"
 
 
@@ -303,7 +304,7 @@ def test_matching_the_frame_rescales_vc_at_the_sun():
     frame.R0 = 8.3
     controls.wait()
     assert vc_at_sun(controls) == pytest.approx(245.6 - 12.24, rel=1e-9)
-    assert not np.allclose(np.asarray(controls.curve_mark.y, dtype=float), curve)   # rescaled model
+    assert not np.allclose(np.asarray(controls.curve_mark.y, dtype=float), curve)  # rescaled model
 
 
 def test_choosing_a_preset_shows_busy_then_the_citation():
@@ -326,6 +327,7 @@ def test_the_newest_potential_request_wins():
         controls.sliders[("disc", "mass")][0].slider.value = float(mass)
     controls.wait()
     from mwkin.potentials import Potential
+
     expected = float(Potential.three_component(**pot.parameters).vcirc(8.0).value)
     assert vc_at_sun(controls) == pytest.approx(expected, rel=1e-12)
     assert pot.parameters["disc"]["mass"] == pytest.approx(9.0e10)

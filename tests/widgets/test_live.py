@@ -27,11 +27,11 @@ def test_requests_made_while_busy_coalesce_to_the_newest():
     runner.submit(1)
     while not computed:
         time.sleep(0.001)
-    for request in (2, 3, 4):       # queued while 1 runs: each replaces the one before
+    for request in (2, 3, 4):  # queued while 1 runs: each replaces the one before
         runner.submit(request)
     gate.set()
     assert runner.wait(10)
-    assert computed == [1, 4] and results == [4]   # 1 was stale when it ended; 2 and 3 never ran
+    assert computed == [1, 4] and results == [4]  # 1 was stale when it ended; 2 and 3 never ran
 
 
 def test_errors_go_to_the_callback_with_their_request():
@@ -49,7 +49,7 @@ def test_a_stalled_computation_does_not_block_newer_requests():
 
     def compute(request):
         if request == "stuck":
-            release.wait(30)      # stands for a computation that never returns
+            release.wait(30)  # stands for a computation that never returns
         return request
 
     runner, results, _ = collecting_runner(compute, stall_seconds=0.2)
@@ -58,7 +58,7 @@ def test_a_stalled_computation_does_not_block_newer_requests():
     runner.submit("next")
     assert runner.wait(10), "the newer request waited for the stalled one"
     assert results == ["next"]
-    release.set()                 # the stalled computation ends late: its outcome is dropped
+    release.set()  # the stalled computation ends late: its outcome is dropped
     time.sleep(0.2)
     assert results == ["next"]
     runner.submit("again")
@@ -82,12 +82,12 @@ def test_inline_requests_run_in_place_when_idle_and_queue_behind_a_running_one()
 
     busy = []
     runner, results, _ = collecting_runner(compute, on_busy=busy.append)
-    runner.submit("quick", inline=True)          # idle: computed here, at once, no busy flicker
+    runner.submit("quick", inline=True)  # idle: computed here, at once, no busy flicker
     assert results == ["quick"] and threads[-1] is threading.current_thread() and busy == [] and runner.idle
     runner.submit("slow")
     while len(threads) < 2:
         time.sleep(0.001)
-    runner.submit("quick again", inline=True)    # something is running: queued, the newest wins
+    runner.submit("quick again", inline=True)  # something is running: queued, the newest wins
     assert results == ["quick"]
     gate.set()
     assert runner.wait(10)

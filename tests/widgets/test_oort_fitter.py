@@ -20,8 +20,16 @@ R0 = 8.122  # kpc, the astropy v4.0 frame the mock is made in
 
 def flat_rotation_sample(n=12000, seed=11, rv_fraction=0.5, r_max=1.0):
     """Stars within r_max kpc of the Sun on a flat rotation curve, made with astropy's Galactocentric frame."""
-    return flat_disc_sample(n, seed, v_flat=V_FLAT, r_max=r_max, z_scale=0.1, plx_error=(0.02, 0.05),
-                            pm_error=(0.02, 0.06), rv_fraction=rv_fraction)
+    return flat_disc_sample(
+        n,
+        seed,
+        v_flat=V_FLAT,
+        r_max=r_max,
+        z_scale=0.1,
+        plx_error=(0.02, 0.05),
+        pm_error=(0.02, 0.06),
+        rv_fraction=rv_fraction,
+    )
 
 
 @pytest.fixture(scope="module")
@@ -62,14 +70,16 @@ def test_views_show_the_fitted_stars_and_the_model(sample):
     # the per-star model (data minus the fit's residual, from the solver) is the first-order formula of
     # REFERENCES.md (mwkin.oort.predicted_observables) evaluated at each star's l, b, d
     geometry, arrays = w._geometry, w._fit_arrays
-    mu_model, _, vr_model = predicted_observables(geometry.l_deg[used], geometry.b_deg[used], arrays["distance"][used],
-                                                  fit)
+    mu_model, _, vr_model = predicted_observables(
+        geometry.l_deg[used], geometry.b_deg[used], arrays["distance"][used], fit
+    )
     mu_data = arrays["mu_l_star"]  # float64 (the view holds float32)
     np.testing.assert_allclose(mu[used], mu_data[used], rtol=1e-6)
     np.testing.assert_allclose(mu_model, mu_data[used] - res["delta_mu_l_star"].value[used], atol=1e-9)
     has_rv = used & np.isfinite(res["delta_v_r"].value)
-    _, _, vr_model = predicted_observables(geometry.l_deg[has_rv], geometry.b_deg[has_rv], arrays["distance"][has_rv],
-                                           fit)
+    _, _, vr_model = predicted_observables(
+        geometry.l_deg[has_rv], geometry.b_deg[has_rv], arrays["distance"][has_rv], fit
+    )
     np.testing.assert_allclose(vr_model, arrays["v_r"][has_rv] - res["delta_v_r"].value[has_rv], atol=1e-9)
     np.testing.assert_allclose(y_of(w.vr_view)[has_rv], arrays["v_r"][has_rv], rtol=1e-6)
     # the curve is the model at b = 0 and the median distance
@@ -196,8 +206,15 @@ def test_bad_bins_and_broken_upload_show_errors(sample):
     w.bins_text.value = "0, 0.25, 0.5"
     assert w.status.startswith("ready") and len(w.result.bins) == 2
     fit = w.result
-    w.loader.upload.value = ({"name": "bad.fits", "type": "", "size": 9, "content": memoryview(b"not fits!"),
-                              "last_modified": datetime.datetime(2024, 1, 1, tzinfo=datetime.timezone.utc)},)
+    w.loader.upload.value = (
+        {
+            "name": "bad.fits",
+            "type": "",
+            "size": 9,
+            "content": memoryview(b"not fits!"),
+            "last_modified": datetime.datetime(2024, 1, 1, tzinfo=datetime.timezone.utc),
+        },
+    )
     assert w.status.startswith("error") and "kept the previous sample" in w.status
     assert w.result is fit and len(w.sample) == len(sample)
 
@@ -342,14 +359,22 @@ def test_the_export_is_drawn_from_the_live_views(sample):
     # One description: each exported panel copies a live view (its title, data, colours and labels).
     w = fitter(sample)
     panels = {panel.title: panel for panel in w._figure_panels()}
-    assert list(panels) == ["mu_l* against l: fitted stars", "mu_l*: binned medians and the model",
-                            "v_r against l: fitted stars", "v_r: binned medians and the model",
-                            "normalised residuals of mu_l* against l", "A and B in distance bins"]
+    assert list(panels) == [
+        "mu_l* against l: fitted stars",
+        "mu_l*: binned medians and the model",
+        "v_r against l: fitted stars",
+        "v_r: binned medians and the model",
+        "normalised residuals of mu_l* against l",
+        "A and B in distance bins",
+    ]
     stars = panels["mu_l* against l: fitted stars"].layers[0]
     np.testing.assert_array_equal(stars["y"], w.mu_view.data()["y"])
     assert stars["c_label"] == "distance [kpc]"
-    model = next(layer for layer in panels["mu_l*: binned medians and the model"].layers
-                 if layer.get("label", "").startswith("model, b = 0"))
+    model = next(
+        layer
+        for layer in panels["mu_l*: binned medians and the model"].layers
+        if layer.get("label", "").startswith("model, b = 0")
+    )
     np.testing.assert_array_equal(model["y"], w.mu_model.y)
     assert model["color"] == w.mu_model.colors[0]
     band = next(layer for layer in panels["mu_l*: binned medians and the model"].layers if layer["kind"] == "band")

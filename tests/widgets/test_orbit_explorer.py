@@ -13,8 +13,18 @@ import mwkin as mk
 from mwkin.widgets import FrameState, OrbitExplorer, PotentialState
 
 # A thin-disc-like star about 1 kpc away, made up for these tests (parallax/error = 25).
-STAR = {"ra": 120.0, "dec": -30.0, "parallax": 1.0, "pmra": -4.0, "pmdec": 3.0, "radial_velocity": 15.0,
-        "parallax_error": 0.04, "pmra_error": 0.05, "pmdec_error": 0.05, "radial_velocity_error": 1.0}
+STAR = {
+    "ra": 120.0,
+    "dec": -30.0,
+    "parallax": 1.0,
+    "pmra": -4.0,
+    "pmdec": 3.0,
+    "radial_velocity": 15.0,
+    "parallax_error": 0.04,
+    "pmra_error": 0.05,
+    "pmdec_error": 0.05,
+    "radial_velocity_error": 1.0,
+}
 N = 501
 
 
@@ -40,7 +50,7 @@ def test_first_result_is_an_orbit_set_drawn_in_both_views():
     assert ex.status.startswith("ready")
     track = ex.result.track(0)
     gx, gy = ex.galaxy_view.track()
-    assert gx.dtype == np.float32 and gx.size == N        # binary float32, not a JSON list
+    assert gx.dtype == np.float32 and gx.size == N  # binary float32, not a JSON list
     np.testing.assert_allclose(gx, track["x"].value, rtol=1e-6)
     np.testing.assert_allclose(gy, track["y"].value, rtol=1e-6, atol=1e-6)
     # the arrow starts at the star with its initial in-plane velocity
@@ -75,7 +85,7 @@ def test_changing_a_potential_parameter_recomputes():
     ex = explorer(potential=pot)
     rapo = float(ex.result.rapo[0].value)
     params = {c: dict(p) for c, p in pot.parameters.items()}
-    params["disc"]["mass"] *= 1.5                     # a heavier disc pulls the orbit in
+    params["disc"]["mass"] *= 1.5  # a heavier disc pulls the orbit in
     with pot.hold_trait_notifications():
         pot.parameters = params
         pot.preset = ""
@@ -101,12 +111,12 @@ def test_a_negative_parallax_is_an_error_on_screen_and_the_inputs_stay():
     ex.observable_fields["parallax"].text.value = -0.5
     ex.wait()
     assert ex.status.startswith("error") and "parallax = -0.5 mas" in ex.status
-    assert "mwkin-status-error" in ex.status_line.value          # shown on screen, in red
-    assert ex.observable_fields["parallax"].value == -0.5         # the typed value stays
-    assert before is not None and ex.result is None               # the orbit was for other inputs
-    assert ex._plots_box.layout.visibility == "hidden"            # ... and is not shown
+    assert "mwkin-status-error" in ex.status_line.value  # shown on screen, in red
+    assert ex.observable_fields["parallax"].value == -0.5  # the typed value stays
+    assert before is not None and ex.result is None  # the orbit was for other inputs
+    assert ex._plots_box.layout.visibility == "hidden"  # ... and is not shown
     assert frame.R0 == pytest.approx(8.122)
-    ex.distance_input.value = "distance"                         # the fix the message suggests
+    ex.distance_input.value = "distance"  # the fix the message suggests
     ex.observable_fields["distance"].text.value = 1.0
     ex.wait()
     assert ex.status.startswith("ready")
@@ -114,8 +124,9 @@ def test_a_negative_parallax_is_an_error_on_screen_and_the_inputs_stay():
     assert ex.observable_fields["parallax"].value == -0.5
 
 
-@pytest.mark.parametrize("field, value, words", [("n_points", 1, "output points = 1"),
-                                                 ("t_forward", -1.0, "must be >= 0")])
+@pytest.mark.parametrize(
+    "field, value, words", [("n_points", 1, "output points = 1"), ("t_forward", -1.0, "must be >= 0")]
+)
 def test_a_bad_time_grid_is_an_error_and_the_inputs_stay(field, value, words):
     ex = explorer()
     if field == "n_points":
@@ -132,8 +143,9 @@ def test_a_bad_time_grid_is_an_error_and_the_inputs_stay(field, value, words):
 def test_the_core_rejects_a_grid_the_widget_passes_on():
     # the widget builds even grids; the core's own check is what a user of the API meets
     with pytest.raises(mk.orbits.TimeGridError, match="start at 0"):
-        mk.integrate_orbits(np.array([-8.0, 0, 0, 0, 220, 0]), mk.Potential.preset("MWPotential2014"),
-                            t=np.linspace(1.0, 2.0, 5))
+        mk.integrate_orbits(
+            np.array([-8.0, 0, 0, 0, 220, 0]), mk.Potential.preset("MWPotential2014"), t=np.linspace(1.0, 2.0, 5)
+        )
 
 
 def test_two_explorers_sharing_one_frame_both_update():
@@ -164,8 +176,7 @@ def test_backward_integration_is_drawn_and_joins_the_forward_one():
     np.testing.assert_allclose(ex.meridional_marks["backward"].x, back.track(0)["R"].value)
     # the face-on view draws the whole span as one line in time order: backward reversed, then forward
     fwd = ex.result.track(0)["x"].value
-    np.testing.assert_allclose(marks_x(ex), np.concatenate([back.track(0)["x"].value[::-1], fwd[1:]]),
-                               rtol=1e-6)
+    np.testing.assert_allclose(marks_x(ex), np.concatenate([back.track(0)["x"].value[::-1], fwd[1:]]), rtol=1e-6)
     # both start at the star's present position
     assert ex.meridional_marks["backward"].x[0] == pytest.approx(ex.meridional_marks["forward"].x[0])
     params = ex.orbital_parameters()
@@ -179,7 +190,7 @@ def test_circular_orbit_in_mwpotential2014():
     p = ex.orbital_parameters()
     assert p["eccentricity"] < 1e-3
     assert p["rperi"] == pytest.approx(8.0, abs=0.01) and p["rapo"] == pytest.approx(8.0, abs=0.01)
-    assert p["Lz"] == pytest.approx(8.0 * 220.0, rel=1e-6)          # L_z = R v_phi, prograde positive
+    assert p["Lz"] == pytest.approx(8.0 * 220.0, rel=1e-6)  # L_z = R v_phi, prograde positive
 
 
 def test_phase_space_input_does_not_depend_on_the_frame():
@@ -192,13 +203,21 @@ def test_phase_space_input_does_not_depend_on_the_frame():
     frame.R0 = 8.4
     ex.wait()
     assert float(ex.result.rapo[0].value) == pytest.approx(rapo, rel=1e-12)
-    assert ex.galaxy_view.sun_xy[0] == pytest.approx(-8.4, abs=1e-3)   # only the Sun moved
+    assert ex.galaxy_view.sun_xy[0] == pytest.approx(-8.4, abs=1e-3)  # only the Sun moved
 
 
 def test_a_table_row_round_trips_to_its_phase_space():
     frame = mk.SolarFrame.preset("astropy v4.0")
-    phase = QTable({"x": [-7.5, -8.6, -9.0], "y": [0.3, -0.4, 1.0], "z": [0.05, -0.2, 0.3],
-                    "vx": [20.0, -15.0, 5.0], "vy": [225.0, 240.0, 200.0], "vz": [3.0, -10.0, 25.0]})
+    phase = QTable(
+        {
+            "x": [-7.5, -8.6, -9.0],
+            "y": [0.3, -0.4, 1.0],
+            "z": [0.05, -0.2, 0.3],
+            "vx": [20.0, -15.0, 5.0],
+            "vy": [225.0, 240.0, 200.0],
+            "vz": [3.0, -10.0, 25.0],
+        }
+    )
     stars = mk.from_galactocentric(phase, frame=frame)
     for name, err in (("parallax", 0.02), ("pmra", 0.03), ("pmdec", 0.03), ("radial_velocity", 0.5)):
         stars[f"{name}_error"] = np.full(len(stars), err) * stars[name].unit
@@ -222,16 +241,18 @@ def test_cloud_orbits_are_the_samples_orbit_parameters_summarises():
     # the face-on view gets the 20 tracks packed into one float32 buffer, separated by NaN
     cx = np.frombuffer(ex.galaxy_view.cloud_x, np.float32)
     assert cx.size == 20 * (cloud.t.size + 1) and np.isnan(cx).sum() == 20
-    np.testing.assert_allclose(cx[:cloud.t.size], cloud.track(0)["x"].value, rtol=1e-6)
+    np.testing.assert_allclose(cx[: cloud.t.size], cloud.track(0)["x"].value, rtol=1e-6)
     # orbit_parameters draws from the same linear covariance with the same sampler and seed. (It is given
     # the phase space with its covariance: passing observables with n_samples > 0 fails in orbits.py,
     # which looks for cov_galactocentric among the input's column names.)
     grid = cloud.t.value
     star = QTable({k: [v] for k, v in STAR.items()})
-    phase = mk.to_galactocentric(star, frame=ex.result.frame, distance=mk.InverseParallax(min_snr=0),
-                                 errors="linear", return_covariance=True)
-    table = mk.orbit_parameters(phase, ex.result.potential, frame=ex.result.frame, method="integrate", t=grid,
-                                n_samples=20, seed=7)
+    phase = mk.to_galactocentric(
+        star, frame=ex.result.frame, distance=mk.InverseParallax(min_snr=0), errors="linear", return_covariance=True
+    )
+    table = mk.orbit_parameters(
+        phase, ex.result.potential, frame=ex.result.frame, method="integrate", t=grid, n_samples=20, seed=7
+    )
     lo, hi = np.percentile(cloud.rapo.value, [16, 84])
     assert lo == pytest.approx(table["rapo_p16"][0].value, rel=1e-9)
     assert hi == pytest.approx(table["rapo_p84"][0].value, rel=1e-9)
@@ -245,9 +266,9 @@ def test_views_have_equal_aspect_and_mark_the_sun_centre_and_rotation():
     ex = explorer()
     g = ex.galaxy_view
     x0, x1, y0, y1 = g.view_range
-    assert x1 - x0 == pytest.approx(y1 - y0) and x0 == pytest.approx(-x1)   # square about the centre
+    assert x1 - x0 == pytest.approx(y1 - y0) and x0 == pytest.approx(-x1)  # square about the centre
     track_x, track_y = g.track()
-    assert np.abs(track_x).max() < x1 and np.abs(track_y).max() < y1           # the orbit fits
+    assert np.abs(track_x).max() < x1 and np.abs(track_y).max() < y1  # the orbit fits
     mer_ratio = (ex._mx.max - ex._mx.min) / (ex._my.max - ex._my.min)
     plot_w = float(ex.meridional_figure.layout.width.rstrip("px")) - 2 * ex.meridional_figure.fig_margin["left"]
     plot_h = float(ex.meridional_figure.layout.height.rstrip("px")) - 2 * ex.meridional_figure.fig_margin["top"]
@@ -256,15 +277,15 @@ def test_views_have_equal_aspect_and_mark_the_sun_centre_and_rotation():
     # The view draws the rotation arrow in the sense of the Sun's motion: x vy - y vx of the Sun, which
     # must be the sense of a prograde orbit (L_z = R v_phi > 0, DESIGN.md conventions).
     sun, v_sun = g.sun_xy, g.sun_velocity_xy
-    assert sun[0] * v_sun[1] - sun[1] * v_sun[0] < 0            # clockwise seen from the north pole
+    assert sun[0] * v_sun[1] - sun[1] * v_sun[0] < 0  # clockwise seen from the north pole
     assert v_sun == pytest.approx(list(ex.result.frame.v_sun[:2]))
     assert float(ex.result.Lz[0].value) > 0
     track = ex.result.track(0)
     step = np.arctan2(track["y"].value[5], -track["x"].value[5]) - np.arctan2(track["y"].value[0], -track["x"].value[0])
-    assert step > 0   # phi = atan2(y, -x) increases with rotation (DESIGN.md conventions)
+    assert step > 0  # phi = atan2(y, -x) increases with rotation (DESIGN.md conventions)
     sx, sy = g.star_xy
     vx, vy = g.velocity_xy
-    assert sx * vy - sy * vx < 0                                 # the star moves the same way as the Sun
+    assert sx * vy - sy * vx < 0  # the star moves the same way as the Sun
 
 
 def test_config_round_trip_gives_the_same_result(tmp_path):
@@ -294,7 +315,7 @@ def test_copy_as_code_reproduces_the_result():
     snippet = ex.code()
     assert "mk.SolarFrame(" in snippet and "mk.integrate_orbits(" in snippet and "three_component" in snippet
     namespace = {}
-    exec(snippet, namespace)   # noqa: S102 - the point of the test
+    exec(snippet, namespace)  # noqa: S102 - the point of the test
     np.testing.assert_allclose(namespace["orbits"].cylindrical, ex.result.cylindrical, atol=1e-9)
     np.testing.assert_allclose(namespace["backward"].rapo.value, ex.view.backward.rapo.value, rtol=1e-12)
     ex.code_button.click()
@@ -306,7 +327,7 @@ def test_preset_snippet_executes_for_a_distance_input():
     ex = explorer(star={**star, "distance": 1.0, "distance_error": 0.04})
     assert ex.distance_input.value == "distance"
     namespace = {}
-    exec(ex.code(), namespace)   # noqa: S102
+    exec(ex.code(), namespace)  # noqa: S102
     assert "mk.Potential.preset('MWPotential2014')" in ex.code()
     np.testing.assert_allclose(namespace["orbits"].rapo.value, ex.result.rapo.value, rtol=1e-12)
 
@@ -316,7 +337,7 @@ def test_copy_as_code_reproduces_the_cloud_bands():
     ex.cloud_toggle.value = True
     ex.wait()
     namespace = {}
-    exec(ex.code(), namespace)   # noqa: S102
+    exec(ex.code(), namespace)  # noqa: S102
     cloud = namespace["cloud"]
     for name in ("rapo", "zmax"):
         lo, hi = np.percentile(getattr(ex.view.cloud, name).value, [16, 84])
@@ -344,19 +365,20 @@ def test_provenance_names_frame_and_potential():
 
 # ---- the face-on GalaxyView: dragging the velocity arrow ------------------------------------------------
 
+
 def test_a_dragged_velocity_changes_the_result_and_the_track_sent_to_the_view():
     ex = explorer()
     g = ex.galaxy_view
     rapo, rperi = float(ex.result.rapo[0].value), float(ex.result.rperi[0].value)
     track_before, star_before = g.track_x, list(g.star_xy)
     vx, vy = g.velocity_xy
-    drag(ex, vx - 40.0, vy + 30.0)                       # faster along rotation and outward: a wider orbit
+    drag(ex, vx - 40.0, vy + 30.0)  # faster along rotation and outward: a wider orbit
     ex.wait()
     assert ex.status.startswith("ready") and "velocity set by dragging" in ex.status
     assert float(ex.result.rapo[0].value) > rapo + 1.0
     assert float(ex.result.rperi[0].value) != pytest.approx(rperi, abs=1e-3)
-    assert g.track_x != track_before                                     # new bytes went to the view
-    assert g.star_xy == pytest.approx(star_before)                       # the star stays where it was
+    assert g.track_x != track_before  # new bytes went to the view
+    assert g.star_xy == pytest.approx(star_before)  # the star stays where it was
     start = ex.result.track(0)[0]
     assert (start["vx"].value, start["vy"].value) == pytest.approx((vx - 40.0, vy + 30.0), abs=1e-9)
     # the view's track is the new result's (float32)
@@ -386,14 +408,14 @@ def test_a_drag_turns_typed_observables_into_phase_space_and_keeps_them():
     original = config["star"]["original"]
     assert original["source"] == "observables" and original["observables"]["parallax"] == STAR["parallax"]
     assert original["converted_with_frame"]["R0_kpc"] == pytest.approx(8.122)
-    json.dumps(config)                                                   # still JSON-able
+    json.dumps(config)  # still JSON-able
     assert "typed observables" in ex.drag_note.value
     assert ex.restore_button.layout.display != "none"
     # copy as code reproduces the dragged orbit and says where the star came from
     snippet = ex.code()
     assert "dragging the velocity arrow" in snippet and "'vy': [260.0]" in snippet
     namespace = {}
-    exec(snippet, namespace)   # noqa: S102
+    exec(snippet, namespace)  # noqa: S102
     np.testing.assert_allclose(namespace["orbits"].cylindrical, ex.result.cylindrical, atol=1e-9)
 
 
@@ -417,8 +439,16 @@ def test_back_to_the_star_as_given_restores_the_first_result():
 
 def test_a_table_row_is_kept_when_its_velocity_is_dragged():
     frame = mk.SolarFrame.preset("astropy v4.0")
-    phase = QTable({"x": [-7.5, -8.6], "y": [0.3, -0.4], "z": [0.05, -0.2],
-                    "vx": [20.0, -15.0], "vy": [225.0, 240.0], "vz": [3.0, -10.0]})
+    phase = QTable(
+        {
+            "x": [-7.5, -8.6],
+            "y": [0.3, -0.4],
+            "z": [0.05, -0.2],
+            "vx": [20.0, -15.0],
+            "vy": [225.0, 240.0],
+            "vz": [3.0, -10.0],
+        }
+    )
     stars = mk.from_galactocentric(phase, frame=frame)
     ex = explorer(frame=FrameState(frame), star=None, stars=stars, row=1)
     drag(ex, -15.0, 200.0)
@@ -447,7 +477,7 @@ def test_dragging_a_phase_space_star_edits_its_velocity_fields():
     assert ex.phase_fields["vy"].value == 250.0 and ex.phase_fields["vx"].value == 0.0
     assert p["rperi"] == pytest.approx(8.0, abs=0.01) and p["rapo"] > 9.0
     assert p["Lz"] == pytest.approx(8.0 * 250.0, rel=1e-6)
-    assert "original" not in ex.config["star"]          # typed phase space: nothing was converted
+    assert "original" not in ex.config["star"]  # typed phase space: nothing was converted
     assert "dragging" not in ex.status
 
 
@@ -460,8 +490,8 @@ def test_frame_changes_still_update_after_a_drag():
     frame.R0 = 8.4
     ex.wait()
     assert ex.status.startswith("ready") and ex.result.frame.R0 == 8.4
-    assert ex.galaxy_view.sun_xy[0] == pytest.approx(-8.4, abs=1e-3)      # the Sun moved
-    assert ex.galaxy_view.star_xy == pytest.approx(star_xy)               # the phase-space star did not
+    assert ex.galaxy_view.sun_xy[0] == pytest.approx(-8.4, abs=1e-3)  # the Sun moved
+    assert ex.galaxy_view.star_xy == pytest.approx(star_xy)  # the phase-space star did not
     assert float(ex.result.rapo[0].value) == pytest.approx(rapo, rel=1e-12)
     assert ex.galaxy_view.velocity_xy == [5.0, 250.0]
 
@@ -469,15 +499,15 @@ def test_frame_changes_still_update_after_a_drag():
 def test_during_a_drag_the_newest_value_wins_and_the_view_stays_put():
     ex = explorer()
     g = ex.galaxy_view
-    g.view_range = [-20.0, 5.0, -10.0, 15.0]           # the user panned and zoomed
+    g.view_range = [-20.0, 5.0, -10.0, 15.0]  # the user panned and zoomed
     vx, vy = g.velocity_xy
-    for i in range(1, 16):                              # what the browser sends, one value per frame
+    for i in range(1, 16):  # what the browser sends, one value per frame
         drag(ex, vx - 3.0 * i, vy + 2.0 * i, dragging=True)
     ex.wait()
-    assert g.view_range == [-20.0, 5.0, -10.0, 15.0]   # nothing moved under the pointer
+    assert g.view_range == [-20.0, 5.0, -10.0, 15.0]  # nothing moved under the pointer
     start = ex.result.track(0)[0]
     assert (start["vx"].value, start["vy"].value) == pytest.approx((vx - 45.0, vy + 30.0), abs=1e-9)
-    drag(ex, vx - 60.0, vy + 40.0, dragging=False)      # release
+    drag(ex, vx - 60.0, vy + 40.0, dragging=False)  # release
     ex.wait()
     start = ex.result.track(0)[0]
     assert (start["vx"].value, start["vy"].value) == pytest.approx((vx - 60.0, vy + 40.0), abs=1e-9)
@@ -493,9 +523,9 @@ def test_a_late_result_for_an_older_velocity_does_not_move_the_arrow_back():
     drag(ex, 40.0, 210.0)
     ex.wait()
     generation = ex._runner.generation
-    ex._show(old_view, old_request)                     # as if the worker delivered it late
+    ex._show(old_view, old_request)  # as if the worker delivered it late
     assert ex.galaxy_view.velocity_xy == [40.0, 210.0]
-    assert ex._runner.generation == generation          # and it was not taken for a new drag
+    assert ex._runner.generation == generation  # and it was not taken for a new drag
     assert ex.phase_fields["vx"].value == 40.0
 
 
@@ -547,8 +577,8 @@ def test_a_slider_snapping_echo_does_not_edit_the_star():
     field.slider.value = -11.0
     ex.wait()
     assert field.value == -10.83 and ex.config["star"]["phase_space"]["vz"] == -10.83
-    assert ex.result is before                                     # nothing was recomputed
-    field.slider.value = -11.5                                     # a real move: a whole step further
+    assert ex.result is before  # nothing was recomputed
+    field.slider.value = -11.5  # a real move: a whole step further
     ex.wait()
     assert field.value == -11.5 and ex.result.track(0)[0]["vz"].value == pytest.approx(-11.5)
 

@@ -83,7 +83,7 @@ def test_potential_state_matches_the_frame_circular_velocity():
     state = PotentialState(match_frame_vc=True)
     frame = mk.SolarFrame.preset("astropy v4.0")
     pot = state.potential_for(frame)
-    R_sun = (frame.R0 ** 2 - (frame.z_sun / 1000.0) ** 2) ** 0.5
+    R_sun = (frame.R0**2 - (frame.z_sun / 1000.0) ** 2) ** 0.5
     assert pot.vcirc(R_sun).to_value("km/s") == pytest.approx(frame.v_sun[1] - state.solar_V, rel=1e-6)
 
 

@@ -68,8 +68,15 @@ def test_result_agrees_with_astropy_galactocentric(sample):
     rows = np.flatnonzero(np.asarray(out["has_velocity"]))[:50]
     s = sample[rows]
     plx = s["parallax"].to_value(u.mas)
-    icrs = SkyCoord(ra=s["ra"], dec=s["dec"], distance=(1.0 / plx) * u.kpc, pm_ra_cosdec=s["pmra"],
-                    pm_dec=s["pmdec"], radial_velocity=s["radial_velocity"], frame="icrs")
+    icrs = SkyCoord(
+        ra=s["ra"],
+        dec=s["dec"],
+        distance=(1.0 / plx) * u.kpc,
+        pm_ra_cosdec=s["pmra"],
+        pm_dec=s["pmdec"],
+        radial_velocity=s["radial_velocity"],
+        frame="icrs",
+    )
     gc = icrs.transform_to(frame_state.frame.to_astropy())
     # astropy's Galactocentric frame is the reference (DESIGN.md); v_phi = (y vx - x vy) / R, rotation-positive
     x, y = gc.x.to_value(u.kpc), gc.y.to_value(u.kpc)
@@ -154,13 +161,21 @@ def _file_bytes(table, fmt, folder):
 
 
 def _upload(p, name, content):
-    p.loader.upload.value = ({"name": name, "type": "", "size": len(content), "content": memoryview(content),
-                              "last_modified": datetime.datetime(2024, 1, 1, tzinfo=datetime.timezone.utc)},)
+    p.loader.upload.value = (
+        {
+            "name": name,
+            "type": "",
+            "size": len(content),
+            "content": memoryview(content),
+            "last_modified": datetime.datetime(2024, 1, 1, tzinfo=datetime.timezone.utc),
+        },
+    )
     p.wait()
 
 
-@pytest.mark.parametrize("fmt,suffix", [("csv", ".csv"), ("ecsv", ".ecsv"), ("fits", ".fits"),
-                                        ("votable", ".vot"), ("parquet", ".parquet")])
+@pytest.mark.parametrize(
+    "fmt,suffix", [("csv", ".csv"), ("ecsv", ".ecsv"), ("fits", ".fits"), ("votable", ".vot"), ("parquet", ".parquet")]
+)
 def test_uploaded_file_replaces_the_sample(sample, fmt, suffix, tmp_path):
     small = sample[:300]
     p = VelocityPanel(threaded=False)
@@ -194,7 +209,7 @@ def test_bad_setting_shows_the_error_and_keeps_the_result(sample):
     p.distance_controls.zero_point.value = float("nan")
     p.wait()
     assert p.status.startswith("error") and "zero_point" in p.status
-    assert result is not None and p.result is None     # the old result was for other settings
+    assert result is not None and p.result is None  # the old result was for other settings
     assert p._views_box.layout.visibility == "hidden"
     np.testing.assert_array_equal(view_xy(p.toomre)[0], x)
     p.distance_controls.zero_point.value = 0.0

@@ -31,8 +31,7 @@ def browser_update(widget, state, buffers=()):
         if isinstance(state[name], (bytes, memoryview)):
             paths.append([name])
             buffers = [*buffers, memoryview(state.pop(name))]
-    msg = {"content": {"data": {"method": "update", "state": state, "buffer_paths": paths}},
-           "buffers": list(buffers)}
+    msg = {"content": {"data": {"method": "update", "state": state, "buffer_paths": paths}}, "buffers": list(buffers)}
     widget._handle_msg(msg)
 
 
@@ -42,13 +41,13 @@ def run_node_module(source, tmp_path, expr):
     path = tmp_path / "bundle.mjs"
     path.write_text(source)
     script = f"import('{path.as_uri()}').then(m => console.log(JSON.stringify({expr})))"
-    out = subprocess.run([NODE, "--input-type=module", "-e", script], capture_output=True, text=True,
-                         timeout=60)
+    out = subprocess.run([NODE, "--input-type=module", "-e", script], capture_output=True, text=True, timeout=60)
     assert out.returncode == 0, out.stderr
     return out.stdout.strip()
 
 
 # ---- the inliner --------------------------------------------------------------------------------
+
 
 def write_modules(root, files):
     for rel, text in files.items():
@@ -59,13 +58,20 @@ def write_modules(root, files):
 
 
 def test_bundle_inlines_nested_imports_with_aliases_and_private_names(tmp_path):
-    root = write_modules(tmp_path / "js", {
-        "lib/a.js": "const helper = 2;\nexport function double(x) { return helper * x; }\n",
-        "lib/b.js": ('import { double as twice } from "./a.js";\nconst helper = 10;\n'
-                     "export const ten = helper;\nexport function quad(x) { return twice(twice(x)); }\n"),
-        "main.js": ("import { quad, ten } from './lib/b.js';\nimport { double } from './lib/a.js';\n"
-                    "export default { value: quad(3) + ten + double(1) };\n"),
-    })
+    root = write_modules(
+        tmp_path / "js",
+        {
+            "lib/a.js": "const helper = 2;\nexport function double(x) { return helper * x; }\n",
+            "lib/b.js": (
+                'import { double as twice } from "./a.js";\nconst helper = 10;\n'
+                "export const ten = helper;\nexport function quad(x) { return twice(twice(x)); }\n"
+            ),
+            "main.js": (
+                "import { quad, ten } from './lib/b.js';\nimport { double } from './lib/a.js';\n"
+                "export default { value: quad(3) + ten + double(1) };\n"
+            ),
+        },
+    )
     source = bundle("main.js", root=root)
     assert "import " not in source
     # each module is inlined once, in dependency order
@@ -74,16 +80,19 @@ def test_bundle_inlines_nested_imports_with_aliases_and_private_names(tmp_path):
     assert run_node_module(source, tmp_path, "m.default.value") == str(12 + 10 + 2)
 
 
-@pytest.mark.parametrize("text, message", [
-    ('import { x } from "https://cdn.example.org/x.js";\nexport default {};\n', "only relative imports"),
-    ('import { x } from "d3";\nexport default {};\n', "only relative imports"),
-    ('import * as m from "./lib/a.js";\nexport default {};\n', "unsupported import form"),
-    ('import a from "./lib/a.js";\nexport default {};\n', "unsupported import form"),
-    ('const m = await import("./lib/a.js");\nexport default {};\n', "unsupported import form"),
-    ('import { nothere } from "./lib/a.js";\nexport default {};\n', "does not export nothere"),
-    ('import { f } from "./lib/missing.js";\nexport default {};\n', "not found"),
-    ('import { f } from "./lib/a.js";\n', "needs `export default"),
-])
+@pytest.mark.parametrize(
+    "text, message",
+    [
+        ('import { x } from "https://cdn.example.org/x.js";\nexport default {};\n', "only relative imports"),
+        ('import { x } from "d3";\nexport default {};\n', "only relative imports"),
+        ('import * as m from "./lib/a.js";\nexport default {};\n', "unsupported import form"),
+        ('import a from "./lib/a.js";\nexport default {};\n', "unsupported import form"),
+        ('const m = await import("./lib/a.js");\nexport default {};\n', "unsupported import form"),
+        ('import { nothere } from "./lib/a.js";\nexport default {};\n', "does not export nothere"),
+        ('import { f } from "./lib/missing.js";\nexport default {};\n', "not found"),
+        ('import { f } from "./lib/a.js";\n', "needs `export default"),
+    ],
+)
 def test_bundle_rejects_what_it_cannot_inline(tmp_path, text, message):
     root = write_modules(tmp_path / "js", {"lib/a.js": "export function f() {}\n", "main.js": text})
     with pytest.raises(BundleError, match=message):
@@ -91,13 +100,16 @@ def test_bundle_rejects_what_it_cannot_inline(tmp_path, text, message):
 
 
 def test_bundle_rejects_cycles_and_unsupported_exports(tmp_path):
-    root = write_modules(tmp_path / "js", {
-        "lib/a.js": 'import { g } from "./b.js";\nexport function f() { return g(); }\n',
-        "lib/b.js": 'import { f } from "./a.js";\nexport function g() { return 1; }\n',
-        "lib/c.js": "function h() {}\nexport { h };\n",
-        "cyc.js": 'import { f } from "./lib/a.js";\nexport default {};\n',
-        "exp.js": 'import { h } from "./lib/c.js";\nexport default {};\n',
-    })
+    root = write_modules(
+        tmp_path / "js",
+        {
+            "lib/a.js": 'import { g } from "./b.js";\nexport function f() { return g(); }\n',
+            "lib/b.js": 'import { f } from "./a.js";\nexport function g() { return 1; }\n',
+            "lib/c.js": "function h() {}\nexport { h };\n",
+            "cyc.js": 'import { f } from "./lib/a.js";\nexport default {};\n',
+            "exp.js": 'import { h } from "./lib/c.js";\nexport default {};\n',
+        },
+    )
     with pytest.raises(BundleError, match="circular import"):
         bundle("cyc.js", root=root)
     with pytest.raises(BundleError, match="unsupported export form"):
@@ -128,10 +140,10 @@ def test_shipped_views_bundle_to_one_offline_module(entry, tmp_path):
 
 # ---- SampleScatter ------------------------------------------------------------------------------
 
+
 def own_synced_traits(cls):
     """Synced traits the class itself declares (not those of ipywidgets' base classes)."""
-    return {name: trait for name, trait in cls.class_own_traits(sync=True).items()
-            if not name.startswith("_")}
+    return {name: trait for name, trait in cls.class_own_traits(sync=True).items() if not name.startswith("_")}
 
 
 @pytest.mark.parametrize("cls", [SampleScatter, GalaxyView])
@@ -147,8 +159,7 @@ def test_set_data_sends_little_endian_float32_and_ranges():
     y = np.array([10.0, 20.0, 30.0, np.nan, 50.0])
     c = np.array([0.5, np.nan, 2.0, 3.0, -1.0])
     w = SampleScatter()
-    w.set_data(x, y, c, x_label="U", y_label="V", c_label="W", x_unit="km/s", y_unit="km/s",
-               c_unit="km/s")
+    w.set_data(x, y, c, x_label="U", y_label="V", c_label="W", x_unit="km/s", y_unit="km/s", c_unit="km/s")
     np.testing.assert_array_equal(np.frombuffer(w.x, "<f4"), x.astype(np.float32))
     np.testing.assert_array_equal(np.frombuffer(w.y, "<f4"), y.astype(np.float32))
     np.testing.assert_array_equal(np.frombuffer(w.c, "<f4"), c.astype(np.float32))
@@ -259,6 +270,7 @@ def test_trait_validation_keeps_settings_sane():
 
 # ---- GalaxyView ---------------------------------------------------------------------------------
 
+
 def test_set_track_and_cloud_send_float32_with_nan_separators():
     g = GalaxyView()
     t = np.linspace(0, 2 * np.pi, 50)
@@ -284,6 +296,7 @@ def test_galaxy_defaults_follow_astropys_galactocentric_frame():
     # (Gravity Collaboration 2018, A&A 615, L15), galcen_v_sun (12.9, 245.6, 7.78) km/s
     # (Drimmel & Poggio 2018, RNAAS 2, 210); Sun at x = -R0 (in-plane, ignoring the z_sun tilt)
     from astropy.coordinates import Galactocentric, galactocentric_frame_defaults
+
     with galactocentric_frame_defaults.set("v4.0"):
         frame = Galactocentric()
     g = GalaxyView()
@@ -325,14 +338,14 @@ def test_rotation_arc_shows_the_sun_turning_clockwise_seen_from_the_north_pole()
     # starts at the Sun's azimuth at half its distance and sweeps toward +y: 9 o'clock to 12 o'clock
     assert (x[0], y[0]) == pytest.approx((-4.061, 0.0), abs=1e-9)
     assert (x[-1], y[-1]) == pytest.approx((0.0, 4.061), abs=1e-9)
-    assert np.sum(x[:-1] * y[1:] - x[1:] * y[:-1]) < 0          # negative signed area: clockwise
+    assert np.sum(x[:-1] * y[1:] - x[1:] * y[:-1]) < 0  # negative signed area: clockwise
 
 
 def test_rotation_arc_follows_the_sense_and_is_undefined_for_radial_motion():
     from mwkin.widgets.views import rotation_arc
 
     x, y = rotation_arc([5.0, 0.0], [0.0, 100.0], fraction=1.0, span_deg=90.0, n_seg=4)
-    assert (x[-1], y[-1]) == pytest.approx((0.0, 5.0), abs=1e-9)          # counter-clockwise
+    assert (x[-1], y[-1]) == pytest.approx((0.0, 5.0), abs=1e-9)  # counter-clockwise
     assert rotation_arc([5.0, 0.0], [100.0, 0.0]) is None
     assert rotation_arc([0.0, 0.0], [0.0, 100.0]) is None
 
@@ -359,4 +372,6 @@ def test_galaxy_view_sends_its_arc_and_palette_and_exports_what_it_draws():
     np.testing.assert_allclose(track["y"], [0.0, 1.0, 1.5])
     assert (panel.x_range, panel.y_range) == (tuple(g.view_range[:2]), tuple(g.view_range[2:]))
     velocity = by_colour[ORBIT_COLOURS["arrow"]][0]
-    assert velocity["kind"] == "arrow" and velocity["x"][1] == pytest.approx(g.star_xy[0] + g.velocity_xy[0] / g.arrow_scale)
+    assert velocity["kind"] == "arrow" and velocity["x"][1] == pytest.approx(
+        g.star_xy[0] + g.velocity_xy[0] / g.arrow_scale
+    )

@@ -18,14 +18,20 @@ from hypothesis import strategies as st
 import mwkin as mk
 from mwkin.widgets import FrameState, OortFitter, OrbitExplorer, PotentialState, VelocityPanel
 
-SETTINGS = settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow],
-                    derandomize=True)
+SETTINGS = settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow], derandomize=True)
 
-scalars = st.one_of(st.none(), st.booleans(), st.integers(-10**12, 10**12),
-                    st.floats(allow_nan=True, allow_infinity=True), st.text(max_size=8))
-json_like = st.recursive(scalars, lambda inner: st.one_of(st.lists(inner, max_size=3),
-                                                          st.dictionaries(st.text(max_size=6), inner, max_size=3)),
-                         max_leaves=8)
+scalars = st.one_of(
+    st.none(),
+    st.booleans(),
+    st.integers(-(10**12), 10**12),
+    st.floats(allow_nan=True, allow_infinity=True),
+    st.text(max_size=8),
+)
+json_like = st.recursive(
+    scalars,
+    lambda inner: st.one_of(st.lists(inner, max_size=3), st.dictionaries(st.text(max_size=6), inner, max_size=3)),
+    max_leaves=8,
+)
 
 
 def mutate(config, data):
@@ -48,9 +54,11 @@ def mutate(config, data):
 def shared():
     survey = mk.demo.survey(n=800, seed=5)
     frame, pot = FrameState(), PotentialState()
-    widgets_ = {"OortFitter": OortFitter(survey, frame=frame, potential=pot, threaded=False),
-                "VelocityPanel": VelocityPanel(survey, frame=frame, potential=pot, threaded=False),
-                "OrbitExplorer": OrbitExplorer(frame=frame, potential=pot, threaded=False, n_points=201)}
+    widgets_ = {
+        "OortFitter": OortFitter(survey, frame=frame, potential=pot, threaded=False),
+        "VelocityPanel": VelocityPanel(survey, frame=frame, potential=pot, threaded=False),
+        "OrbitExplorer": OrbitExplorer(frame=frame, potential=pot, threaded=False, n_points=201),
+    }
     return frame, pot, widgets_
 
 
@@ -59,12 +67,12 @@ def check_all_or_nothing(widget, frame, pot, config):
     try:
         widget.load_config(config)
     except ValueError as exc:
-        assert str(exc)                                             # a message, never an empty error
+        assert str(exc)  # a message, never an empty error
         assert (widget.config, frame.config, pot.config) == before  # nothing changed anywhere
         assert "config not applied" in widget.status
         return False
     after = widget.config
-    widget.load_config(copy.deepcopy(after))                        # a config it accepted round-trips
+    widget.load_config(copy.deepcopy(after))  # a config it accepted round-trips
     assert widget.config == after
     return True
 
@@ -78,7 +86,7 @@ def test_mutated_widget_configs_apply_cleanly_or_change_nothing(shared, name, da
     base = widget.config
     config = mutate(base, data)
     check_all_or_nothing(widget, frame, pot, config)
-    widget.load_config(base)   # back to the start for the next example
+    widget.load_config(base)  # back to the start for the next example
 
 
 @SETTINGS

@@ -63,11 +63,11 @@ def test_superseding_drops_a_result_still_in_flight():
 
     runner = LiveRunner(compute, lambda r, q, s: delivered.append(r), lambda e, q: errors.append(e))
     runner.submit(1)
-    runner.supersede()           # the next inputs failed validation: request 1 is stale now
+    runner.supersede()  # the next inputs failed validation: request 1 is stale now
     gate.set()
     assert runner.wait(10)
     assert delivered == [] and errors == []
-    runner.submit(2)             # and the runner still works afterwards
+    runner.submit(2)  # and the runner still works afterwards
     assert runner.wait(10) and delivered == [20]
 
 
@@ -87,8 +87,8 @@ def test_superseding_drops_a_queued_request():
 def _bad_potential(widget, pot):
     bad = copy.deepcopy(pot.parameters)
     bad["bulge"]["mass"] = -1e10
-    pot.parameters = bad                        # a preset is still chosen: a valid request is queued
-    pot.preset = ""                             # now the bad parameters count: the request fails
+    pot.parameters = bad  # a preset is still chosen: a valid request is queued
+    pot.preset = ""  # now the bad parameters count: the request fails
     return "bulge.mass"
 
 
@@ -103,10 +103,10 @@ def test_a_stale_result_never_overwrites_the_error_of_newer_inputs(survey, make,
     w = make(survey, frame=frame, potential=pot).wait()
     assert w.status.startswith("ready")
     gate, started = hold_next_computation(w)
-    frame.R0 = 8.5                              # valid: a computation starts and is held
+    frame.R0 = 8.5  # valid: a computation starts and is held
     assert started.wait(10)
     with pytest.raises(traitlets.TraitError, match="R0 must be a finite distance"):
-        frame.R0 = float("inf")                 # refused by the state: nothing changes
+        frame.R0 = float("inf")  # refused by the state: nothing changes
     assert frame.R0 == 8.5
     words = spoil(w, pot)
     gate.set()
@@ -121,7 +121,7 @@ def test_orbit_explorer_error_is_not_overwritten_by_an_older_orbit():
     gate, started = hold_next_computation(ex)
     frame.R0 = 8.3
     assert started.wait(10)
-    ex.observable_fields["parallax"].text.value = -0.5       # the current inputs are invalid
+    ex.observable_fields["parallax"].text.value = -0.5  # the current inputs are invalid
     gate.set()
     ex.wait()
     assert ex.status.startswith("error") and "parallax = -0.5 mas" in ex.status
@@ -132,8 +132,11 @@ def test_an_invalid_potential_is_an_error_in_every_analysis_widget(survey):
     """A negative bulge mass set in the shared state: error on screen, no result from the old model."""
     pot = PotentialState()
     pot.preset = ""
-    widgets_ = [OortFitter(survey, potential=pot).wait(), VelocityPanel(survey, potential=pot).wait(),
-                OrbitExplorer(potential=pot).wait()]
+    widgets_ = [
+        OortFitter(survey, potential=pot).wait(),
+        VelocityPanel(survey, potential=pot).wait(),
+        OrbitExplorer(potential=pot).wait(),
+    ]
     assert all(w.status.startswith("ready") for w in widgets_)
     bad = copy.deepcopy(pot.parameters)
     bad["bulge"]["mass"] = -1e10
@@ -141,7 +144,7 @@ def test_an_invalid_potential_is_an_error_in_every_analysis_widget(survey):
     for w in widgets_:
         w.wait()
     oort, panel, orbit = widgets_
-    for w in (oort, orbit):   # these use the potential
+    for w in (oort, orbit):  # these use the potential
         assert w.status.startswith("error") and "bulge.mass" in w.status and "Msun" in w.status
         assert w.result is None and hidden(w)
     # A widget built while the state is invalid says so from the start.
@@ -165,23 +168,26 @@ def test_a_config_that_fails_half_way_changes_nothing(survey, tmp_path, monkeypa
     config["sample"] = {"kind": "path", "path": str(tmp_path / "missing.ecsv")}
     with pytest.raises(ConfigError, match="missing.ecsv"):
         w.load_config(config)
-    assert frame.R0 == pytest.approx(8.122)          # the shared frame never saw 9.5
+    assert frame.R0 == pytest.approx(8.122)  # the shared frame never saw 9.5
     assert w.config == before_config and w.result is before_fit
     assert w.status.startswith("error: config not applied (nothing changed)")
     assert w.bootstrap.value == 0
 
 
 @pytest.mark.parametrize("make", [OortFitter, VelocityPanel, OrbitExplorer])
-@pytest.mark.parametrize("config, words", [
-    ([1, 2], "must be a dict"),
-    ("{}", "must be a dict"),
-    ({"frame": "8.1"}, "config['frame'] must be a dict"),
-    ({"potential": {"preset": 3}}, "preset must be a str"),
-    ({"potential": {"preset": "NoSuchModel"}}, "unknown preset 'NoSuchModel'"),
-    ({"potential": {"solar_V": True}}, "solar_V must be a finite number"),
-    ({"potential": {"preset": "", "parameters": {"bulge": {"mass": "big"}}}}, "bulge"),
-    ({"no_such_setting": 1}, "no_such_setting"),
-])
+@pytest.mark.parametrize(
+    "config, words",
+    [
+        ([1, 2], "must be a dict"),
+        ("{}", "must be a dict"),
+        ({"frame": "8.1"}, "config['frame'] must be a dict"),
+        ({"potential": {"preset": 3}}, "preset must be a str"),
+        ({"potential": {"preset": "NoSuchModel"}}, "unknown preset 'NoSuchModel'"),
+        ({"potential": {"solar_V": True}}, "solar_V must be a finite number"),
+        ({"potential": {"preset": "", "parameters": {"bulge": {"mass": "big"}}}}, "bulge"),
+        ({"no_such_setting": 1}, "no_such_setting"),
+    ],
+)
 def test_bad_configs_are_named_errors(survey, make, config, words):
     frame = FrameState()
     w = make(threaded=False, frame=frame) if make is OrbitExplorer else make(survey, threaded=False, frame=frame)
@@ -192,15 +198,18 @@ def test_bad_configs_are_named_errors(survey, make, config, words):
     assert w.config == before and "config not applied" in w.status
 
 
-@pytest.mark.parametrize("key, value, words", [
-    ("bootstrap", 10**9, "bootstrap N = 1000000000"),
-    ("bootstrap", -3, "bootstrap N = -3"),
-    ("bootstrap", "200", "must be int"),
-    ("robust", "yes", "must be bool"),
-    ("max_pm_error", -1.0, "max pm error = -1.0 mas/yr"),
-    ("distance_range", [0.5, 0.1], "0 <= min < max"),
-    ("distance_range", "0-1", "distance_range"),
-])
+@pytest.mark.parametrize(
+    "key, value, words",
+    [
+        ("bootstrap", 10**9, "bootstrap N = 1000000000"),
+        ("bootstrap", -3, "bootstrap N = -3"),
+        ("bootstrap", "200", "must be int"),
+        ("robust", "yes", "must be bool"),
+        ("max_pm_error", -1.0, "max pm error = -1.0 mas/yr"),
+        ("distance_range", [0.5, 0.1], "0 <= min < max"),
+        ("distance_range", "0-1", "distance_range"),
+    ],
+)
 def test_oort_settings_out_of_range_are_refused_not_clamped(survey, key, value, words):
     w = OortFitter(survey, threaded=False)
     before = w.config
@@ -213,7 +222,7 @@ def test_oort_settings_out_of_range_are_refused_not_clamped(survey, key, value, 
 def test_bootstrap_typed_out_of_range_is_an_error_not_a_clamp(survey):
     w = OortFitter(survey, threaded=False)
     w.bootstrap.value = 10**9
-    assert w.bootstrap.value == 10**9                  # what was typed stays
+    assert w.bootstrap.value == 10**9  # what was typed stays
     assert w.status.startswith("error") and "bootstrap N = 1000000000" in w.status
     assert w.result is None
     w.bootstrap.value = 50
@@ -291,7 +300,7 @@ def test_an_invalid_sample_is_shown_in_the_status_line_with_a_warning(survey, ma
         w.sample = bad
     assert "kept the previous sample" in w.status and len(w.sample) == len(survey)
     with warnings.catch_warnings():
-        warnings.simplefilter("error")   # a good sample raises no warning
+        warnings.simplefilter("error")  # a good sample raises no warning
         w.sample = survey
 
 
