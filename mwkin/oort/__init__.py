@@ -40,7 +40,7 @@ from .fit import (
 )
 from .model import DERIVED, PARAMETERS, UNITS, predicted_observables
 from .result import OortFit
-from .sample import OortInputError, galactic_geometry
+from .sample import OortInputError, galactic_geometry, sky_motions
 
 __all__ = [
     "fit_oort",
@@ -51,6 +51,7 @@ __all__ = [
     "heavy_tail_outliers",
     "predicted_observables",
     "galactic_geometry",
+    "sky_motions",
     "UNCONSTRAINED_ERROR",
     "DISPERSIONS",
     "MAX_BOOTSTRAP",

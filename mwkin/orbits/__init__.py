@@ -45,7 +45,7 @@ from .flags import (
 )
 from .integrate import integrate_orbits
 from .orbitset import OrbitSet
-from .parameters import orbit_parameters
+from .parameters import draw_phase_space_samples, orbit_parameters, span_parameters
 
 __all__ = [
     "integrate_orbits",
@@ -57,4 +57,6 @@ __all__ = [
     "FLAGS",
     "ADVISORY_FLAGS",
     "PARAMETERS",
+    "draw_phase_space_samples",
+    "span_parameters",
 ]
