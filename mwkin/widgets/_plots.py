@@ -1,30 +1,25 @@
 """Small plot helpers for the analysis widgets: whole-sample views, curves, bands, binned medians.
 
 Whole samples go through :class:`SampleView`, which holds the canvas view
-:class:`mwkin.widgets.views.SampleScatter` (fast for 1e4-1e6 stars) or, when that cannot be loaded, the
-bqplot :class:`PointCloud` with the same small interface (``set_data``, ``data()``,
-``selected_indices``, ``on_select``). The bqplot fallback draws a deterministic subsample of at most
-``max_points`` points, because bqplot's SVG marks slow down badly beyond a few thousand points in the
-browser; its box selection is applied to *all* points (the box is tested against the full arrays).
-Curves, binned medians, bands and small plots are bqplot figures.
+:class:`mwkin.widgets.views.SampleScatter` (fast for 1e4-1e6 stars; box and lasso selection of every
+star). It is the one implementation of the whole-sample scatter: the live view and the static export
+(:func:`panel_from_view`) both read it. Curves, binned medians, bands and small plots are bqplot
+figures.
 
 Everything takes numpy arrays; nothing loops over points in Python.
 """
 
 from __future__ import annotations
 
-import functools
+import warnings
 
 import bqplot as bq
 import ipywidgets as widgets
 import numpy as np
 
 __all__ = [
-    "PointCloud",
     "SampleView",
-    "canvas_view_available",
     "binned_quantiles",
-    "subsample_indices",
     "small_figure",
     "line_mark",
     "band_mark",
@@ -40,11 +35,7 @@ __all__ = [
     "COLOURS",
     "ORBIT_COLOURS",
     "CLOUD_OPACITY",
-    "MAX_DRAWN_POINTS",
 ]
-
-#: Largest number of points a bqplot scatter is given (a random, reproducible subsample beyond it).
-MAX_DRAWN_POINTS = 5000
 
 #: Colours used across the widgets (our own choice).
 COLOURS = {
@@ -74,24 +65,6 @@ ORBIT_COLOURS = {
 
 #: Opacity of the faint orbits drawn from the uncertainties, in every view and in the export.
 CLOUD_OPACITY = 0.35
-
-
-@functools.lru_cache(maxsize=16)
-def _subsample(n, max_points, seed):
-    rng = np.random.default_rng(seed)
-    idx = np.sort(rng.choice(n, size=max_points, replace=False)).astype(np.int64)
-    idx.setflags(write=False)
-    return idx
-
-
-def subsample_indices(n, max_points=MAX_DRAWN_POINTS, seed=20240607):
-    """Indices of the points drawn out of ``n``: all of them, or a fixed random subset of ``max_points``.
-
-    The subset depends only on ``(n, max_points, seed)``, so the same sample always shows the same stars.
-    """
-    if n <= max_points:
-        return np.arange(n, dtype=np.int64)
-    return _subsample(int(n), int(max_points), int(seed))
 
 
 def binned_quantiles(x, y, edges, quantiles=(0.16, 0.5, 0.84)):
@@ -350,7 +323,7 @@ def layers_from_marks(marks):
 
 
 def layers_from_view(view, *, size=1.0):
-    """Export layers of a whole-sample view (:class:`SampleView`, canvas or bqplot) as it is shown.
+    """Export layers of a whole-sample view (:class:`SampleView`) as it is shown.
 
     The points it holds -- coloured by their colour values with the view's colour label when it has
     them, else in the points' colour -- and its selection on top, in the selection colour.
@@ -359,7 +332,7 @@ def layers_from_view(view, *, size=1.0):
     x, y, c = (None if v is None else np.asarray(v, dtype=float) for v in (data["x"], data["y"], data["c"]))
     inner = getattr(view, "view", view)
     if c is not None:
-        label, unit = (inner.c_label, inner.c_unit) if hasattr(inner, "c_label") else inner.labels["c"]
+        label, unit = inner.c_label, inner.c_unit
         layers = [{"kind": "scatter", "x": x, "y": y, "c": c, "c_label": _axis_title(label, unit), "size": size}]
     else:
         layers = [{"kind": "scatter", "x": x, "y": y, "color": COLOURS["points"], "size": size}]
@@ -381,9 +354,7 @@ def layers_from_view(view, *, size=1.0):
 def view_axis_titles(view):
     """('x [unit]', 'y [unit]') of a whole-sample view, as its axes show them."""
     inner = getattr(view, "view", view)
-    if hasattr(inner, "x_label"):
-        return _axis_title(inner.x_label, inner.x_unit), _axis_title(inner.y_label, inner.y_unit)
-    return _axis_title(*inner.labels["x"]), _axis_title(*inner.labels["y"])
+    return _axis_title(inner.x_label, inner.x_unit), _axis_title(inner.y_label, inner.y_unit)
 
 
 def view_ranges(view):
@@ -440,231 +411,26 @@ def panel_from_figure(figure, title=None, *, first=(), last=(), notes=(), equal_
 
 
 # ---------------------------------------------------------------------- the whole-sample view
+def warn_if_bqplot_fallback_asked(use_canvas, stacklevel=3):
+    """The deprecation of ``use_canvas=False`` (the removed bqplot fallback of the whole-sample view)."""
+    if use_canvas is not None and not use_canvas:
+        warnings.warn(
+            "use_canvas=False is deprecated and has no effect: the bqplot fallback of the whole-sample "
+            "view was a second implementation of the canvas view and has been removed",
+            DeprecationWarning,
+            stacklevel=stacklevel,
+        )
+
+
 def _axis_title(label, unit):
     return f"{label} [{unit}]" if unit else label
 
 
-class PointCloud(widgets.VBox):
-    """Scatter of a whole sample in bqplot, drawn on a reproducible subsample, with a box selection.
-
-    The fallback for :class:`mwkin.widgets.views.SampleScatter` with the same interface (``set_data``,
-    ``data()``, ``n_points``, ``selected_indices``, ``on_select``, ``clear_selection``); indices always
-    refer to the arrays given to :meth:`set_data`, never to the subsample, and a box selection takes
-    every point inside the box, drawn or not. No lasso: bqplot's lasso reports only the drawn points.
-
-    Parameters
-    ----------
-    max_points : int
-        Largest number of points drawn (see :func:`subsample_indices`).
-    equal_aspect : bool
-        Same scale on both axes.
-    width, height : int
-        CSS pixels.
-    """
-
-    def __init__(
-        self,
-        *,
-        max_points=MAX_DRAWN_POINTS,
-        equal_aspect=False,
-        width=400,
-        height=340,
-        point_size=6,
-        colour=COLOURS["points"],
-    ):
-        self.max_points = max_points
-        self.labels = {"x": ("x", ""), "y": ("y", ""), "c": ("", "")}
-        self._x = np.zeros(0, dtype=np.float32)
-        self._y = np.zeros(0, dtype=np.float32)
-        self._c = None
-        self._shown = np.zeros(0, dtype=np.int64)
-        self._selected = np.zeros(0, dtype=np.uint32)
-        self._callbacks = []
-        self.figure, self.x_scale, self.y_scale = small_figure("", "x", "y", width=f"{width}px", height=f"{height}px")
-        if equal_aspect:
-            self.figure.min_aspect_ratio = self.figure.max_aspect_ratio = 1.0
-        self.c_scale = bq.ColorScale(scheme="viridis")
-        self.c_axis = bq.ColorAxis(scale=self.c_scale, label="", side="right", visible=False)
-        self.figure.axes = [*self.figure.axes, self.c_axis]
-        self.mark = bq.Scatter(
-            x=np.zeros(0),
-            y=np.zeros(0),
-            scales={"x": self.x_scale, "y": self.y_scale},
-            colors=[colour],
-            default_size=point_size,
-            opacities=[0.55],
-            stroke=None,
-            selected_style={"opacity": 1.0, "fill": COLOURS["selected"], "stroke": COLOURS["selected"]},
-            unselected_style={"opacity": 0.25},
-        )
-        self.figure.marks = [self.mark]
-        self.note = widgets.HTML()
-        self.note.add_class("mwkin-cloud-note")
-        self.brush = bq.interacts.BrushSelector(
-            x_scale=self.x_scale, y_scale=self.y_scale, marks=[self.mark], color=COLOURS["selected"]
-        )
-        self.pan_zoom = bq.interacts.PanZoom(scales={"x": [self.x_scale], "y": [self.y_scale]})
-        self.mode = widgets.ToggleButtons(
-            options=[("box select", "brush"), ("pan / zoom", "pan")], value="brush", style={"button_width": "90px"}
-        )
-        self.mode.observe(self._set_mode, "value")
-        self.clear_button = widgets.Button(description="clear selection", layout=widgets.Layout(width="120px"))
-        self.clear_button.on_click(lambda _: self.clear_selection())
-        self.figure.interaction = self.brush
-        self.brush.observe(self._brushed, "brushing")
-        super().__init__(children=[widgets.HBox([self.mode, self.clear_button]), self.figure, self.note])
-        self.add_class("mwkin-cloud")
-
-    # ---------------------------------------------------------------- data
-    def set_data(
-        self,
-        x,
-        y,
-        c=None,
-        *,
-        x_label=None,
-        y_label=None,
-        c_label=None,
-        x_unit=None,
-        y_unit=None,
-        c_unit=None,
-        keep_selection=False,
-        keep_view=False,
-        **_view_options,
-    ):
-        """Show new arrays (one length). Same arguments as ``SampleScatter.set_data``.
-
-        ``keep_view`` and the view options of the canvas view (``c_range``, ``view_range``) are accepted
-        and ignored: bqplot rescales to the data.
-        """
-        x = np.asarray(getattr(x, "value", x), dtype=float)
-        y = np.asarray(getattr(y, "value", y), dtype=float)
-        if x.shape != y.shape or x.ndim != 1:
-            raise ValueError(f"x and y must be 1-d arrays of one length, got shapes {x.shape} and {y.shape}")
-        c = None if c is None else np.asarray(getattr(c, "value", c), dtype=float)
-        if c is not None and c.shape != x.shape:
-            raise ValueError(f"c must have the length of x ({len(x)}), got {c.shape}")
-        # float32, as the canvas view stores and draws them, so data() means the same for both views
-        self._x, self._y = x.astype(np.float32), y.astype(np.float32)
-        self._c = None if c is None else c.astype(np.float32)
-        finite = np.flatnonzero(np.isfinite(x) & np.isfinite(y))
-        self._shown = finite[subsample_indices(len(finite), self.max_points)]
-        for axis, label, unit in (("x", x_label, x_unit), ("y", y_label, y_unit), ("c", c_label, c_unit)):
-            old_label, old_unit = self.labels[axis]
-            self.labels[axis] = (old_label if label is None else label, old_unit if unit is None else unit)
-        with self.mark.hold_sync():
-            self.mark.selected = None
-            if c is None:
-                self.mark.color = None
-                self.mark.scales = {"x": self.x_scale, "y": self.y_scale}
-            self.mark.x = x[self._shown]
-            self.mark.y = y[self._shown]
-            if c is not None:
-                cs = c[self._shown]
-                fill = np.nanmedian(cs) if np.isfinite(cs).any() else 0.0
-                self.mark.scales = {"x": self.x_scale, "y": self.y_scale, "color": self.c_scale}
-                self.mark.color = np.where(np.isfinite(cs), cs, fill)
-        self.figure.axes[0].label = _axis_title(*self.labels["x"])
-        self.figure.axes[1].label = _axis_title(*self.labels["y"])
-        self.c_axis.label = _axis_title(*self.labels["c"])
-        self.c_axis.visible = c is not None
-        n_finite = len(finite)
-        if n_finite > len(self._shown):
-            self.note.value = (
-                f"<small>drawing a fixed random {len(self._shown)} of {n_finite} points; "
-                f"selections use all of them</small>"
-            )
-        else:
-            self.note.value = f"<small>{n_finite} points</small>"
-        if keep_selection and len(self._selected) and self._selected[-1] < len(x):
-            self._draw_selection()
-        else:
-            self._set_selected(np.zeros(0, dtype=np.uint32))
-
-    @property
-    def n_points(self):
-        """Number of points (rows) last given to :meth:`set_data`."""
-        return len(self._x)
-
-    def data(self):
-        """The arrays as given to :meth:`set_data` (float32): dict with x, y and c (None without colour)."""
-        return {"x": self._x, "y": self._y, "c": self._c}
-
-    @property
-    def shown_indices(self):
-        """Indices (into the ``set_data`` arrays) of the points actually drawn."""
-        return self._shown
-
-    # ---------------------------------------------------------------- selection
-    @property
-    def selected_indices(self):
-        """Selected points as uint32 indices into the ``set_data`` arrays (sorted, unique); assignable."""
-        return self._selected.copy()
-
-    @selected_indices.setter
-    def selected_indices(self, indices):
-        idx = np.unique(np.asarray(indices, dtype=np.int64).ravel())
-        if len(idx) and (idx[0] < 0 or idx[-1] >= self.n_points):
-            raise ValueError(f"selected indices must lie in [0, {self.n_points}), got {idx[0]}..{idx[-1]}")
-        self._set_selected(idx.astype(np.uint32))
-
-    def clear_selection(self):
-        """Select nothing."""
-        self._set_selected(np.zeros(0, dtype=np.uint32))
-
-    def on_select(self, callback, remove=False):
-        """Call ``callback(indices)`` (uint32 array) whenever the selection changes."""
-        if remove:
-            self._callbacks.remove(callback)
-        else:
-            self._callbacks.append(callback)
-
-    def _set_selected(self, indices):
-        changed = not np.array_equal(indices, self._selected)
-        self._selected = indices
-        self._draw_selection()
-        if changed:
-            for callback in list(self._callbacks):
-                callback(self._selected.copy())
-
-    def _draw_selection(self):
-        drawn = np.flatnonzero(np.isin(self._shown, self._selected)) if len(self._selected) else []
-        self.mark.selected = drawn if len(drawn) else None
-
-    def _brushed(self, change):
-        if change["new"]:  # still dragging: wait for the end of the gesture
-            return
-        sx, sy = self.brush.selected_x, self.brush.selected_y
-        if sx is None or sy is None or len(sx) < 2 or len(sy) < 2:
-            self.clear_selection()
-            return
-        self.select_box(sx, sy)
-
-    def select_box(self, x_range, y_range):
-        """Select every point (not only the drawn ones) inside a rectangle in data units."""
-        x0, x1 = sorted(float(v) for v in np.asarray(x_range, dtype=float)[:2])
-        y0, y1 = sorted(float(v) for v in np.asarray(y_range, dtype=float)[:2])
-        inside = (self._x >= x0) & (self._x <= x1) & (self._y >= y0) & (self._y <= y1)
-        self._set_selected(np.flatnonzero(inside).astype(np.uint32))
-
-    def _set_mode(self, change):
-        self.figure.interaction = self.brush if change["new"] == "brush" else self.pan_zoom
-
-
-def canvas_view_available():
-    """True when the canvas view :class:`mwkin.widgets.views.SampleScatter` can be used."""
-    try:
-        from .views import SampleScatter  # noqa: F401
-    except Exception:  # noqa: BLE001 - any failure (missing module, missing js) means: use bqplot
-        return False
-    return True
-
-
 class SampleView(widgets.VBox):
-    """A titled whole-sample scatter: the canvas ``SampleScatter`` when available, else :class:`PointCloud`.
+    """A titled whole-sample scatter: the canvas view :class:`~mwkin.widgets.views.SampleScatter`.
 
     Delegates ``set_data``, ``data()``, ``n_points``, ``selected_indices``, ``on_select`` and
-    ``clear_selection`` to the view in :attr:`view`, so callers never need to know which one it is.
+    ``clear_selection`` to the view in :attr:`view`.
 
     Parameters
     ----------
@@ -672,30 +438,27 @@ class SampleView(widgets.VBox):
     equal_aspect : bool
     width, height : int
         CSS pixels.
-    use_canvas : bool, optional
-        Force the choice (default: the canvas view when it imports).
+    use_canvas : None or True
+        Deprecated: ``False`` used to choose a bqplot fallback, a second implementation of the same
+        view that is gone; it now warns and the canvas view is used.
     selection_mode : {"brush", "lasso", "pan"}
-        What a drag does at first in the canvas view (the bqplot fallback always starts with its box).
+        What a drag does at first.
     """
 
     def __init__(self, title, *, equal_aspect=False, width=400, height=340, use_canvas=None, selection_mode="brush"):
-        if use_canvas is None:
-            use_canvas = canvas_view_available()
-        if use_canvas:
-            from .views import SampleScatter
+        from .views import SampleScatter
 
-            # The box width lets the view's toolbar wrap instead of widening the view past the plot.
-            self.view = SampleScatter(
-                width=width,
-                height=height,
-                equal_aspect=equal_aspect,
-                selection_mode=selection_mode,
-                point_size=2,
-                layout=widgets.Layout(width=f"{width + 4}px"),
-            )
-        else:
-            self.view = PointCloud(equal_aspect=equal_aspect, width=width, height=height)
-        self.is_canvas = bool(use_canvas)
+        warn_if_bqplot_fallback_asked(use_canvas)
+        # The box width lets the view's toolbar wrap instead of widening the view past the plot.
+        self.view = SampleScatter(
+            width=width,
+            height=height,
+            equal_aspect=equal_aspect,
+            selection_mode=selection_mode,
+            point_size=2,
+            layout=widgets.Layout(width=f"{width + 4}px"),
+        )
+        self.is_canvas = True
         self.equal_aspect = bool(equal_aspect)
         self.title = widgets.HTML()
         self.set_title(title)

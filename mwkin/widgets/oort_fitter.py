@@ -33,6 +33,7 @@ from ._plots import (
     points_mark,
     set_error_bars,
     small_figure,
+    warn_if_bqplot_fallback_asked,
 )
 from ._sample import (
     DISTANCE_SETTING,
@@ -268,8 +269,9 @@ class OortFitter(SampleInput, AnalysisWidget):
         self._bins_error = ""
         self._bins_runner = LiveRunner(self._compute_bins, self._deliver_bins, self._fail_bins, threaded=threaded)
 
+        warn_if_bqplot_fallback_asked(use_canvas)
         with self._quiet:  # building: one computation once the sample is in
-            self._build(distance_range, use, bins, use_canvas)
+            self._build(distance_range, use, bins, None)
         if sample is not None:
             self.sample = sample
         else:

@@ -17,7 +17,7 @@ import traitlets
 
 from ..columns import column_values
 from ._base import AnalysisWidget, control_setting, one_of, snippet_preamble
-from ._plots import COLOURS, SampleView, panel_from_view
+from ._plots import COLOURS, SampleView, panel_from_view, warn_if_bqplot_fallback_asked
 from ._sample import (
     DISTANCE_SETTING,
     SAMPLE_SETTING,
@@ -90,9 +90,8 @@ class VelocityPanel(SampleInput, AnalysisWidget):
       Sun, so it does not depend on the frame.
     - **v_phi against R**: Galactocentric radius and azimuthal velocity.
 
-    The whole-sample views are the canvas view ``SampleScatter`` (box and lasso selection); if it
-    cannot be loaded, bqplot scatters on a fixed random subset of at most 5000 stars, whose box
-    selection still applies to all stars. The guide circles are drawn in the exported figure (the
+    The whole-sample views are the canvas view ``SampleScatter`` (box and lasso selection of every
+    star; ``use_canvas=False``, which chose a removed bqplot fallback, is deprecated). The guide circles are drawn in the exported figure (the
     canvas view has no curve layer); the LSR's v_phi is printed under the views.
     """
 
@@ -124,8 +123,9 @@ class VelocityPanel(SampleInput, AnalysisWidget):
         self._source = SampleSource()
         self._selected_rows = np.zeros(0, dtype=np.int64)
         self._note = ""
+        warn_if_bqplot_fallback_asked(use_canvas)
         with self._quiet:  # building: one computation once the sample is in
-            self._build(errors, colour_by, use_canvas)
+            self._build(errors, colour_by, None)
         if sample is not None:
             self.sample = sample
         else:

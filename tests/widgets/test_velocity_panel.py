@@ -15,7 +15,7 @@ from disc_mock import flat_disc_sample
 
 import mwkin as mk
 from mwkin.widgets import FrameState, PotentialState, VelocityPanel
-from mwkin.widgets._plots import PointCloud
+from mwkin.widgets.views import SampleScatter
 
 N = 1500
 
@@ -139,15 +139,18 @@ def test_selection_is_a_mask_over_the_input_rows(sample):
     assert not p.selection.any() and p.n_selected == 0
 
 
-def test_box_selection_in_the_bqplot_fallback_takes_all_stars_in_the_box():
+def test_use_canvas_false_warns_and_the_one_whole_sample_view_is_used():
+    # The bqplot fallback was a second implementation of the whole-sample scatter; it is gone. A
+    # selection made on the canvas view (as the browser sends it: indices of every star in the box,
+    # tests/browser/test_views_browser.py) reaches the panel's selection for all stars, drawn or not.
     big = astropy_sample(n=7000, seed=5, rv_fraction=0.9)
-    p = panel(big, use_canvas=False)
+    with pytest.warns(DeprecationWarning, match="use_canvas=False is deprecated"):
+        p = panel(big, use_canvas=False)
     view = p.toomre.view
-    assert isinstance(view, PointCloud)
-    assert len(view.shown_indices) == 5000  # drawn: a fixed subsample
+    assert isinstance(view, SampleScatter)
     x, y = view_xy(p.toomre)
-    view.select_box((200.0, 240.0), (0.0, 30.0))
     expected = (x >= 200) & (x <= 240) & (y >= 0) & (y <= 30)
+    view.selected_indices = np.flatnonzero(expected)
     np.testing.assert_array_equal(p.selection, expected)
     assert expected.sum() > 100
 
