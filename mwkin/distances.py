@@ -324,7 +324,7 @@ class InverseParallax:
                 bad = check()
                 if bad is not None and bad.any():
                     np.copyto(codes, code, where=bad)
-        with np.errstate(invalid="ignore", divide="ignore"):
+        with np.errstate(invalid="ignore", divide="ignore", over="ignore"):  # a ~0 parallax gives inf, not a warning
             distance = np.divide(1.0, plx)
             if has_error:
                 error = plx_err * distance

@@ -68,7 +68,7 @@ SCHOENRICH2010_SOLAR_MOTION = (11.1, 12.24, 7.25)
 _GALCEN_RA_DEG = 266.4051
 _GALCEN_DEC_DEG = -28.936175
 #: Extra roll that aligns the Galactocentric z axis with the Galactic pole (astropy, Galactocentric._ROLL0).
-_ROLL0_DEG = 58.5986320306
+ROLL0_DEG = 58.5986320306
 
 
 class FrameError(ValueError):
@@ -452,7 +452,7 @@ class SolarFrame:
         arcsin(z_sun / R0) and shift by R0.
         """
         ra, dec = math.radians(self.galcen_ra), math.radians(self.galcen_dec)
-        rotation = _rot(math.radians(_ROLL0_DEG - self.roll), "x") @ _rot(-dec, "y") @ _rot(ra, "z")
+        rotation = _rot(math.radians(ROLL0_DEG - self.roll), "x") @ _rot(-dec, "y") @ _rot(ra, "z")
         tilt = _rot(-math.asin(self.z_sun / (1000.0 * self.R0)), "y")
         matrix = tilt @ rotation
         offset = -tilt @ np.array([self.R0, 0.0, 0.0])

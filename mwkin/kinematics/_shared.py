@@ -37,9 +37,9 @@ _SYM_DIAG = (0, 3, 5)
 
 _SKY_REASON = "no_sky_position"
 _CORR_REASON = "invalid_correlation"
-# A correlation matrix is accepted when its smallest eigenvalue is at least -_EIGEN_TOLERANCE (positive
+# A correlation matrix is accepted when its smallest eigenvalue is at least -EIGEN_TOLERANCE (positive
 # semi-definite up to round-off); the same tolerance decides which Monte Carlo draws count as clipped.
-_EIGEN_TOLERANCE = 1e-12
+EIGEN_TOLERANCE = 1e-12
 # Pivots of the LDL^T factorisation above this settle "positive definite" at once; smaller ones
 # (singular or invalid matrices, rare) are decided by the eigenvalues.
 _PIVOT_TOLERANCE = 1e-9

@@ -12,11 +12,11 @@ from . import _shared
 from ._shared import (
     _ANGLES,
     _DEG,
-    _EIGEN_TOLERANCE,
     _MC_DRAWS_PER_BLOCK,
     _PIVOT_TOLERANCE,
     _SIGMA_LEVELS,
     _WRAPPING,
+    EIGEN_TOLERANCE,
 )
 from .linear import _error_inputs, _take
 from .transforms import _forward_all, _scratch_for
@@ -95,7 +95,7 @@ def _invalid_correlations(rho, n):
     finite = np.isfinite(corr).all(axis=(1, 2))
     invalid = np.zeros(rows.size, dtype=bool)
     if finite.any():
-        invalid[finite] = np.linalg.eigvalsh(corr[finite])[:, 0] < -_EIGEN_TOLERANCE
+        invalid[finite] = np.linalg.eigvalsh(corr[finite])[:, 0] < -EIGEN_TOLERANCE
     out = np.zeros(n, dtype=bool)
     out[rows[invalid]] = True
     return out
@@ -116,7 +116,7 @@ def _sqrt_correlation(rho, n):
     bad = ~np.isfinite(corr).all(axis=(1, 2))
     corr[bad] = np.eye(5)
     lam, vec = np.linalg.eigh(corr)
-    clipped = (lam < -_EIGEN_TOLERANCE).any(axis=1) & ~bad
+    clipped = (lam < -EIGEN_TOLERANCE).any(axis=1) & ~bad
     L = np.zeros((n, 6, 6))
     L[:, :5, :5] = vec * np.sqrt(np.clip(lam, 0.0, None))[:, None, :]
     L[:, 5, 5] = 1.0

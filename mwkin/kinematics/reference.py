@@ -53,8 +53,8 @@ from ..catalog import read_catalog
 from ..columns import CORRELATION_PAIRS
 from ..coords import ICRS_TO_GALACTIC, K_KMS_PER_MASYR_KPC
 from ..distances import DistanceColumn, InverseParallax
-from ..frames import _ROLL0_DEG, SolarFrame  # astropy's fixed roll: its single home is mwkin.frames
-from ._shared import _EIGEN_TOLERANCE  # the correlation check's round-off allowance, shared with the fast path
+from ..frames import ROLL0_DEG, SolarFrame  # astropy's fixed roll: its single home is mwkin.frames
+from ._shared import EIGEN_TOLERANCE  # the correlation check's round-off allowance, shared with the fast path
 
 __all__ = [
     "OUTPUT_NAMES",
@@ -180,7 +180,7 @@ def galactocentric_rotation(frame=None):
     centre_on_x = rotation_matrix("y", math.radians(frame.galcen_dec)) @ rotation_matrix(
         "z", -math.radians(frame.galcen_ra)
     )
-    pole_on_z = rotation_matrix("x", math.radians(frame.roll - _ROLL0_DEG))
+    pole_on_z = rotation_matrix("x", math.radians(frame.roll - ROLL0_DEG))
     tilt = rotation_matrix("y", math.asin(frame.z_sun / 1000.0 / frame.R0))  # z_sun is in pc
     matrix = tilt @ pole_on_z @ centre_on_x
     sun = tilt @ np.array([-frame.R0, 0.0, 0.0])
@@ -698,7 +698,7 @@ def invalid_correlations(table, distance=None):
     finite = np.isfinite(corr).all(axis=(1, 2))
     invalid = np.zeros(n, dtype=bool)
     if finite.any():
-        invalid[finite] = np.linalg.eigvalsh(corr[finite])[:, 0] < -_EIGEN_TOLERANCE
+        invalid[finite] = np.linalg.eigvalsh(corr[finite])[:, 0] < -EIGEN_TOLERANCE
     return invalid
 
 
