@@ -341,3 +341,64 @@ def test_showing_the_tour_leaves_the_shared_state_as_the_notebook_set_it(lab, pa
     want = {"frame": FrameState().config, "potential": PotentialState().config, "oort_distance_range": [0.0, 0.5]}
     changed = _differences(want, got)
     assert not changed, "showing the tour changed the shared state:\n  " + "\n  ".join(changed)
+
+
+def test_a_preset_applied_from_code_wins_over_the_views_echoes(lab, page):
+    """A value set from code must win over the echoes of the displayed controls.
+
+    With the tour on screen (FrameControls showing the shared frame), the kernel applies another
+    preset; once the views have settled, the shared frame must be exactly that preset, labelled with
+    its name, not a mix of the new values and the old ones the sliders sent back.
+    """
+    from mwkin import SolarFrame
+
+    open_tour(lab, page)
+    name = "Schoenrich 2010 + GRAVITY 2019"
+    labtools.execute_in_kernel(page, f"frame_state.apply_preset({name!r})")
+    time.sleep(3.0)  # let every view receive the new values and send whatever it sends back
+    labtools.wait_idle(page)
+    got = json.loads(
+        labtools.execute_in_kernel(
+            page,
+            "import json\nprint(json.dumps({'R0': frame_state.R0, 'z_sun': frame_state.z_sun, "
+            "'v_sun': list(frame_state.v_sun), 'preset': frame_state.preset}))",
+        )
+    )
+    # common practice (no source): the preset's own numbers, from the core's registry
+    want = SolarFrame.preset(name)
+    assert got["preset"] == name, got
+    assert got["R0"] == want.R0 and got["z_sun"] == want.z_sun, got
+    assert got["v_sun"] == list(want.v_sun), got
+
+
+def test_a_preset_applied_right_after_the_controls_are_shown_wins(lab, page):
+    """The same while the controls are still being drawn (as in the shared-analysis notebook).
+
+    One cell shows FrameControls, the next applies a preset at once, before the views have
+    finished rendering; whatever the views send back while they render must not undo the preset.
+    """
+    from mwkin import SolarFrame
+
+    name = "Schoenrich 2010 + GRAVITY 2019"
+    nb = labtools.write_notebook(
+        lab,
+        "preset_from_code",
+        [
+            "from mwkin.widgets import FrameControls, FrameState\nframe_state = FrameState()\n"
+            "controls = FrameControls(frame_state)\ncontrols",
+            f"frame_state.apply_preset({name!r})",
+        ],
+    )
+    labtools.open_and_run(page, lab, nb)
+    time.sleep(3.0)  # let the views settle and send back whatever they send
+    labtools.wait_idle(page)
+    got = json.loads(
+        labtools.execute_in_kernel(
+            page,
+            "import json\nprint(json.dumps({'R0': frame_state.R0, 'z_sun': frame_state.z_sun, "
+            "'v_sun': list(frame_state.v_sun), 'preset': frame_state.preset}))",
+        )
+    )
+    # common practice (no source): the preset's own numbers, from the core's registry
+    want = SolarFrame.preset(name)
+    assert got == {"R0": want.R0, "z_sun": want.z_sun, "v_sun": list(want.v_sun), "preset": name}, got

@@ -331,3 +331,20 @@ def test_the_newest_potential_request_wins():
     expected = float(Potential.three_component(**pot.parameters).vcirc(8.0).value)
     assert vc_at_sun(controls) == pytest.approx(expected, rel=1e-12)
     assert pot.parameters["disc"]["mass"] == pytest.approx(9.0e10)
+
+
+def test_a_stale_slider_echo_does_not_undo_a_value_set_from_code_but_a_drag_back_is_taken():
+    # common practice (no source): the ordering of widget messages. A slider still showing an older
+    # value sends it back (snapped) after the program showed a new one: not a user's move.
+    from mwkin.widgets.controls.fields import NumberField
+
+    got = []
+    field = NumberField("W [km/s]", 7.78, "test-field", got.append, slider=(-50.0, 50.0, 0.1))
+    field.show(7.25)  # from the program (a preset)
+    field.slider.value = 7.8  # the browser's stale echo of 7.78, snapped to the step
+    assert got == [] and field.value == 7.25 and field.slider.value == 7.25
+    # a user's drag: forward, then back over the same positions, is taken every time
+    for value in (7.5, 7.9, 8.3, 7.9, 7.5):
+        field.slider.value = value
+        field.show(value)  # the state echoes the accepted value back to the field, as FrameControls does
+    assert got == [7.5, 7.9, 8.3, 7.9, 7.5]

@@ -7,11 +7,17 @@ from the program without calling back; :class:`~mwkin.widgets.controls.FrameCont
 
 from __future__ import annotations
 
+import time
+
 import ipywidgets as widgets
 
 from .._base import Quiet
 
 _LABEL_STYLE = {"description_width": "9em"}
+
+#: How long (s) a value shown from the program can still come back from a browser slider as a stale
+#: echo (see :meth:`NumberField._is_echo`).
+ECHO_WINDOW_S = 2.0
 
 
 class NumberField(widgets.HBox):
@@ -36,6 +42,7 @@ class NumberField(widgets.HBox):
     def __init__(self, label, value, css, on_value, slider=None, tooltip=""):
         self._quiet = Quiet()
         self._on_value = on_value
+        self._recently_shown = [(float(value), time.monotonic())]  # (value, when) pushed from the program
         self.text = widgets.FloatText(
             value=value,
             description=label,
@@ -71,6 +78,9 @@ class NumberField(widgets.HBox):
 
     def show(self, value):
         """Display ``value`` (a valid value from the state) without calling back; clears the mark."""
+        now = time.monotonic()
+        self._recently_shown = [(v, t) for v, t in self._recently_shown if now - t < ECHO_WINDOW_S]
+        self._recently_shown.append((float(value), now))
         with self._quiet:
             self.text.value = value
             if self.slider is not None:
@@ -97,14 +107,26 @@ class NumberField(widgets.HBox):
         if self.slider is not None:
             with self._quiet:
                 self.slider.value = min(max(change["new"], self.slider.min), self.slider.max)
-        self._on_value(change["new"])
+        self._user_value(change["new"])
 
     def _slider_moved(self, change):
         if self._quiet or self._is_echo(change["new"]):
             return
+        if self._is_stale_echo(change["new"]):
+            # The browser still had an older value: put the current one back on its slider.
+            with self._quiet:
+                self.slider.value = min(max(self.text.value, self.slider.min), self.slider.max)
+            return
         with self._quiet:
             self.text.value = change["new"]
-        self._on_value(change["new"])
+        self._user_value(change["new"])
+
+    def _user_value(self, value):
+        # The user's own value: every echo of older program values has come in before it (the
+        # browser sends in order), so none is pending any more, and a drag back over recent positions
+        # is never taken for one.
+        self._recently_shown = []
+        self._on_value(value)
 
     def _is_echo(self, slider_value):
         """True if the slider only repeats the text box's value at its step (the one slider-echo rule).
@@ -117,3 +139,19 @@ class NumberField(widgets.HBox):
         step away.
         """
         return abs(slider_value - self.text.value) <= 0.5 * self.slider.step * (1 + 1e-9)
+
+    def _is_stale_echo(self, slider_value):
+        """True if the slider repeats a value the program showed shortly before the current one.
+
+        A slider still being drawn in the browser when the program shows a new value (a preset applied
+        in the cell after the one that displays the controls) sends back its older value, snapped,
+        after the new one was set; taken as a user's move it would undo part of the preset. A value
+        within half a step of one shown in the last :data:`ECHO_WINDOW_S` seconds is that echo; a
+        user's move lands on such a value within that time only by a deliberate return.
+        """
+        now = time.monotonic()
+        tolerance = 0.5 * self.slider.step * (1 + 1e-9)
+        return any(
+            now - when < ECHO_WINDOW_S and abs(slider_value - shown) <= tolerance
+            for shown, when in self._recently_shown[:-1]
+        )
