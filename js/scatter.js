@@ -7,7 +7,7 @@
 // (box) and Alt-drag (lasso) in pan mode. A click without dragging in a
 // selection mode, or Escape, clears the selection. The selection goes to
 // Python as little-endian uint32 indices in the `selected` Bytes trait.
-import { linearScale, finiteExtent, zoomDomain, equalAspect, formatValue, tickStep, niceTicks, formatTick } from "./lib/scale.js";
+import { linearScale, finiteExtent, zoomDomain, equalAspect, formatValue, tickValues, formatTick } from "./lib/scale.js";
 import { buildLut } from "./lib/colormap.js";
 import { indicesInRect, indicesInPolygon, simplifyPath } from "./lib/lasso.js";
 import { asFloat32, asUint32, encodeUint32, maskFromIndices } from "./lib/binary.js";
@@ -194,7 +194,10 @@ function render({ model, el }) {
     ctx.fillRect(0, 0, canvas.width, canvas.height);
     ctx.putImageData(imageData, Math.round(rect.left * dpr), Math.round(rect.top * dpr));
     ctx.setTransform(dpr, 0, 0, dpr, 0, 0);
-    drawAxes(ctx, rect, xd, yd, axisTitle(model.get("x_label"), model.get("x_unit")), axisTitle(model.get("y_label"), model.get("y_unit")));
+    drawAxes(ctx, rect, xd, yd, axisTitle(model.get("x_label"), model.get("x_unit")), axisTitle(model.get("y_label"), model.get("y_unit")), {
+      xAngular: model.get("x_unit") === "deg",
+      yAngular: model.get("y_unit") === "deg",
+    });
     if (hasBar) {
       const barRect = { left: rect.left + rect.width + 12, top: rect.top, width: BAR_WIDTH, height: rect.height };
       if (dense && cs === null) {
@@ -202,8 +205,8 @@ function render({ model, el }) {
         drawColorBar(ctx, barRect, ticks, "stars per bin");
       } else {
         const span = vmax - vmin || 1;
-        const step = tickStep(vmax - vmin, 5);
-        const ticks = niceTicks(vmin, vmax, 5).map((v) => ({ t: (v - vmin) / span, label: formatTick(v, step) }));
+        const { step, ticks: values } = tickValues(vmin, vmax, 5);
+        const ticks = values.map((v) => ({ t: (v - vmin) / span, label: formatTick(v, step) }));
         drawColorBar(ctx, barRect, ticks, axisTitle(model.get("c_label"), model.get("c_unit")) + (dense ? " (bin mean)" : ""));
       }
     }

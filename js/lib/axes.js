@@ -1,6 +1,6 @@
 // Axes, tick labels and colour bars drawn on a canvas 2D context, plus the
 // pure tick layout they use (tested in node).
-import { niceTicks, tickStep, formatTick } from "./scale.js";
+import { tickValues, formatTick } from "./scale.js";
 import { cssColor } from "./colormap.js";
 
 export const AXIS_FONT = "11px sans-serif";
@@ -9,12 +9,13 @@ export const INK = "#333";
 
 /**
  * Ticks of a linear axis: [{value, px, label}] for values between d0 and d1,
- * with px = r0 + (value - d0) * (r1 - r0) / (d1 - d0).
+ * with px = r0 + (value - d0) * (r1 - r0) / (d1 - d0); `angular` for an axis
+ * in degrees (ticks at multiples of 15, 30, 45, 90 or 180 deg).
  */
-export function tickLayout(d0, d1, r0, r1, count) {
-  const step = tickStep(d1 - d0, count);
+export function tickLayout(d0, d1, r0, r1, count, angular = false) {
+  const { step, ticks } = tickValues(d0, d1, count, angular);
   const k = (r1 - r0) / (d1 - d0);
-  return niceTicks(d0, d1, count).map((value) => ({
+  return ticks.map((value) => ({
     value,
     px: r0 + (value - d0) * k,
     label: formatTick(value, step),
@@ -47,9 +48,10 @@ export function sizeCanvas(canvas, w, h) {
 /**
  * Frame, ticks, tick labels and titles around the plot rectangle
  * (left, top, width, height in CSS px). xd / yd are the data domains
- * shown from left to right and from bottom to top.
+ * shown from left to right and from bottom to top. `options.xAngular` /
+ * `options.yAngular` mark an axis in degrees (see tickLayout).
  */
-export function drawAxes(ctx, rect, xd, yd, xTitle, yTitle) {
+export function drawAxes(ctx, rect, xd, yd, xTitle, yTitle, options = {}) {
   const { left, top, width, height } = rect;
   ctx.save();
   ctx.strokeStyle = INK;
@@ -59,7 +61,8 @@ export function drawAxes(ctx, rect, xd, yd, xTitle, yTitle) {
   ctx.font = AXIS_FONT;
   ctx.textAlign = "center";
   ctx.textBaseline = "top";
-  const xt = tickLayout(xd[0], xd[1], left, left + width, Math.max(2, Math.floor(width / 80)));
+  // about one labelled tick per 75 px across, per 50 px up (at least three, see tickValues)
+  const xt = tickLayout(xd[0], xd[1], left, left + width, Math.max(3, Math.floor(width / 75)), !!options.xAngular);
   for (const t of xt) {
     const x = Math.round(t.px) + 0.5;
     ctx.beginPath();
@@ -70,7 +73,7 @@ export function drawAxes(ctx, rect, xd, yd, xTitle, yTitle) {
   }
   ctx.textAlign = "right";
   ctx.textBaseline = "middle";
-  const yt = tickLayout(yd[0], yd[1], top + height, top, Math.max(2, Math.floor(height / 50)));
+  const yt = tickLayout(yd[0], yd[1], top + height, top, Math.max(3, Math.floor(height / 50)), !!options.yAngular);
   for (const t of yt) {
     const y = Math.round(t.px) + 0.5;
     ctx.beginPath();

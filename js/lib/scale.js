@@ -27,13 +27,25 @@ export function linearScale(d0, d1, r0, r1) {
   };
 }
 
+/** Tick spacings for angles in degrees spanning 60 deg or more (l at 0/90/180/270/360). */
+export const ANGLE_STEPS = [15, 30, 45, 90, 180];
+
 /**
  * The tick spacing 1, 2 or 5 times a power of ten that gives about `count`
- * intervals over `span`.
+ * intervals over `span`; with `angular` (degrees) and a span of 60 deg or
+ * more, the one of ANGLE_STEPS that gives the number of intervals closest to
+ * `count` (the larger one on a tie).
  */
-export function tickStep(span, count = 5) {
+export function tickStep(span, count = 5, angular = false) {
   span = Math.abs(span);
   if (!(span > 0) || !Number.isFinite(span)) return 1;
+  if (angular && span >= 60) {
+    let best = ANGLE_STEPS[0];
+    for (const step of ANGLE_STEPS) {
+      if (Math.abs(span / step - count) <= Math.abs(span / best - count)) best = step;
+    }
+    return best;
+  }
   const raw = span / Math.max(1, count);
   const power = Math.pow(10, Math.floor(Math.log10(raw)));
   const frac = raw / power;
@@ -45,17 +57,7 @@ export function tickStep(span, count = 5) {
   return nice * power;
 }
 
-/**
- * Tick values inside [min(a, b), max(a, b)], multiples of tickStep.
- * Values are computed as integer multiples of the step (no accumulated
- * round-off) and cleaned to 12 significant digits.
- */
-export function niceTicks(a, b, count = 5) {
-  const lo = Math.min(a, b);
-  const hi = Math.max(a, b);
-  if (!Number.isFinite(lo) || !Number.isFinite(hi)) return [];
-  if (lo === hi) return [lo];
-  const step = tickStep(hi - lo, count);
+function multiplesInside(lo, hi, step) {
   const i0 = Math.ceil(lo / step - 1e-9);
   const i1 = Math.floor(hi / step + 1e-9);
   const ticks = [];
@@ -64,6 +66,32 @@ export function niceTicks(a, b, count = 5) {
     ticks.push(v === 0 ? 0 : v); // no "-0"
   }
   return ticks;
+}
+
+/**
+ * Tick values inside [min(a, b), max(a, b)] and their spacing: {step, ticks}.
+ * Multiples of tickStep, computed as integer multiples of the step (no
+ * accumulated round-off) and cleaned to 12 significant digits; at least three
+ * ticks whenever the interval is not a point (a finer step is taken if the
+ * first gives fewer, so an axis is never labelled at one or two values only).
+ */
+export function tickValues(a, b, count = 5, angular = false) {
+  const lo = Math.min(a, b);
+  const hi = Math.max(a, b);
+  if (!Number.isFinite(lo) || !Number.isFinite(hi)) return { step: 1, ticks: [] };
+  if (lo === hi) return { step: 1, ticks: [lo] };
+  let step = tickStep(hi - lo, count, angular);
+  let ticks = multiplesInside(lo, hi, step);
+  for (let finer = 2 * count; ticks.length < 3 && finer <= 64 * Math.max(1, count); finer *= 2) {
+    step = tickStep(hi - lo, finer, angular);
+    ticks = multiplesInside(lo, hi, step);
+  }
+  return { step, ticks };
+}
+
+/** The tick values of tickValues (see there). */
+export function niceTicks(a, b, count = 5, angular = false) {
+  return tickValues(a, b, count, angular).ticks;
 }
 
 /**

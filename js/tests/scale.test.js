@@ -1,7 +1,7 @@
 import test from "node:test";
 import assert from "node:assert/strict";
 import {
-  linearScale, tickStep, niceTicks, formatTick, formatValue, finiteExtent, zoomDomain, equalAspect,
+  linearScale, tickStep, tickValues, niceTicks, formatTick, formatValue, finiteExtent, zoomDomain, equalAspect,
 } from "../lib/scale.js";
 
 test("linearScale maps ends and inverts", () => {
@@ -78,4 +78,19 @@ test("equalAspect widens the narrower axis and keeps orientation", () => {
   assert.deepEqual(xd, [-5, 15]); // 20 units over 200 px = 10 units over 100 px
   const [xr] = equalAspect([10, 0], [0, 10], 200, 100);
   assert.deepEqual(xr, [15, -5]);
+});
+
+test("tickValues: angles in degrees get 90/45/30-degree ticks; every axis at least three ticks", () => {
+  // common practice (no source): longitude axes labelled at 0/90/180/270/360
+  assert.deepEqual(niceTicks(0, 360, 4, true), [0, 90, 180, 270, 360]);
+  assert.deepEqual(niceTicks(0, 360, 8, true), [0, 45, 90, 135, 180, 225, 270, 315, 360]);
+  assert.deepEqual(niceTicks(-90, 90, 6, true), [-90, -60, -30, 0, 30, 60, 90]);
+  assert.equal(tickStep(20, 4, true), 5); // below 60 degrees: the usual 1-2-5 steps
+  // a narrow axis (count 2 over 0-360) was labelled at 0 and 200 only
+  const { step, ticks } = tickValues(0, 360, 2);
+  assert.ok(ticks.length >= 3, JSON.stringify(ticks));
+  assert.ok(ticks.every((t) => t % step === 0));
+  // an axis whose range holds one multiple of the first step (U from -40 to 55 km/s, count 2) still gets three
+  assert.ok(tickValues(-40, 55, 2).ticks.length >= 3);
+  assert.deepEqual(tickValues(3, 3, 5).ticks, [3]);
 });
