@@ -612,55 +612,40 @@ class OortFitter(SampleInput, AnalysisWidget):
 
     def _draw_fit(self, fit, request):
         a = self._fit_arrays
-        edges = np.arange(0.0, 360.0 + L_BIN_DEG / 2, L_BIN_DEG)
         l_curve, mu_curve, vr_curve = _model_curves(fit, a["median_distance"])
-        self.mu_view.set_data(
-            a["l"],
-            a["mu_l_star"],
-            a["distance"],
-            x_label="l",
-            x_unit="deg",
-            y_label="mu_l*",
-            y_unit="mas/yr",
-            c_label="distance",
-            c_unit="kpc",
-        )
-        self._draw_binned(
-            edges,
-            a["l"],
-            a["mu_l_star"],
-            a["mu_model"],
-            (self.mu_band, self.mu_bars, self.mu_medians, self.mu_model_stars),
-        )
-        with self.mu_model.hold_sync():
-            self.mu_model.x, self.mu_model.y = l_curve, mu_curve
-        self.mu_model.labels = [f"model, b = 0, d = {a['median_distance']:.2f} kpc"]
-        self.mu_legend.value = _binned_legend(a["median_distance"])
+        self._draw_sky_panel("mu", "mu_l_star", "mu_model", ("mu_l*", "mas/yr"), l_curve, mu_curve)
         has_vr = bool(np.isfinite(a["v_r"]).any())
         self.vr_box.layout.display = None if has_vr else "none"
         if has_vr:
-            self.vr_view.set_data(
-                a["l"],
-                a["v_r"],
-                a["distance"],
-                x_label="l",
-                x_unit="deg",
-                y_label="v_r",
-                y_unit="km/s",
-                c_label="distance",
-                c_unit="kpc",
-            )
-            self._draw_binned(
-                edges,
-                a["l"],
-                a["v_r"],
-                a["vr_model"],
-                (self.vr_band, self.vr_bars, self.vr_medians, self.vr_model_stars),
-            )
-            with self.vr_model.hold_sync():
-                self.vr_model.x, self.vr_model.y = l_curve, vr_curve
-            self.vr_model.labels = [f"model, b = 0, d = {a['median_distance']:.2f} kpc"]
-            self.vr_legend.value = _binned_legend(a["median_distance"])
+            self._draw_sky_panel("vr", "v_r", "vr_model", ("v_r", "km/s"), l_curve, vr_curve)
+
+    def _draw_sky_panel(self, prefix, column, model_column, y_axis, l_curve, model_curve):
+        """One observable against l: every star, binned medians, the model at the stars and its curve.
+
+        ``prefix`` names the panel's marks (``mu_view``, ``mu_band``, ... or ``vr_view``, ...).
+        """
+        a = self._fit_arrays
+        marks = {
+            name: getattr(self, f"{prefix}_{name}")
+            for name in ("view", "band", "bars", "medians", "model_stars", "model", "legend")
+        }
+        y_label, y_unit = y_axis
+        marks["view"].set_data(
+            a["l"], a[column], a["distance"],
+            x_label="l", x_unit="deg", y_label=y_label, y_unit=y_unit, c_label="distance", c_unit="kpc",
+        )  # fmt: skip
+        edges = np.arange(0.0, 360.0 + L_BIN_DEG / 2, L_BIN_DEG)
+        self._draw_binned(
+            edges,
+            a["l"],
+            a[column],
+            a[model_column],
+            (marks["band"], marks["bars"], marks["medians"], marks["model_stars"]),
+        )
+        with marks["model"].hold_sync():
+            marks["model"].x, marks["model"].y = l_curve, model_curve
+        marks["model"].labels = [f"model, b = 0, d = {a['median_distance']:.2f} kpc"]
+        marks["legend"].value = _binned_legend(a["median_distance"])
 
     @staticmethod
     def _draw_binned(edges, x, y, model, marks):

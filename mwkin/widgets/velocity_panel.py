@@ -16,6 +16,7 @@ import numpy as np
 import traitlets
 
 from ..columns import column_values
+from ..kinematics.toomre import constant_speed_curve, toomre_ordinate
 from ._base import AnalysisWidget, control_setting, one_of, snippet_preamble
 from ._plots import COLOURS, SampleView, panel_from_view, warn_if_bqplot_fallback_asked
 from ._sample import (
@@ -291,8 +292,7 @@ class VelocityPanel(SampleInput, AnalysisWidget):
             values = column_values(result, name).copy()
             values[~has_v] = np.nan
             arrays[name] = values
-        # The Toomre diagram's ordinate: the speed perpendicular to rotation, sqrt(v_R^2 + v_z^2).
-        arrays["v_perp"] = np.hypot(arrays["v_R"], arrays["v_z"])
+        arrays["v_perp"] = toomre_ordinate(arrays["v_R"], arrays["v_z"])
         self._arrays = arrays
         self._frame = request["frame"]
         self._draw(result, keep_selection=True)
@@ -397,19 +397,20 @@ class VelocityPanel(SampleInput, AnalysisWidget):
         """
         if self._result is None:
             return []
-        t = np.linspace(0.0, np.pi, 91)
         centre = self._lsr_vphi()
-        guides = [
-            {
-                "kind": "line",
-                "x": centre + s * np.cos(t),
-                "y": s * np.sin(t),
-                "color": COLOURS["guide"],
-                "label": f"{s:g} km/s from the LSR",
-                "width": 0.8,
-            }
-            for s in GUIDE_SPEEDS_KMS
-        ]
+        guides = []
+        for s in GUIDE_SPEEDS_KMS:
+            x, y = constant_speed_curve(centre, s)
+            guides.append(
+                {
+                    "kind": "line",
+                    "x": x,
+                    "y": y,
+                    "color": COLOURS["guide"],
+                    "label": f"{s:g} km/s from the LSR",
+                    "width": 0.8,
+                }
+            )
         return [panel_from_view(view, last=guides if view is self.toomre else ()) for view in self._views]
 
 
